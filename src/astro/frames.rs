@@ -1,0 +1,329 @@
+//! Earth rotation and reference frames: precession, nutation, sidereal time, hour angle, alt/az, separation.
+//!
+//! Conventions: right ascension and hour angle in radians, 0..2pi; azimuth north 0, east +pi/2; longitude
+//! east +; latitudes geodetic (WGS84). Catalogue coordinates are taken as ICRS ~ FK5 J2000 (the 23 mas frame
+//! bias is ignored).
+
+use crate::astro::time::{centuries_since_j2000, JdUtc};
+use crate::constants::{
+    AU_LIGHT_TIME_S, EARTH_EQUATORIAL_RADIUS_KM, J2000_JD, SECONDS_PER_DAY, WGS84_A_M, WGS84_F,
+};
+use std::f64::consts::{PI, TAU};
+
+/// 3x3 rotation matrix, row-major.
+pub type Mat3 = [[f64; 3]; 3];
+/// Cartesian vector (unit or not, as the name says).
+pub type Vec3 = [f64; 3];
+
+const ARCSEC_RAD: f64 = PI / (180.0 * 3600.0);
+
+/// Matrix times vector.
+pub fn mat_vec(m: &Mat3, v: &Vec3) -> Vec3 {
+    [
+        m[0][0] * v[0] + m[0][1] * v[1] + m[0][2] * v[2],
+        m[1][0] * v[0] + m[1][1] * v[1] + m[1][2] * v[2],
+        m[2][0] * v[0] + m[2][1] * v[1] + m[2][2] * v[2],
+    ]
+}
+
+/// Matrix product a * b.
+pub fn mat_mul(a: &Mat3, b: &Mat3) -> Mat3 {
+    let mut out = [[0.0; 3]; 3];
+    for (i, row) in out.iter_mut().enumerate() {
+        for (j, cell) in row.iter_mut().enumerate() {
+            *cell = (0..3).map(|k| a[i][k] * b[k][j]).sum();
+        }
+    }
+    out
+}
+
+/// Rotation of the coordinate frame about axis x (1), y (2) or z (3) by `angle_rad` (ERFA's Rx/Ry/Rz sense).
+fn rot(axis: usize, angle_rad: f64) -> Mat3 {
+    let (s, c) = angle_rad.sin_cos();
+    match axis {
+        1 => [[1.0, 0.0, 0.0], [0.0, c, s], [0.0, -s, c]],
+        2 => [[c, 0.0, -s], [0.0, 1.0, 0.0], [s, 0.0, c]],
+        _ => [[c, s, 0.0], [-s, c, 0.0], [0.0, 0.0, 1.0]],
+    }
+}
+
+/// Unit vector of a direction given by right ascension and declination (radians).
+pub fn unit_from_radec(ra_rad: f64, dec_rad: f64) -> Vec3 {
+    let (sd, cd) = dec_rad.sin_cos();
+    let (sa, ca) = ra_rad.sin_cos();
+    [cd * ca, cd * sa, sd]
+}
+
+/// Right ascension 0..2pi and declination -pi/2..pi/2 (radians) of a vector of any length.
+pub fn radec_from_vec(v: &Vec3) -> (f64, f64) {
+    let ra = v[1].atan2(v[0]).rem_euclid(TAU);
+    let dec = v[2].atan2((v[0] * v[0] + v[1] * v[1]).sqrt());
+    (ra, dec)
+}
+
+/// Vector length.
+pub fn norm(v: &Vec3) -> f64 {
+    (v[0] * v[0] + v[1] * v[1] + v[2] * v[2]).sqrt()
+}
+
+/// Angular separation of two directions, radians, 0..pi.
+///
+/// Vincenty's formula on the sphere (atan2 of cross and dot products): accurate at all angles, unlike
+/// the arccos form near 0 and pi.
+pub fn separation_rad(ra1_rad: f64, dec1_rad: f64, ra2_rad: f64, dec2_rad: f64) -> f64 {
+    let a = unit_from_radec(ra1_rad, dec1_rad);
+    let b = unit_from_radec(ra2_rad, dec2_rad);
+    let cross = [
+        a[1] * b[2] - a[2] * b[1],
+        a[2] * b[0] - a[0] * b[2],
+        a[0] * b[1] - a[1] * b[0],
+    ];
+    norm(&cross).atan2(a[0] * b[0] + a[1] * b[1] + a[2] * b[2])
+}
+
+/// Precession matrix from the mean equator and equinox of J2000.0 to those of date.
+///
+/// Given: `jd_tt` TT Julian Date. Returns: matrix P with v_date = P v_J2000.
+/// Source: IAU 1976 precession (Lieske et al. 1977), angles zeta, z, theta as in Meeus (1998) eq. 21.3 with
+/// the starting epoch J2000.0. Accuracy: a few milliarcseconds per century near J2000 against IAU 2006.
+pub fn precession_matrix(jd_tt: f64) -> Mat3 {
+    let t = centuries_since_j2000(jd_tt);
+    let zeta = (2306.2181 * t + 0.30188 * t * t + 0.017998 * t * t * t) * ARCSEC_RAD;
+    let z = (2306.2181 * t + 1.09468 * t * t + 0.018203 * t * t * t) * ARCSEC_RAD;
+    let theta = (2004.3109 * t - 0.42665 * t * t - 0.041833 * t * t * t) * ARCSEC_RAD;
+    mat_mul(&rot(3, -z), &mat_mul(&rot(2, theta), &rot(3, -zeta)))
+}
+
+/// Nutation and obliquity at a date.
+#[derive(Debug, Clone, Copy)]
+pub struct Nutation {
+    /// Nutation in longitude, rad.
+    pub dpsi_rad: f64,
+    /// Nutation in obliquity, rad.
+    pub deps_rad: f64,
+    /// Mean obliquity of the ecliptic, rad.
+    pub eps_mean_rad: f64,
+}
+
+impl Nutation {
+    /// Nutation and mean obliquity at `jd_tt`.
+    ///
+    /// Source: IAU 1980 nutation series as tabulated in Meeus (1998) ch. 22 (terms >= 0.0003"), through the
+    /// `astro` crate; mean obliquity from Laskar (1986), Meeus eq. 22.3. Accuracy: 0.5" in dpsi, 0.1" in deps
+    /// against the full IAU 2000A model (Meeus ch. 22).
+    pub fn at(jd_tt: f64) -> Nutation {
+        let (dpsi_rad, deps_rad) = astro::nutation::nutation(jd_tt);
+        Nutation {
+            dpsi_rad,
+            deps_rad,
+            eps_mean_rad: astro::ecliptic::mn_oblq_laskar(jd_tt),
+        }
+    }
+
+    /// True obliquity, rad.
+    pub fn eps_true_rad(&self) -> f64 {
+        self.eps_mean_rad + self.deps_rad
+    }
+
+    /// Equation of the equinoxes (apparent minus mean sidereal time), rad. Meeus (1998) ch. 12.
+    pub fn equation_of_equinoxes_rad(&self) -> f64 {
+        self.dpsi_rad * self.eps_true_rad().cos()
+    }
+
+    /// Nutation matrix N: v_true_of_date = N v_mean_of_date. Explanatory Supplement (1992) eq. 3.222-3.
+    pub fn matrix(&self) -> Mat3 {
+        mat_mul(
+            &rot(1, -self.eps_true_rad()),
+            &mat_mul(&rot(3, -self.dpsi_rad), &rot(1, self.eps_mean_rad)),
+        )
+    }
+}
+
+/// Greenwich mean sidereal time, rad 0..2pi.
+///
+/// Given: `jd_ut1` (UT1 Julian Date; dipwatch passes UTC, see the time module). Source: Meeus (1998) eq. 12.4
+/// (IAU 1982 GMST). Accuracy: 0.1 s of time over 1900-2100 against the IAU 2006 ERA-based GMST.
+pub fn gmst_rad(jd_ut1: f64) -> f64 {
+    let t = (jd_ut1 - J2000_JD) / 36_525.0;
+    let deg = 280.460_618_37 + 360.985_647_366_29 * (jd_ut1 - J2000_JD) + 0.000_387_933 * t * t
+        - t * t * t / 38_710_000.0;
+    deg.to_radians().rem_euclid(TAU)
+}
+
+/// Geodetic position of an observer.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Observer {
+    /// Geodetic latitude, rad, north +.
+    pub lat_rad: f64,
+    /// Longitude, rad, east +.
+    pub lon_rad: f64,
+    /// Height above the WGS84 ellipsoid, m.
+    pub elevation_m: f64,
+}
+
+impl Observer {
+    /// Observer at geodetic latitude/longitude in degrees (north +, east +) and height in metres.
+    pub fn from_deg(lat_deg: f64, lon_deg: f64, elevation_m: f64) -> Observer {
+        Observer {
+            lat_rad: lat_deg.to_radians(),
+            lon_rad: lon_deg.to_radians(),
+            elevation_m,
+        }
+    }
+
+    /// Distance from the Earth's axis and from the equatorial plane, m: (rho cos phi', rho sin phi') * a.
+    /// Source: WGS84 ellipsoid, standard geodetic-to-geocentric conversion (Explanatory Supplement 4.22).
+    pub fn axis_and_plane_distances_m(&self) -> (f64, f64) {
+        let e2 = WGS84_F * (2.0 - WGS84_F);
+        let (s, c) = self.lat_rad.sin_cos();
+        let n = WGS84_A_M / (1.0 - e2 * s * s).sqrt();
+        ((n + self.elevation_m) * c, (n * (1.0 - e2) + self.elevation_m) * s)
+    }
+
+    /// Geocentric position in the true equator-and-equinox frame of date, m, given the local apparent sidereal
+    /// time `last_rad`. (Polar motion, <= 15 m, is ignored.)
+    pub fn geocentric_m(&self, last_rad: f64) -> Vec3 {
+        let (r_axis, z) = self.axis_and_plane_distances_m();
+        [r_axis * last_rad.cos(), r_axis * last_rad.sin(), z]
+    }
+
+    /// Geocentric position in units of the Earth's equatorial radius (the unit of Meeus ch. 40 parallax),
+    /// in the true frame of date.
+    pub fn geocentric_earth_radii(&self, last_rad: f64) -> Vec3 {
+        let p = self.geocentric_m(last_rad);
+        let k = 1.0 / (EARTH_EQUATORIAL_RADIUS_KM * 1000.0);
+        [p[0] * k, p[1] * k, p[2] * k]
+    }
+}
+
+/// Altitude and azimuth of a direction from its hour angle and declination.
+///
+/// Given: `ha_rad` hour angle (west +), `dec_rad`, `lat_rad` geodetic latitude. Returns: (altitude rad,
+/// azimuth rad 0..2pi, north 0, east +pi/2). Source: Meeus (1998) eq. 13.5-13.6 with azimuth from north.
+pub fn alt_az_from_hadec(ha_rad: f64, dec_rad: f64, lat_rad: f64) -> (f64, f64) {
+    let (sh, ch) = ha_rad.sin_cos();
+    let (sd, cd) = dec_rad.sin_cos();
+    let (sl, cl) = lat_rad.sin_cos();
+    let x = -ch * cd * sl + sd * cl;
+    let y = -sh * cd;
+    let z = ch * cd * cl + sd * sl;
+    let alt = z.atan2((x * x + y * y).sqrt());
+    let az = y.atan2(x).rem_euclid(TAU);
+    (alt, az)
+}
+
+/// Hour angle wrapped to -pi..pi (west +).
+pub fn wrap_pi(angle_rad: f64) -> f64 {
+    let a = (angle_rad + PI).rem_euclid(TAU) - PI;
+    if a <= -PI {
+        a + TAU
+    } else {
+        a
+    }
+}
+
+/// The rotation state of the Earth at one instant: everything needed to turn catalogue directions into
+/// local hour angles for any site.
+#[derive(Debug, Clone, Copy)]
+pub struct EarthOrientation {
+    /// TT Julian Date.
+    pub jd_tt: f64,
+    /// Precession-nutation matrix, J2000 mean -> true of date.
+    pub pn: Mat3,
+    /// Nutation quantities.
+    pub nutation: Nutation,
+    /// Greenwich apparent sidereal time, rad 0..2pi.
+    pub gast_rad: f64,
+}
+
+impl EarthOrientation {
+    /// Orientation at a UTC instant (UT1 = UTC).
+    pub fn at(jd_utc: JdUtc) -> EarthOrientation {
+        let jd_tt = crate::astro::time::jd_tt_from_utc(jd_utc);
+        let nutation = Nutation::at(jd_tt);
+        let pn = mat_mul(&nutation.matrix(), &precession_matrix(jd_tt));
+        let gast_rad = (gmst_rad(jd_utc.0) + nutation.equation_of_equinoxes_rad()).rem_euclid(TAU);
+        EarthOrientation {
+            jd_tt,
+            pn,
+            nutation,
+            gast_rad,
+        }
+    }
+
+    /// Local apparent sidereal time at east longitude `lon_rad`, rad 0..2pi.
+    pub fn last_rad(&self, lon_rad: f64) -> f64 {
+        (self.gast_rad + lon_rad).rem_euclid(TAU)
+    }
+
+    /// Apparent right ascension and declination of date (true equator and equinox), rad, of a catalogue
+    /// (ICRS/J2000) direction, with annual aberration from the Earth's barycentric velocity.
+    ///
+    /// Given: `icrs` unit vector; `earth_vel_au_per_day` barycentric velocity of the Earth in the ICRS frame
+    /// (`None` skips aberration, up to 20.5"). Aberration to first order in v/c (Explanatory Supplement 3.252;
+    /// the second-order term is < 0.001"). Light deflection by the Sun (< 0.02" beyond 45 deg of the Sun)
+    /// is ignored.
+    pub fn apparent_radec(&self, icrs: &Vec3, earth_vel_au_per_day: Option<&Vec3>) -> (f64, f64) {
+        let mut p = *icrs;
+        if let Some(v) = earth_vel_au_per_day {
+            let k = AU_LIGHT_TIME_S / SECONDS_PER_DAY;
+            let beta = [v[0] * k, v[1] * k, v[2] * k];
+            let pdotv = p[0] * beta[0] + p[1] * beta[1] + p[2] * beta[2];
+            for i in 0..3 {
+                p[i] += beta[i] - p[i] * pdotv;
+            }
+        }
+        radec_from_vec(&mat_vec(&self.pn, &p))
+    }
+}
+
+/// Apply proper motion to catalogue coordinates.
+///
+/// Given: `ra_deg`, `dec_deg` at `epoch_jd`; `pm_ra_cosdec_mas_per_yr` (mu_alpha* = mu_alpha cos dec) and
+/// `pm_dec_mas_per_yr`; `target_jd`. Returns (ra_deg, dec_deg) at the target date. Linear motion on the sphere
+/// (Meeus 1998 ch. 21, "proper motion"), good to < 0.1" over a century for stars with mu < 1"/yr; radial
+/// velocity and parallax are ignored.
+pub fn apply_proper_motion(
+    ra_deg: f64,
+    dec_deg: f64,
+    pm_ra_cosdec_mas_per_yr: f64,
+    pm_dec_mas_per_yr: f64,
+    epoch_jd: f64,
+    target_jd: f64,
+) -> (f64, f64) {
+    let years = (target_jd - epoch_jd) / 365.25;
+    let cosd = dec_deg.to_radians().cos().max(1e-9);
+    let ra = ra_deg + pm_ra_cosdec_mas_per_yr * years / 3.6e6 / cosd;
+    let dec = (dec_deg + pm_dec_mas_per_yr * years / 3.6e6).clamp(-90.0, 90.0);
+    (ra.rem_euclid(360.0), dec)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn precession_is_a_rotation() {
+        let p = precession_matrix(2_470_000.0);
+        let v = mat_vec(&p, &[0.3, -0.4, 0.866_025_403_784_438_6]);
+        assert!((norm(&v) - 1.0).abs() < 1e-12);
+    }
+
+    #[test]
+    fn zenith_and_pole() {
+        let lat = 0.7;
+        let (alt, _) = alt_az_from_hadec(0.0, lat, lat);
+        assert!((alt - PI / 2.0).abs() < 1e-12);
+        let (alt, az) = alt_az_from_hadec(1.0, PI / 2.0, lat);
+        assert!((alt - lat).abs() < 1e-12 && az.abs() < 1e-9);
+        // Due east at rising for an equatorial star seen from the equator.
+        let (alt, az) = alt_az_from_hadec(-PI / 2.0, 0.0, 0.0);
+        assert!(alt.abs() < 1e-12 && (az - PI / 2.0).abs() < 1e-12);
+    }
+
+    #[test]
+    fn separation_of_orthogonal_directions() {
+        assert!((separation_rad(0.0, 0.0, PI / 2.0, 0.0) - PI / 2.0).abs() < 1e-12);
+        assert!(separation_rad(1.0, 0.5, 1.0, 0.5).abs() < 1e-12);
+    }
+}

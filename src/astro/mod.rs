@@ -1,0 +1,8 @@
+//! The astronomy and time core: pure functions, units in names, sources in doc comments.
+
+pub mod atmosphere;
+pub mod barycentric;
+pub mod crossings;
+pub mod frames;
+pub mod sky;
+pub mod time;

@@ -1,0 +1,8 @@
+//! dipwatch: plan ground-based follow-up of transiting exoplanets.
+//!
+//! Data flows one way: inputs (sites, targets) -> ephemeris (epochs, sigma) -> time (BJD_TDB -> UTC) -> sky
+//! (Sun, Moon, target geometry at a site) -> verdicts (observable blocks, reasons) -> outputs.
+//! The library only computes; files, the clock and the terminal belong to the binary.
+
+pub mod astro;
+pub mod constants;
