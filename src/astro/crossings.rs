@@ -185,8 +185,8 @@ mod tests {
     fn grazing_extremum_is_found_with_extra_sample() {
         // A bump above zero only within 0.500 +- 0.001, invisible to a 0.1 step grid without the extremum hint.
         let f = |t: f64| 1e-6 - (t - 0.5).powi(2);
-        assert!(intervals_where_nonnegative(&f, 0.0, 1.0, 0.3, &[]).is_empty());
-        let iv = intervals_where_nonnegative(&f, 0.0, 1.0, 0.3, &[0.5]);
+        assert!(intervals_where_nonnegative(&f, 0.0, 1.1, 0.3, &[]).is_empty());
+        let iv = intervals_where_nonnegative(&f, 0.0, 1.1, 0.3, &[0.5]);
         assert_eq!(iv.len(), 1);
         assert!((iv[0].len_days() - 0.002).abs() < 1e-5);
     }
