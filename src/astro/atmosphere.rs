@@ -63,7 +63,10 @@ impl HorizonProfile {
     /// A profile from (azimuth deg, altitude deg) pairs in any order; azimuths are taken modulo 360.
     /// An empty list gives a flat profile at -90 deg (no restriction).
     pub fn new(pairs: &[(f64, f64)]) -> HorizonProfile {
-        let mut points: Vec<(f64, f64)> = pairs.iter().map(|&(az, alt)| (az.rem_euclid(360.0), alt)).collect();
+        let mut points: Vec<(f64, f64)> = pairs
+            .iter()
+            .map(|&(az, alt)| (az.rem_euclid(360.0), alt))
+            .collect();
         points.sort_by(|a, b| a.0.total_cmp(&b.0));
         points.dedup_by(|a, b| a.0 == b.0);
         HorizonProfile { points }

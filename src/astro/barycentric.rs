@@ -146,7 +146,11 @@ impl EarthTable {
             None => {
                 let a = earth_positions_au(jd_tdb - 0.01).0;
                 let b = earth_positions_au(jd_tdb + 0.01).0;
-                [(b[0] - a[0]) / 0.02, (b[1] - a[1]) / 0.02, (b[2] - a[2]) / 0.02]
+                [
+                    (b[0] - a[0]) / 0.02,
+                    (b[1] - a[1]) / 0.02,
+                    (b[2] - a[2]) / 0.02,
+                ]
             }
         }
     }
@@ -158,7 +162,9 @@ impl EarthTable {
         } else {
             self.earth_bary_au(jd_tdb)
         };
-        let dot = (0..3).map(|i| (r[i] + observer_au[i]) * target[i]).sum::<f64>();
+        let dot = (0..3)
+            .map(|i| (r[i] + observer_au[i]) * target[i])
+            .sum::<f64>();
         dot * AU_LIGHT_TIME_S / SECONDS_PER_DAY
     }
 

@@ -68,7 +68,9 @@ pub fn intervals_where_nonnegative<F: Fn(f64) -> f64>(
         return Vec::new();
     }
     let n = ((end - start) / step_days).ceil().max(1.0) as usize;
-    let mut ts: Vec<f64> = (0..=n).map(|i| start + (end - start) * i as f64 / n as f64).collect();
+    let mut ts: Vec<f64> = (0..=n)
+        .map(|i| start + (end - start) * i as f64 / n as f64)
+        .collect();
     ts.extend(extra.iter().copied().filter(|&t| t > start && t < end));
     ts.sort_by(f64::total_cmp);
     let mut out = Vec::new();
@@ -80,7 +82,10 @@ pub fn intervals_where_nonnegative<F: Fn(f64) -> f64>(
         if (ft >= 0.0) != (prev_f >= 0.0) {
             let root = bisect(f, prev_t, prev_f, t);
             match open.take() {
-                Some(s) => out.push(Interval { start: s, end: root }),
+                Some(s) => out.push(Interval {
+                    start: s,
+                    end: root,
+                }),
                 None => open = Some(root),
             }
         }

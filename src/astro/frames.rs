@@ -177,7 +177,10 @@ impl Observer {
         let e2 = WGS84_F * (2.0 - WGS84_F);
         let (s, c) = self.lat_rad.sin_cos();
         let n = WGS84_A_M / (1.0 - e2 * s * s).sqrt();
-        ((n + self.elevation_m) * c, (n * (1.0 - e2) + self.elevation_m) * s)
+        (
+            (n + self.elevation_m) * c,
+            (n * (1.0 - e2) + self.elevation_m) * s,
+        )
     }
 
     /// Geocentric position in the true equator-and-equinox frame of date, m, given the local apparent sidereal

@@ -91,7 +91,8 @@ pub fn topocentric(geo: &ApparentPlace, observer: &Observer, last_rad: f64) -> A
 /// Source: Meeus (1998) eq. 48.2-48.3 (phase angle from the Sun-Moon elongation and distances) and 48.1.
 /// Accuracy: 0.001 with Meeus ch. 25/47 positions.
 pub fn moon_illuminated_fraction(sun: &ApparentPlace, moon: &ApparentPlace) -> f64 {
-    let psi = crate::astro::frames::separation_rad(sun.ra_rad, sun.dec_rad, moon.ra_rad, moon.dec_rad);
+    let psi =
+        crate::astro::frames::separation_rad(sun.ra_rad, sun.dec_rad, moon.ra_rad, moon.dec_rad);
     let i = (sun.dist_km * psi.sin()).atan2(moon.dist_km - sun.dist_km * psi.cos());
     (1.0 + i.cos()) / 2.0
 }
@@ -142,5 +143,27 @@ pub fn sun_moon_at(jd_utc: JdUtc, observer: &Observer) -> SunMoonAt {
 pub fn sun_alt_deg(jd_utc: JdUtc, observer: &Observer) -> f64 {
     let eo = EarthOrientation::at(jd_utc);
     let sun = sun_apparent(eo.jd_tt, &eo.nutation);
-    alt_az(&sun, observer, eo.last_rad(observer.lon_rad)).0.to_degrees()
+    alt_az(&sun, observer, eo.last_rad(observer.lon_rad))
+        .0
+        .to_degrees()
+}
+
+/// Geometric (unrefracted) altitude and azimuth of a catalogue (ICRS/J2000) direction at a site, deg.
+///
+/// Given: `icrs` unit vector; `jd_utc`; `observer`; `earth` a table covering the date (for the aberration
+/// velocity). Precession (IAU 1976), nutation (IAU 1980), annual aberration and GAST with UT1 = UTC.
+/// Accuracy: about 1" plus the <= 0.004 deg of UT1 = UTC, checked against ERFA's atco13 (tests/reference.rs).
+/// Azimuth north 0, east 90.
+pub fn target_alt_az_deg(
+    icrs: &crate::astro::frames::Vec3,
+    jd_utc: JdUtc,
+    observer: &Observer,
+    earth: &crate::astro::barycentric::EarthTable,
+) -> (f64, f64) {
+    let eo = EarthOrientation::at(jd_utc);
+    let tdb = crate::astro::time::jd_tdb_from_utc(jd_utc).0;
+    let vel = earth.earth_bary_vel_au_per_day(tdb);
+    let (ra, dec) = eo.apparent_radec(icrs, Some(&vel));
+    let (alt, az) = alt_az_from_hadec(eo.last_rad(observer.lon_rad) - ra, dec, observer.lat_rad);
+    (alt.to_degrees(), az.to_degrees())
 }

@@ -32,7 +32,8 @@ pub fn jd_from_calendar(year: i32, month: u32, day_frac: f64) -> f64 {
     };
     let a = (y as f64 / 100.0).floor();
     let b = 2.0 - a + (a / 4.0).floor();
-    (365.25 * (y as f64 + 4716.0)).floor() + (30.6001 * (m as f64 + 1.0)).floor() + day_frac + b - 1524.5
+    (365.25 * (y as f64 + 4716.0)).floor() + (30.6001 * (m as f64 + 1.0)).floor() + day_frac + b
+        - 1524.5
 }
 
 /// Gregorian calendar date of a Julian Date.
