@@ -6,3 +6,5 @@
 
 pub mod astro;
 pub mod constants;
+pub mod ephemeris;
+pub mod inputs;

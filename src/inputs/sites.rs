@@ -1,0 +1,407 @@
+//! Sites file (TOML): one `[[site]]` table per site. Keys are documented in the README.
+
+use super::{InputError, Problems};
+use crate::astro::atmosphere::{alt_deg_for_airmass, HorizonProfile};
+use crate::astro::frames::Observer;
+use crate::constants::{
+    ASTRONOMICAL_TWILIGHT_ALT_DEG, CIVIL_TWILIGHT_ALT_DEG, NAUTICAL_TWILIGHT_ALT_DEG,
+};
+use serde::Deserialize;
+use toml::Spanned;
+
+/// A resolved observing site.
+#[derive(Debug, Clone)]
+pub struct Site {
+    /// Display name, unique within the file.
+    pub name: String,
+    /// Geodetic position.
+    pub observer: Observer,
+    /// Latitude, deg north +.
+    pub lat_deg: f64,
+    /// Longitude, deg east + (-180..180).
+    pub lon_deg: f64,
+    /// Elevation above the WGS84 ellipsoid (or sea level; the difference is immaterial here), m.
+    pub elevation_m: f64,
+    /// IANA time zone.
+    pub tz: chrono_tz::Tz,
+    /// Lowest usable (true) altitude of the target, deg; from `min_alt_deg` or `max_airmass`, whichever is
+    /// higher when both are given.
+    pub min_alt_deg: f64,
+    /// Sun altitude below which the sky counts as dark, deg.
+    pub darkness_alt_deg: f64,
+    /// The darkness level as written (`civil`, `nautical`, `astronomical`, or a number).
+    pub darkness_label: String,
+    /// Horizon profile (empty: flat).
+    pub horizon: HorizonProfile,
+    /// Allowed hour-angle range, hours (east -, west +), if limited.
+    pub hour_angle_limits_h: Option<(f64, f64)>,
+    /// Minimum separation from the Moon's centre, deg, if set.
+    pub min_moon_sep_deg: Option<f64>,
+}
+
+#[derive(Deserialize)]
+#[serde(deny_unknown_fields)]
+struct RawFile {
+    site: Option<Vec<Spanned<RawSite>>>,
+}
+
+#[derive(Deserialize)]
+#[serde(deny_unknown_fields)]
+struct RawSite {
+    name: Option<Spanned<String>>,
+    latitude_deg: Option<Spanned<f64>>,
+    longitude_deg: Option<Spanned<f64>>,
+    elevation_m: Option<Spanned<f64>>,
+    timezone: Option<Spanned<String>>,
+    min_alt_deg: Option<Spanned<f64>>,
+    max_airmass: Option<Spanned<f64>>,
+    darkness: Option<Spanned<toml::Value>>,
+    min_moon_sep_deg: Option<Spanned<f64>>,
+    hour_angle_limits_h: Option<Spanned<Vec<f64>>>,
+    horizon: Option<Spanned<Vec<Vec<f64>>>>,
+}
+
+fn line_of(text: &str, offset: usize) -> usize {
+    text[..offset.min(text.len())]
+        .bytes()
+        .filter(|&b| b == b'\n')
+        .count()
+        + 1
+}
+
+/// Parse and validate a sites file.
+///
+/// Given: `file` label for messages, `text` the file's content. Returns the sites in file order, or every
+/// problem found.
+pub fn parse_sites(file: &str, text: &str) -> Result<Vec<Site>, InputError> {
+    let text = text.strip_prefix('\u{feff}').unwrap_or(text);
+    if text.trim().is_empty() {
+        return Err(InputError::single(
+            file,
+            None,
+            None,
+            "the file is empty; expected one or more [[site]] tables (see sites.example.toml)"
+                .into(),
+        ));
+    }
+    let raw: RawFile = toml::from_str(text).map_err(|e| {
+        let line = e.span().map(|s| line_of(text, s.start));
+        InputError::single(
+            file,
+            line,
+            None,
+            format!("not valid sites TOML: {}", e.message()),
+        )
+    })?;
+    let Some(raw_sites) = raw.site.filter(|s| !s.is_empty()) else {
+        return Err(InputError::single(
+            file,
+            None,
+            None,
+            "found no [[site]] tables; expected one or more (see sites.example.toml)".into(),
+        ));
+    };
+    let mut problems = Problems::default();
+    let mut sites = Vec::new();
+    let mut seen = std::collections::HashMap::new();
+    for spanned in &raw_sites {
+        let site_line = line_of(text, spanned.span().start);
+        let r = spanned.get_ref();
+        let at = |s: &std::ops::Range<usize>| Some(line_of(text, s.start));
+        macro_rules! required {
+            ($field:ident, $what:expr) => {
+                match &r.$field {
+                    Some(v) => Some(v),
+                    None => {
+                        problems.push(
+                            Some(site_line),
+                            stringify!($field),
+                            format!("missing; expected {}", $what),
+                        );
+                        None
+                    }
+                }
+            };
+        }
+        let name = required!(name, "the site's name");
+        let lat = required!(latitude_deg, "latitude in degrees, north +, -90..90");
+        let lon = required!(
+            longitude_deg,
+            "longitude in degrees, east +, -180..180 (or 0..360 east)"
+        );
+        let tz_text = required!(timezone, "an IANA time zone name such as \"Europe/Madrid\"");
+        let mut ok = name.is_some() && lat.is_some() && lon.is_some() && tz_text.is_some();
+        if let Some(n) = name {
+            let trimmed = n.get_ref().trim().to_string();
+            if trimmed.is_empty() {
+                problems.push(
+                    at(&n.span()),
+                    "name",
+                    "found an empty name; expected text".into(),
+                );
+                ok = false;
+            } else if let Some(prev) = seen.insert(trimmed.to_lowercase(), site_line) {
+                problems.push(
+                    at(&n.span()),
+                    "name",
+                    format!("found {trimmed:?} again (first at line {prev}); expected unique site names"),
+                );
+                ok = false;
+            }
+        }
+        let mut check =
+            |v: Option<&Spanned<f64>>, field: &str, lo: f64, hi: f64, what: &str| -> bool {
+                if let Some(v) = v {
+                    let x = *v.get_ref();
+                    if !x.is_finite() || x < lo || x > hi {
+                        problems.push(at(&v.span()), field, format!("found {x}, expected {what}"));
+                        return false;
+                    }
+                }
+                true
+            };
+        ok &= check(
+            lat,
+            "latitude_deg",
+            -90.0,
+            90.0,
+            "a latitude within -90..90 deg",
+        );
+        ok &= check(
+            lon,
+            "longitude_deg",
+            -180.0,
+            360.0,
+            "a longitude within -180..180 deg (or 0..360 east)",
+        );
+        ok &= check(
+            r.elevation_m.as_ref(),
+            "elevation_m",
+            -500.0,
+            9000.0,
+            "an elevation within -500..9000 m",
+        );
+        ok &= check(
+            r.min_alt_deg.as_ref(),
+            "min_alt_deg",
+            -5.0,
+            89.0,
+            "a lowest altitude within -5..89 deg",
+        );
+        ok &= check(
+            r.max_airmass.as_ref(),
+            "max_airmass",
+            1.0,
+            38.0,
+            "a highest airmass within 1..38",
+        );
+        ok &= check(
+            r.min_moon_sep_deg.as_ref(),
+            "min_moon_sep_deg",
+            0.0,
+            180.0,
+            "a separation within 0..180 deg",
+        );
+        let tz = match tz_text {
+            Some(t) => match t.get_ref().trim().parse::<chrono_tz::Tz>() {
+                Ok(tz) => Some(tz),
+                Err(_) => {
+                    problems.push(
+                        at(&t.span()),
+                        "timezone",
+                        format!(
+                            "found {:?}, expected an IANA time zone name; nearest valid names: {}",
+                            t.get_ref(),
+                            nearest_zone_names(t.get_ref(), 3).join(", ")
+                        ),
+                    );
+                    None
+                }
+            },
+            None => None,
+        };
+        let (darkness_alt_deg, darkness_label) = match &r.darkness {
+            None => (NAUTICAL_TWILIGHT_ALT_DEG, "nautical".to_string()),
+            Some(v) => match parse_darkness(v.get_ref()) {
+                Ok(x) => x,
+                Err(msg) => {
+                    problems.push(at(&v.span()), "darkness", msg);
+                    ok = false;
+                    (0.0, String::new())
+                }
+            },
+        };
+        let hour_angle_limits_h = match &r.hour_angle_limits_h {
+            None => None,
+            Some(v) => match v.get_ref().as_slice() {
+                [a, b] if a.is_finite() && b.is_finite() && -12.0 <= *a && a < b && *b <= 12.0 => {
+                    Some((*a, *b))
+                }
+                other => {
+                    problems.push(
+                        at(&v.span()),
+                        "hour_angle_limits_h",
+                        format!("found {other:?}, expected [east, west] hours with -12 <= east < west <= 12"),
+                    );
+                    ok = false;
+                    None
+                }
+            },
+        };
+        let horizon = match &r.horizon {
+            None => HorizonProfile::default(),
+            Some(v) => {
+                let mut pairs = Vec::new();
+                for p in v.get_ref() {
+                    match p.as_slice() {
+                        [az, alt]
+                            if az.is_finite()
+                                && alt.is_finite()
+                                && (-90.0..=90.0).contains(alt) =>
+                        {
+                            pairs.push((*az, *alt))
+                        }
+                        other => {
+                            problems.push(
+                                at(&v.span()),
+                                "horizon",
+                                format!("found {other:?}, expected [azimuth_deg, altitude_deg] pairs with altitude within -90..90"),
+                            );
+                            ok = false;
+                        }
+                    }
+                }
+                HorizonProfile::new(&pairs)
+            }
+        };
+        if !ok || tz.is_none() {
+            continue;
+        }
+        let (lat, mut lon) = (*lat.unwrap().get_ref(), *lon.unwrap().get_ref());
+        if lon > 180.0 {
+            lon -= 360.0;
+        }
+        let elevation_m = r.elevation_m.as_ref().map(|v| *v.get_ref()).unwrap_or(0.0);
+        let from_alt = r.min_alt_deg.as_ref().map(|v| *v.get_ref());
+        let from_airmass = r
+            .max_airmass
+            .as_ref()
+            .map(|v| alt_deg_for_airmass(*v.get_ref()));
+        let min_alt_deg = match (from_alt, from_airmass) {
+            (Some(a), Some(b)) => a.max(b),
+            (Some(a), None) => a,
+            (None, Some(b)) => b,
+            (None, None) => 30.0,
+        };
+        sites.push(Site {
+            name: name.unwrap().get_ref().trim().to_string(),
+            observer: Observer::from_deg(lat, lon, elevation_m),
+            lat_deg: lat,
+            lon_deg: lon,
+            elevation_m,
+            tz: tz.unwrap(),
+            min_alt_deg,
+            darkness_alt_deg,
+            darkness_label,
+            horizon,
+            hour_angle_limits_h,
+            min_moon_sep_deg: r.min_moon_sep_deg.as_ref().map(|v| *v.get_ref()),
+        });
+    }
+    problems.into_result(file, sites)
+}
+
+fn parse_darkness(v: &toml::Value) -> Result<(f64, String), String> {
+    let expected =
+        "\"civil\", \"nautical\", \"astronomical\" or a Sun altitude in degrees within -30..0";
+    match v {
+        toml::Value::String(s) => match s.trim().to_ascii_lowercase().as_str() {
+            "civil" => Ok((CIVIL_TWILIGHT_ALT_DEG, "civil".into())),
+            "nautical" => Ok((NAUTICAL_TWILIGHT_ALT_DEG, "nautical".into())),
+            "astronomical" => Ok((ASTRONOMICAL_TWILIGHT_ALT_DEG, "astronomical".into())),
+            _ => Err(format!("found {s:?}, expected {expected}")),
+        },
+        toml::Value::Float(x) if x.is_finite() && (-30.0..=0.0).contains(x) => {
+            Ok((*x, format!("{x} deg")))
+        }
+        toml::Value::Integer(i) if (-30..=0).contains(i) => Ok((*i as f64, format!("{i} deg"))),
+        other => Err(format!("found {other}, expected {expected}")),
+    }
+}
+
+/// The `n` IANA zone names closest to `text` by edit distance (case-insensitive).
+pub fn nearest_zone_names(text: &str, n: usize) -> Vec<String> {
+    let needle = text.trim().to_lowercase();
+    let mut scored: Vec<(usize, &str)> = chrono_tz::TZ_VARIANTS
+        .iter()
+        .map(|tz| {
+            let name = tz.name();
+            (edit_distance(&needle, &name.to_lowercase()), name)
+        })
+        .collect();
+    scored.sort();
+    scored
+        .into_iter()
+        .take(n)
+        .map(|(_, s)| s.to_string())
+        .collect()
+}
+
+/// Levenshtein distance (classic dynamic programme).
+fn edit_distance(a: &str, b: &str) -> usize {
+    let b: Vec<char> = b.chars().collect();
+    let mut prev: Vec<usize> = (0..=b.len()).collect();
+    for (i, ca) in a.chars().enumerate() {
+        let mut cur = vec![i + 1; b.len() + 1];
+        for (j, cb) in b.iter().enumerate() {
+            cur[j + 1] = (prev[j] + usize::from(ca != *cb))
+                .min(prev[j + 1] + 1)
+                .min(cur[j] + 1);
+        }
+        prev = cur;
+    }
+    prev[b.len()]
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    const GOOD: &str = r#"
+[[site]]
+name = "Test Hill"
+latitude_deg = 40.5
+longitude_deg = 350.0
+elevation_m = 1200
+timezone = "Europe/Madrid"
+max_airmass = 2.0
+darkness = "astronomical"
+horizon = [[0, 10], [180, 20]]
+"#;
+
+    #[test]
+    fn parses_a_site() {
+        let s = &parse_sites("s.toml", GOOD).unwrap()[0];
+        assert_eq!(s.lon_deg, -10.0);
+        assert_eq!(s.darkness_alt_deg, -18.0);
+        assert!((s.min_alt_deg - 29.9).abs() < 0.2, "{}", s.min_alt_deg);
+        assert!((s.horizon.min_alt_deg(90.0) - 15.0).abs() < 1e-9);
+    }
+
+    #[test]
+    fn collects_every_problem_with_lines() {
+        let bad = GOOD
+            .replace("40.5", "95.0")
+            .replace("Europe/Madrid", "Europe/Madird")
+            .replace("\"astronomical\"", "\"darkish\"");
+        let err = parse_sites("s.toml", &bad).unwrap_err();
+        let msg = err.to_string();
+        assert_eq!(err.problems.len(), 3, "{msg}");
+        assert!(
+            msg.contains("s.toml:4: latitude_deg: found 95, expected a latitude within -90..90"),
+            "{msg}"
+        );
+        assert!(msg.contains("Europe/Madrid"), "suggestion missing: {msg}");
+        assert!(msg.contains("s.toml:9: darkness"), "{msg}");
+    }
+}

@@ -1,0 +1,486 @@
+//! Targets file (CSV): one row per transiting planet or candidate. Columns are documented in the README.
+//!
+//! Header names are matched case-insensitively after trimming. A catalogue export whose columns are named
+//! differently is read through a [`ColumnMap`] (our name -> their header) without editing the file.
+//! The delimiter is detected from the header line (comma, semicolon or tab); a byte-order mark and CRLF line
+//! ends are accepted; lines starting with `#` are comments.
+
+use super::angles::{parse_dec_deg, parse_ra_deg};
+use super::{parse_finite, InputError, Problems};
+use crate::astro::barycentric::TimeSystem;
+use crate::ephemeris::Ephemeris;
+use std::collections::HashMap;
+
+/// A resolved target.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Target {
+    /// Name, unique within the file.
+    pub name: String,
+    /// Right ascension, ICRS/J2000, deg 0..360.
+    pub ra_deg: f64,
+    /// Declination, ICRS/J2000, deg.
+    pub dec_deg: f64,
+    /// Transit ephemeris.
+    pub ephemeris: Ephemeris,
+    /// Total transit duration T14 (first to fourth contact), hours.
+    pub t14_hours: f64,
+    /// Transit depth, parts per thousand, if given.
+    pub depth_ppt: Option<f64>,
+    /// Magnitude in the observer's band, if given.
+    pub mag: Option<f64>,
+    /// Priority, larger is more important (default 1).
+    pub priority: f64,
+    /// Free-text notes.
+    pub notes: String,
+}
+
+/// One column dipwatch reads: its canonical name, whether it is required, and what it holds.
+pub struct ColumnSpec {
+    /// Canonical header name.
+    pub name: &'static str,
+    /// Whether the column must be present.
+    pub required: bool,
+    /// What the column holds (used in messages and the README).
+    pub meaning: &'static str,
+}
+
+/// Every column dipwatch reads from a targets file.
+pub const COLUMNS: &[ColumnSpec] = &[
+    ColumnSpec {
+        name: "name",
+        required: true,
+        meaning: "target name, unique",
+    },
+    ColumnSpec {
+        name: "ra",
+        required: true,
+        meaning: "right ascension, ICRS: hh:mm:ss.s or decimal degrees",
+    },
+    ColumnSpec {
+        name: "dec",
+        required: true,
+        meaning: "declination, ICRS: +dd:mm:ss.s or decimal degrees",
+    },
+    ColumnSpec {
+        name: "t0",
+        required: true,
+        meaning: "reference mid-transit time, full Julian Date in time_system",
+    },
+    ColumnSpec {
+        name: "t0_sigma_days",
+        required: true,
+        meaning: "1-sigma error of t0, days",
+    },
+    ColumnSpec {
+        name: "period_days",
+        required: true,
+        meaning: "orbital period, days",
+    },
+    ColumnSpec {
+        name: "period_sigma_days",
+        required: true,
+        meaning: "1-sigma error of the period, days",
+    },
+    ColumnSpec {
+        name: "t0_period_cov_days2",
+        required: false,
+        meaning: "covariance of t0 and period, days^2 (default 0)",
+    },
+    ColumnSpec {
+        name: "t14_hours",
+        required: true,
+        meaning: "total transit duration, first to fourth contact, hours",
+    },
+    ColumnSpec {
+        name: "depth_ppt",
+        required: false,
+        meaning: "transit depth, parts per thousand",
+    },
+    ColumnSpec {
+        name: "time_system",
+        required: false,
+        meaning: "BJD_TDB (default), HJD_UTC or JD_UTC",
+    },
+    ColumnSpec {
+        name: "mag",
+        required: false,
+        meaning: "magnitude",
+    },
+    ColumnSpec {
+        name: "priority",
+        required: false,
+        meaning: "priority, larger is more important (default 1)",
+    },
+    ColumnSpec {
+        name: "notes",
+        required: false,
+        meaning: "free text",
+    },
+];
+
+/// Our column name -> the header used in the user's file.
+#[derive(Debug, Clone, Default, PartialEq)]
+pub struct ColumnMap(pub HashMap<String, String>);
+
+impl ColumnMap {
+    /// Parse `ours=theirs,ours=theirs` (as given to `--columns`).
+    pub fn parse(spec: &str) -> Result<ColumnMap, String> {
+        let mut map = HashMap::new();
+        for part in spec.split(',').map(str::trim).filter(|p| !p.is_empty()) {
+            let Some((ours, theirs)) = part.split_once('=') else {
+                return Err(format!(
+                    "found {part:?}, expected ours=theirs (for example period_days=pl_orbper)"
+                ));
+            };
+            let ours = ours.trim().to_ascii_lowercase();
+            if !COLUMNS.iter().any(|c| c.name == ours) {
+                let names: Vec<&str> = COLUMNS.iter().map(|c| c.name).collect();
+                return Err(format!(
+                    "found column name {ours:?}, expected one of {}",
+                    names.join(", ")
+                ));
+            }
+            map.insert(ours, theirs.trim().to_string());
+        }
+        Ok(ColumnMap(map))
+    }
+}
+
+/// Earliest accepted T0: JD 2 400 000 (1858). Smaller values are taken to be reduced dates.
+const MIN_FULL_JD: f64 = 2_400_000.0;
+/// Latest accepted T0: JD 2 600 000 (2406).
+const MAX_FULL_JD: f64 = 2_600_000.0;
+
+/// Detect the delimiter from the first non-comment line: the most frequent of comma, semicolon and tab.
+fn detect_delimiter(text: &str) -> u8 {
+    let header = text
+        .lines()
+        .find(|l| !l.trim_start().starts_with('#') && !l.trim().is_empty())
+        .unwrap_or("");
+    let count = |c: char| header.matches(c).count();
+    let (comma, semi, tab) = (count(','), count(';'), count('\t'));
+    if tab > comma && tab >= semi {
+        b'\t'
+    } else if semi > comma {
+        b';'
+    } else {
+        b','
+    }
+}
+
+/// Parse and validate a targets file.
+///
+/// Given: `file` label for messages, `text` the file's content, `map` column renames. Returns targets in
+/// file order, or every problem found (up to the cap).
+pub fn parse_targets(file: &str, text: &str, map: &ColumnMap) -> Result<Vec<Target>, InputError> {
+    let text = text.strip_prefix('\u{feff}').unwrap_or(text);
+    if text
+        .lines()
+        .all(|l| l.trim().is_empty() || l.trim_start().starts_with('#'))
+    {
+        return Err(InputError::single(
+            file,
+            None,
+            None,
+            "the file is empty; expected a header line and one row per target (see targets.example.csv)".into(),
+        ));
+    }
+    let mut reader = csv::ReaderBuilder::new()
+        .delimiter(detect_delimiter(text))
+        .comment(Some(b'#'))
+        .flexible(true)
+        .from_reader(text.as_bytes());
+    let headers = match reader.headers() {
+        Ok(h) => h.clone(),
+        Err(e) => {
+            return Err(InputError::single(
+                file,
+                Some(1),
+                None,
+                format!("unreadable header: {e}"),
+            ))
+        }
+    };
+    let header_line = reader.position().line().max(1) as usize;
+    let lowered: Vec<String> = headers.iter().map(|h| h.trim().to_lowercase()).collect();
+    let mut index = HashMap::new();
+    let mut problems = Problems::default();
+    for spec in COLUMNS {
+        let wanted = map
+            .0
+            .get(spec.name)
+            .map(|s| s.trim().to_lowercase())
+            .unwrap_or_else(|| spec.name.to_string());
+        match lowered.iter().position(|h| *h == wanted) {
+            Some(i) => {
+                index.insert(spec.name, i);
+            }
+            None if spec.required => problems.push(
+                Some(header_line),
+                spec.name,
+                format!(
+                    "column {wanted:?} not found in the header (found: {}); expected {} (map a differently named column with --columns {}=THEIRS)",
+                    lowered.join(", "),
+                    spec.meaning,
+                    spec.name
+                ),
+            ),
+            None => {}
+        }
+    }
+    if !problems.list_is_empty() {
+        return problems.into_result(file, Vec::new());
+    }
+    let mut targets = Vec::new();
+    let mut seen: HashMap<String, usize> = HashMap::new();
+    for record in reader.records() {
+        let record = match record {
+            Ok(r) => r,
+            Err(e) => {
+                let line = e.position().map(|p| p.line() as usize);
+                problems.push(line, "", format!("unreadable CSV row: {e}"));
+                continue;
+            }
+        };
+        let line = record.position().map(|p| p.line() as usize);
+        if record.iter().all(|f| f.trim().is_empty()) {
+            continue;
+        }
+        let cell = |name: &str| {
+            index
+                .get(name)
+                .and_then(|&i| record.get(i))
+                .map(str::trim)
+                .unwrap_or("")
+        };
+        let mut ok = true;
+        let mut num = |name: &str,
+                       expected: &str,
+                       lo: f64,
+                       hi: f64,
+                       problems: &mut Problems|
+         -> Option<f64> {
+            let raw = cell(name);
+            match parse_finite(raw, expected) {
+                Ok(v) if v >= lo && v <= hi => Some(v),
+                Ok(v) => {
+                    problems.push(line, name, format!("found {v}, expected {expected}"));
+                    ok = false;
+                    None
+                }
+                Err(msg) => {
+                    problems.push(line, name, msg);
+                    ok = false;
+                    None
+                }
+            }
+        };
+        let name = cell("name").to_string();
+        let t0 = num("t0", "a full Julian Date between 2400000 and 2600000 (reduced dates such as BJD-2457000 need the offset added)", MIN_FULL_JD, MAX_FULL_JD, &mut problems);
+        let t0_sigma = num(
+            "t0_sigma_days",
+            "a 1-sigma error in days, >= 0",
+            0.0,
+            1e3,
+            &mut problems,
+        );
+        let period = num(
+            "period_days",
+            "a period in days, > 0",
+            1e-6,
+            1e6,
+            &mut problems,
+        );
+        let period_sigma = num(
+            "period_sigma_days",
+            "a 1-sigma error in days, >= 0",
+            0.0,
+            1e3,
+            &mut problems,
+        );
+        let t14 = num(
+            "t14_hours",
+            "a duration in hours, > 0",
+            1e-6,
+            1e6,
+            &mut problems,
+        );
+        let mut optional =
+            |col: &str, expected: &str, lo: f64, hi: f64, problems: &mut Problems| -> Option<f64> {
+                if cell(col).is_empty() {
+                    None
+                } else {
+                    num(col, expected, lo, hi, problems)
+                }
+            };
+        let cov = optional(
+            "t0_period_cov_days2",
+            "a covariance in days^2",
+            -1e6,
+            1e6,
+            &mut problems,
+        );
+        let depth = optional(
+            "depth_ppt",
+            "a depth in parts per thousand within 0..1000",
+            0.0,
+            1000.0,
+            &mut problems,
+        );
+        let mag = optional(
+            "mag",
+            "a magnitude within -30..40",
+            -30.0,
+            40.0,
+            &mut problems,
+        );
+        let priority = optional(
+            "priority",
+            "a priority, a number >= 0",
+            0.0,
+            1e9,
+            &mut problems,
+        );
+        if name.is_empty() {
+            problems.push(line, "name", "found an empty name; expected text".into());
+            ok = false;
+        } else if let Some(prev) = seen.insert(name.to_lowercase(), line.unwrap_or(0)) {
+            problems.push(
+                line,
+                "name",
+                format!(
+                    "found {name:?} again (first at line {prev}); expected unique target names"
+                ),
+            );
+            ok = false;
+        }
+        let ra = parse_ra_deg(cell("ra"))
+            .map_err(|m| problems.push(line, "ra", m))
+            .ok();
+        let dec = parse_dec_deg(cell("dec"))
+            .map_err(|m| problems.push(line, "dec", m))
+            .ok();
+        let system = match TimeSystem::parse(cell("time_system")) {
+            Some(s) => Some(s),
+            None => {
+                problems.push(
+                    line,
+                    "time_system",
+                    format!(
+                        "found {:?}, expected BJD_TDB, HJD_UTC or JD_UTC",
+                        cell("time_system")
+                    ),
+                );
+                None
+            }
+        };
+        if let (Some(p), Some(d)) = (period, t14) {
+            if d / 24.0 >= p {
+                problems.push(
+                    line,
+                    "t14_hours",
+                    format!(
+                        "found {d} h, expected a duration shorter than the period ({:.3} h)",
+                        p * 24.0
+                    ),
+                );
+                ok = false;
+            }
+        }
+        let (
+            Some(ra),
+            Some(dec),
+            Some(system),
+            Some(t0),
+            Some(t0_sigma),
+            Some(period),
+            Some(period_sigma),
+            Some(t14),
+            true,
+        ) = (ra, dec, system, t0, t0_sigma, period, period_sigma, t14, ok)
+        else {
+            continue;
+        };
+        targets.push(Target {
+            name,
+            ra_deg: ra,
+            dec_deg: dec,
+            ephemeris: Ephemeris {
+                t0,
+                t0_sigma_days: t0_sigma,
+                period_days: period,
+                period_sigma_days: period_sigma,
+                cov_t0_period_days2: cov.unwrap_or(0.0),
+                system,
+            },
+            t14_hours: t14,
+            depth_ppt: depth,
+            mag,
+            priority: priority.unwrap_or(1.0),
+            notes: cell("notes").to_string(),
+        });
+    }
+    if targets.is_empty() && problems.list_is_empty() {
+        problems.push(
+            None,
+            "",
+            "found a header but no target rows; expected one row per target".into(),
+        );
+    }
+    problems.into_result(file, targets)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    const HEADER: &str =
+        "Name,RA,Dec,T0,T0_sigma_days,Period_days,Period_sigma_days,T14_hours,Depth_ppt\n";
+
+    #[test]
+    fn parses_rows_case_insensitively() {
+        let text = format!("{HEADER}Alpha,10:00:00,-20:30:00,2460000.5,0.001,3.5,0.00001,2.5,8\n");
+        let t = &parse_targets("t.csv", &text, &ColumnMap::default()).unwrap()[0];
+        assert_eq!(t.ra_deg, 150.0);
+        assert_eq!(t.dec_deg, -20.5);
+        assert_eq!(t.ephemeris.system, TimeSystem::BjdTdb);
+        assert_eq!(t.priority, 1.0);
+    }
+
+    #[test]
+    fn semicolons_bom_and_crlf() {
+        let text = format!(
+            "\u{feff}{}Alpha;150;-20.5;2460000.5;0.001;3.5;0.00001;2.5;8\r\n",
+            HEADER.replace(',', ";").replace('\n', "\r\n")
+        );
+        assert_eq!(
+            parse_targets("t.csv", &text, &ColumnMap::default())
+                .unwrap()
+                .len(),
+            1
+        );
+    }
+
+    #[test]
+    fn column_map_renames() {
+        let text =
+            "pl_name,ra,dec,tmid,tmid_err,per,per_err,dur\nB,1,2,2460000.5,0.001,3.5,0.00001,2\n";
+        let map = ColumnMap::parse("name=pl_name,t0=tmid,t0_sigma_days=tmid_err,period_days=per,period_sigma_days=per_err,t14_hours=dur").unwrap();
+        assert_eq!(parse_targets("t.csv", text, &map).unwrap()[0].name, "B");
+        assert!(ColumnMap::parse("periodd=x").is_err());
+    }
+
+    #[test]
+    fn every_bad_row_is_reported_with_line_and_field() {
+        let text = format!(
+            "{HEADER}A,25:00:00,0,2460000.5,0.001,3.5,0.00001,2.5,8\nB,10,0,2460000.5,-1,3.5,0.00001,2.5,8\nA,10,0,60000.5,0.001,3.5,0.00001,99,8\n"
+        );
+        let err = parse_targets("t.csv", &text, &ColumnMap::default()).unwrap_err();
+        let msg = err.to_string();
+        assert!(msg.contains("t.csv:2: ra: found \"25:00:00\""), "{msg}");
+        assert!(msg.contains("t.csv:3: t0_sigma_days: found -1"), "{msg}");
+        assert!(msg.contains("t.csv:4: t0: found 60000.5"), "{msg}");
+        assert!(msg.contains("t.csv:4: t14_hours"), "{msg}");
+        assert!(msg.contains("t.csv:4: name: found \"A\" again"), "{msg}");
+    }
+}
