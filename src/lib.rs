@@ -8,3 +8,6 @@ pub mod astro;
 pub mod constants;
 pub mod ephemeris;
 pub mod inputs;
+pub mod civil;
+pub mod plan;
+pub mod report;

@@ -1,0 +1,264 @@
+//! The edge of the program: arguments, files, the clock and the terminal. Everything else is in the library.
+
+use anyhow::{bail, Context, Result};
+use chrono::{Duration, NaiveDate};
+use clap::{Args, Parser, Subcommand, ValueEnum};
+use dipwatch::inputs::sites::{parse_sites, Site};
+use dipwatch::inputs::targets::{parse_targets, ColumnMap, Target};
+use dipwatch::inputs::InputError;
+use dipwatch::plan::{plan, PlanOptions};
+use dipwatch::report;
+use std::io::Write;
+use std::path::{Path, PathBuf};
+
+#[derive(Parser, Debug)]
+#[command(name = "dipwatch", version, about = "Plan ground-based follow-up of transiting exoplanets")]
+struct Cli {
+    #[command(subcommand)]
+    command: Command,
+}
+
+#[derive(Subcommand, Debug)]
+enum Command {
+    /// List the observable full and partial transits per site and night over a date range.
+    Plan(PlanArgs),
+}
+
+/// Where the sites and targets come from, and which of them to use.
+#[derive(Args, Debug)]
+struct InputArgs {
+    /// Sites file (TOML). Default: ./sites.toml
+    #[arg(long, value_name = "FILE")]
+    sites: Option<PathBuf>,
+    /// Targets file (CSV). Default: ./targets.csv
+    #[arg(long, value_name = "FILE")]
+    targets: Option<PathBuf>,
+    /// Read differently named target columns: ours=theirs,... (e.g. period_days=pl_orbper,t0=pl_tranmid)
+    #[arg(long, value_name = "MAP")]
+    columns: Option<String>,
+    /// Only this site (repeatable; case-insensitive)
+    #[arg(long = "site", value_name = "NAME")]
+    site_names: Vec<String>,
+    /// Only this target (repeatable; case-insensitive)
+    #[arg(long = "target", value_name = "NAME")]
+    target_names: Vec<String>,
+}
+
+/// A range of "night of" dates.
+#[derive(Args, Debug)]
+struct RangeArgs {
+    /// First night (local date on which it begins), YYYY-MM-DD. Default: today
+    #[arg(long, value_name = "DATE")]
+    from: Option<NaiveDate>,
+    /// Last night, inclusive, YYYY-MM-DD
+    #[arg(long, value_name = "DATE", conflicts_with = "days")]
+    to: Option<NaiveDate>,
+    /// Number of nights (default 30)
+    #[arg(long, value_name = "N")]
+    days: Option<u32>,
+}
+
+#[derive(Copy, Clone, Debug, PartialEq, Eq, ValueEnum)]
+enum Format {
+    Table,
+    Csv,
+    Json,
+}
+
+#[derive(Args, Debug)]
+struct PlanArgs {
+    #[command(flatten)]
+    input: InputArgs,
+    #[command(flatten)]
+    range: RangeArgs,
+    /// Smallest in-transit coverage (0-1) to list an event
+    #[arg(long, value_name = "F", default_value_t = 0.0)]
+    min_coverage: f64,
+    /// Timing margin around ingress and egress, in units of the epoch's sigma
+    #[arg(long, value_name = "K", default_value_t = 1.0)]
+    sigma: f64,
+    /// Out-of-transit baseline wanted before ingress, minutes
+    #[arg(long, value_name = "MIN", default_value_t = 30.0)]
+    baseline_before: f64,
+    /// Out-of-transit baseline wanted after egress, minutes
+    #[arg(long, value_name = "MIN", default_value_t = 30.0)]
+    baseline_after: f64,
+    /// Output format
+    #[arg(long, value_enum, default_value_t = Format::Table)]
+    format: Format,
+    /// Show UTC instead of site local time in the table
+    #[arg(long)]
+    utc: bool,
+    /// Also list transits that cannot be observed, with the reasons
+    #[arg(long)]
+    include_unobservable: bool,
+    /// Write to this file (atomically) instead of standard output
+    #[arg(long, value_name = "FILE")]
+    out: Option<PathBuf>,
+}
+
+/// Render an error chain for the user: input errors list every problem; others show their causes.
+pub fn describe(e: &anyhow::Error) -> String {
+    if let Some(input) = e.downcast_ref::<InputError>() {
+        return input.to_string().replace('\n', "\ndipwatch: ");
+    }
+    let mut s = e.to_string();
+    for cause in e.chain().skip(1) {
+        s.push_str(&format!(": {cause}"));
+    }
+    s
+}
+
+pub fn run() -> Result<()> {
+    let cli = match Cli::try_parse() {
+        Ok(c) => c,
+        Err(e) => {
+            let code = if e.use_stderr() { 2 } else { 0 };
+            let _ = e.print();
+            std::process::exit(code);
+        }
+    };
+    match cli.command {
+        Command::Plan(args) => run_plan(args),
+    }
+}
+
+fn read_input(given: &Option<PathBuf>, default: &str, example: &str, what: &str) -> Result<(String, String)> {
+    let path = match given {
+        Some(p) => p.clone(),
+        None => {
+            let p = PathBuf::from(default);
+            if !p.exists() {
+                bail!(
+                    "no {what} file given and ./{default} not found; pass --{} FILE (the repository's {example} is a starting point)",
+                    what
+                );
+            }
+            p
+        }
+    };
+    let label = path.display().to_string();
+    let bytes = std::fs::read(&path).with_context(|| format!("cannot read {what} file {label}"))?;
+    let text = String::from_utf8(bytes).map_err(|e| {
+        anyhow::anyhow!("{label}: not UTF-8 text (invalid byte at offset {}); expected a UTF-8 {what} file", e.utf8_error().valid_up_to())
+    })?;
+    Ok((label, text))
+}
+
+/// Load, parse and select sites and targets.
+fn load(input: &InputArgs) -> Result<(Vec<Site>, Vec<Target>)> {
+    let (sites_label, sites_text) = read_input(&input.sites, "sites.toml", "sites.example.toml", "sites")?;
+    let (targets_label, targets_text) = read_input(&input.targets, "targets.csv", "targets.example.csv", "targets")?;
+    let map = match &input.columns {
+        Some(spec) => ColumnMap::parse(spec).map_err(|m| anyhow::anyhow!("--columns: {m}"))?,
+        None => ColumnMap::default(),
+    };
+    let sites = parse_sites(&sites_label, &sites_text)?;
+    let targets = parse_targets(&targets_label, &targets_text, &map)?;
+    let sites = select(sites, &input.site_names, |s| &s.name, "site", &sites_label)?;
+    let targets = select(targets, &input.target_names, |t| &t.name, "target", &targets_label)?;
+    Ok((sites, targets))
+}
+
+fn select<T>(items: Vec<T>, wanted: &[String], name: impl Fn(&T) -> &String, what: &str, file: &str) -> Result<Vec<T>> {
+    if wanted.is_empty() {
+        return Ok(items);
+    }
+    for w in wanted {
+        if !items.iter().any(|i| name(i).eq_ignore_ascii_case(w.trim())) {
+            let known: Vec<&str> = items.iter().map(|i| name(i).as_str()).collect();
+            bail!("--{what} {w:?}: no {what} of that name in {file}; expected one of: {}", known.join(", "));
+        }
+    }
+    Ok(items.into_iter().filter(|i| wanted.iter().any(|w| name(i).eq_ignore_ascii_case(w.trim()))).collect())
+}
+
+/// Resolve the night range: default from today (system clock, local date), 30 nights.
+fn resolve_range(r: &RangeArgs) -> Result<(NaiveDate, NaiveDate)> {
+    let from = r.from.unwrap_or_else(|| chrono::Local::now().date_naive());
+    let to = match (r.to, r.days) {
+        (Some(to), _) => to,
+        (None, Some(0)) => bail!("--days: found 0, expected at least 1 night"),
+        (None, Some(n)) => from + Duration::days(i64::from(n) - 1),
+        (None, None) => from + Duration::days(29),
+    };
+    if to < from {
+        bail!("--to {to} is before --from {from}; expected a last night on or after the first");
+    }
+    let min = NaiveDate::from_ymd_opt(1972, 1, 1).expect("valid date");
+    let max = NaiveDate::from_ymd_opt(2200, 1, 1).expect("valid date");
+    if from < min || to > max {
+        bail!("nights {from} to {to}: expected dates within 1972-01-01..2200-01-01 (the leap-second table starts in 1972)");
+    }
+    if (to - from).num_days() > 366 * 20 {
+        bail!("nights {from} to {to}: expected a range of at most 20 years");
+    }
+    Ok((from, to))
+}
+
+fn check_finite(name: &str, v: f64, lo: f64, hi: f64) -> Result<()> {
+    if !v.is_finite() || v < lo || v > hi {
+        bail!("--{name}: found {v}, expected a number within {lo}..{hi}");
+    }
+    Ok(())
+}
+
+fn run_plan(args: PlanArgs) -> Result<()> {
+    check_finite("min-coverage", args.min_coverage, 0.0, 1.0)?;
+    check_finite("sigma", args.sigma, 0.0, 10.0)?;
+    check_finite("baseline-before", args.baseline_before, 0.0, 720.0)?;
+    check_finite("baseline-after", args.baseline_after, 0.0, 720.0)?;
+    let (first_night, last_night) = resolve_range(&args.range)?;
+    let (sites, targets) = load(&args.input)?;
+    let opts = PlanOptions {
+        first_night,
+        last_night,
+        sigma_k: args.sigma,
+        baseline_before_min: args.baseline_before,
+        baseline_after_min: args.baseline_after,
+        min_coverage: args.min_coverage,
+        include_unobservable: args.include_unobservable,
+    };
+    let result = plan(&sites, &targets, &opts);
+    let text = match args.format {
+        Format::Table => report::plan_table(&result, &sites, &targets, &opts, args.utc),
+        Format::Csv => report::plan_csv(&result, &sites, &targets),
+        Format::Json => report::plan_json(&result, &sites, &targets, &opts),
+    };
+    emit(&text, args.out.as_deref())
+}
+
+/// Print to stdout, or write the file atomically (temporary file in the same folder, then rename).
+fn emit(text: &str, out: Option<&Path>) -> Result<()> {
+    match out {
+        None => {
+            let mut stdout = std::io::stdout().lock();
+            match stdout.write_all(text.as_bytes()) {
+                Err(e) if e.kind() == std::io::ErrorKind::BrokenPipe => Ok(()),
+                other => other.context("cannot write to standard output"),
+            }
+        }
+        Some(path) => write_atomically(path, text.as_bytes()),
+    }
+}
+
+/// Write `bytes` to `path` so that readers see either the old file or the whole new one, never a part.
+pub fn write_atomically(path: &Path, bytes: &[u8]) -> Result<()> {
+    let dir = match path.parent() {
+        Some(d) if !d.as_os_str().is_empty() => d.to_path_buf(),
+        _ => PathBuf::from("."),
+    };
+    let name = path.file_name().map(|n| n.to_string_lossy().to_string()).unwrap_or_else(|| "out".into());
+    let tmp = dir.join(format!(".{name}.{}.tmp", std::process::id()));
+    let result = (|| -> std::io::Result<()> {
+        let mut f = std::fs::File::create(&tmp)?;
+        f.write_all(bytes)?;
+        f.sync_all()?;
+        std::fs::rename(&tmp, path)
+    })();
+    if let Err(e) = result {
+        let _ = std::fs::remove_file(&tmp);
+        return Err(e).with_context(|| format!("cannot write {}", path.display()));
+    }
+    Ok(())
+}

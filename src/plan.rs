@@ -1,0 +1,546 @@
+//! The planner: for each site, night and transit, the observing block, what part of it can be used, and a
+//! verdict with its reasons.
+//!
+//! For one event the block is [ingress - k sigma - baseline_before, egress + k sigma + baseline_after]. Inside
+//! it, each constraint (darkness, altitude limit, horizon profile, hour-angle limits, Moon separation) gives
+//! the sub-intervals where it holds, found by root finding ([`crate::astro::crossings`]); their intersection is
+//! the usable time. The verdict comes from the usable run that overlaps the transit most.
+
+use crate::astro::atmosphere::airmass_kasten_young;
+use crate::astro::barycentric::EarthTable;
+use crate::astro::crossings::{intervals_where_nonnegative, sun_crossings, Interval, SunCrossing, DEFAULT_STEP_DAYS};
+use crate::astro::frames::{alt_az_from_hadec, gmst_rad, separation_rad, unit_from_radec, wrap_pi, EarthOrientation, Vec3};
+use crate::astro::sky::{moon_apparent, sun_moon_at, topocentric};
+use crate::astro::time::{jd_tdb_from_utc, JdUtc};
+use crate::civil::{local_noon_jd, night_of};
+use crate::inputs::sites::Site;
+use crate::inputs::targets::Target;
+use chrono::NaiveDate;
+use std::f64::consts::TAU;
+
+/// Ratio of sidereal to solar time rate (IERS Conventions 2010, ERA rate 1.002 737 811 911 354 48).
+const SIDEREAL_RATE: f64 = 1.002_737_811_911_354_5;
+/// Slack when comparing interval edges: 1 s in days.
+const EDGE_SLACK_DAYS: f64 = 1.0 / 86_400.0;
+/// An ephemeris whose timing sigma exceeds this fraction of the period no longer tells which transit is which.
+pub const LOST_SIGMA_FRACTION_OF_PERIOD: f64 = 0.125;
+
+/// Options of a planning run.
+#[derive(Debug, Clone, PartialEq, serde::Serialize)]
+pub struct PlanOptions {
+    /// First "night of" date, inclusive.
+    pub first_night: NaiveDate,
+    /// Last "night of" date, inclusive.
+    pub last_night: NaiveDate,
+    /// Timing margin in units of the epoch's sigma added before ingress and after egress (k).
+    pub sigma_k: f64,
+    /// Out-of-transit baseline wanted before the (margin-widened) ingress, minutes.
+    pub baseline_before_min: f64,
+    /// Out-of-transit baseline wanted after the (margin-widened) egress, minutes.
+    pub baseline_after_min: f64,
+    /// Smallest in-transit coverage (0-1) for an event to count as observable.
+    pub min_coverage: f64,
+    /// Also list events that cannot be observed, with their reasons.
+    pub include_unobservable: bool,
+}
+
+/// What part of a transit can be observed.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, PartialOrd, Ord, Hash, serde::Serialize)]
+#[serde(rename_all = "kebab-case")]
+pub enum Verdict {
+    /// Ingress, egress (with their timing margins) and both baselines in usable time.
+    Whole,
+    /// The whole transit with margins, but less baseline than asked for on at least one side.
+    WholeShortBaseline,
+    /// Ingress with its margin, but not the egress.
+    IngressOnly,
+    /// Egress with its margin, but not the ingress.
+    EgressOnly,
+    /// Some in-transit time, but neither contact.
+    MiddleOnly,
+    /// No usable in-transit time.
+    NotObservable,
+}
+
+impl Verdict {
+    /// The verdict as written in every output.
+    pub fn label(self) -> &'static str {
+        match self {
+            Verdict::Whole => "whole",
+            Verdict::WholeShortBaseline => "whole-short-baseline",
+            Verdict::IngressOnly => "ingress-only",
+            Verdict::EgressOnly => "egress-only",
+            Verdict::MiddleOnly => "middle-only",
+            Verdict::NotObservable => "not-observable",
+        }
+    }
+}
+
+/// Why (part of) a block cannot be used. Machine-readable in every output.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, PartialOrd, Ord, Hash, serde::Serialize)]
+#[serde(rename_all = "kebab-case")]
+pub enum Reason {
+    /// The Sun is above the site's darkness level for part of the block.
+    Daylight,
+    /// The target is below the site's lowest usable altitude (or highest airmass).
+    BelowAltitudeLimit,
+    /// The target is behind the site's horizon profile.
+    BelowHorizonProfile,
+    /// The target is outside the site's hour-angle limits.
+    HourAngleLimit,
+    /// The target is closer to the Moon than the site allows.
+    MoonTooClose,
+    /// Some transit is usable, but less than the requested minimum coverage.
+    CoverageBelowMinimum,
+    /// The timing sigma exceeds 1/8 of the period: the ephemeris is lost.
+    EphemerisLost,
+}
+
+impl Reason {
+    /// The reason as written in every output.
+    pub fn label(self) -> &'static str {
+        match self {
+            Reason::Daylight => "daylight",
+            Reason::BelowAltitudeLimit => "below-altitude-limit",
+            Reason::BelowHorizonProfile => "below-horizon-profile",
+            Reason::HourAngleLimit => "hour-angle-limit",
+            Reason::MoonTooClose => "moon-too-close",
+            Reason::CoverageBelowMinimum => "coverage-below-minimum",
+            Reason::EphemerisLost => "ephemeris-lost",
+        }
+    }
+}
+
+/// One night at one site.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Night {
+    /// Local date on which the night begins.
+    pub night_of: NaiveDate,
+    /// Local noon to the next local noon, UTC JD.
+    pub window: Interval,
+    /// Time with the Sun below the site's darkness level, UTC JD; `None` if the Sun stays above it.
+    pub dark: Option<Interval>,
+}
+
+/// One transit at one site, with its geometry and verdict. Times are UTC Julian Dates.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Event {
+    /// Index of the target in the input list.
+    pub target_index: usize,
+    /// Index of the site in the input list.
+    pub site_index: usize,
+    /// Epoch number n since T0.
+    pub epoch: i64,
+    /// Verdict.
+    pub verdict: Verdict,
+    /// Whether the event meets the run's criteria (verdict, minimum coverage, ephemeris not lost).
+    pub observable: bool,
+    /// Fraction of [ingress, egress] inside the chosen usable run, 0-1.
+    pub coverage: f64,
+    /// Predicted mid-transit, ingress and egress, UTC JD.
+    pub mid_utc: f64,
+    /// Ingress (first contact), UTC JD.
+    pub ingress_utc: f64,
+    /// Egress (fourth contact), UTC JD.
+    pub egress_utc: f64,
+    /// Block start, UTC JD.
+    pub block_start_utc: f64,
+    /// Block end, UTC JD.
+    pub block_end_utc: f64,
+    /// The usable run chosen for the verdict, UTC JD, if any.
+    pub usable: Option<Interval>,
+    /// Timing 1-sigma, minutes.
+    pub sigma_min: f64,
+    /// Usable out-of-transit baseline before ingress - k sigma, minutes.
+    pub baseline_before_min: f64,
+    /// Usable out-of-transit baseline after egress + k sigma, minutes.
+    pub baseline_after_min: f64,
+    /// Night the event belongs to.
+    pub night_of: NaiveDate,
+    /// Dark interval of that night, if any.
+    pub night_dark: Option<Interval>,
+    /// Geometric altitude of the target at ingress, mid-transit and egress, deg.
+    pub alt_ingress_deg: f64,
+    /// Altitude at mid-transit, deg.
+    pub alt_mid_deg: f64,
+    /// Altitude at egress, deg.
+    pub alt_egress_deg: f64,
+    /// Kasten-Young airmass at ingress, mid-transit and egress (infinite below -6 deg).
+    pub airmass_ingress: f64,
+    /// Airmass at mid-transit.
+    pub airmass_mid: f64,
+    /// Airmass at egress.
+    pub airmass_egress: f64,
+    /// Azimuth at mid-transit, deg, north 0, east 90.
+    pub az_mid_deg: f64,
+    /// Sun altitude at mid-transit, deg.
+    pub sun_alt_mid_deg: f64,
+    /// Moon altitude at mid-transit, deg (topocentric).
+    pub moon_alt_mid_deg: f64,
+    /// Target-Moon separation at mid-transit, deg (topocentric Moon).
+    pub moon_sep_deg: f64,
+    /// Moon illuminated fraction, 0-1.
+    pub moon_illum: f64,
+    /// Upper meridian crossing inside the block, UTC JD (a flip for German equatorial mounts).
+    pub meridian_utc: Option<f64>,
+    /// Why (part of) the block is unusable.
+    pub reasons: Vec<Reason>,
+}
+
+/// Targets whose ephemeris is lost over the run, with the timing sigma at the first epoch in range.
+#[derive(Debug, Clone, PartialEq)]
+pub struct LostEphemeris {
+    /// Target index.
+    pub target_index: usize,
+    /// Timing 1-sigma, minutes.
+    pub sigma_min: f64,
+}
+
+/// Everything planned for one site.
+#[derive(Debug, Clone, PartialEq)]
+pub struct SitePlan {
+    /// Site index in the input list.
+    pub site_index: usize,
+    /// The nights in range.
+    pub nights: Vec<Night>,
+    /// Events sorted by block start (observable ones, plus the rest if asked).
+    pub events: Vec<Event>,
+}
+
+/// The result of a planning run.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Plan {
+    /// Per site, in input order.
+    pub sites: Vec<SitePlan>,
+    /// Targets whose ephemeris is lost in the range.
+    pub lost: Vec<LostEphemeris>,
+}
+
+/// The nights `first..=last` at a site with their dark intervals.
+pub fn nights_at(site: &Site, first: NaiveDate, last: NaiveDate) -> Vec<Night> {
+    first
+        .iter_days()
+        .take_while(|d| *d <= last)
+        .map(|d| {
+            let start = local_noon_jd(d, site.tz);
+            let end = local_noon_jd(d.succ_opt().unwrap_or(d), site.tz);
+            let window = Interval { start, end };
+            let dark = match sun_crossings(&site.observer, site.darkness_alt_deg, start, end) {
+                SunCrossing::AlwaysAbove => None,
+                SunCrossing::AlwaysBelow => Some(window),
+                SunCrossing::Crosses { down, up } => Some(Interval {
+                    start: down.unwrap_or(start),
+                    end: up.unwrap_or(end),
+                }),
+            };
+            Night { night_of: d, window, dark }
+        })
+        .collect()
+}
+
+/// A target's apparent place of date frozen over one block (precession, nutation and aberration change by
+/// < 0.1" in a day), turned into altitude and azimuth at any instant from the sidereal time.
+struct Track {
+    ra_rad: f64,
+    dec_rad: f64,
+    eqeq_rad: f64,
+    lon_rad: f64,
+    lat_rad: f64,
+}
+
+impl Track {
+    fn new(icrs: &Vec3, t_ref: f64, site: &Site, earth: &EarthTable) -> Track {
+        let eo = EarthOrientation::at(JdUtc(t_ref));
+        let vel = earth.earth_bary_vel_au_per_day(jd_tdb_from_utc(JdUtc(t_ref)).0);
+        let (ra_rad, dec_rad) = eo.apparent_radec(icrs, Some(&vel));
+        Track {
+            ra_rad,
+            dec_rad,
+            eqeq_rad: eo.nutation.equation_of_equinoxes_rad(),
+            lon_rad: site.observer.lon_rad,
+            lat_rad: site.observer.lat_rad,
+        }
+    }
+
+    /// Hour angle, rad -pi..pi (west +).
+    fn ha_rad(&self, t: f64) -> f64 {
+        wrap_pi(gmst_rad(t) + self.eqeq_rad + self.lon_rad - self.ra_rad)
+    }
+
+    /// (altitude deg, azimuth deg).
+    fn alt_az_deg(&self, t: f64) -> (f64, f64) {
+        let (alt, az) = alt_az_from_hadec(self.ha_rad(t), self.dec_rad, self.lat_rad);
+        (alt.to_degrees(), az.to_degrees())
+    }
+
+    /// Upper and lower meridian crossings within [start, end], UTC JD: (upper, lower).
+    fn culminations(&self, start: f64, end: f64) -> (Vec<f64>, Vec<f64>) {
+        let day = 1.0 / SIDEREAL_RATE;
+        let t0 = start - self.ha_rad(start) / TAU * day;
+        let mut upper = Vec::new();
+        let mut lower = Vec::new();
+        let mut k = -1.0;
+        while t0 + k * day <= end + day {
+            for (list, off) in [(&mut upper, 0.0), (&mut lower, 0.5)] {
+                let t = t0 + (k + off) * day;
+                if t >= start && t <= end {
+                    list.push(t);
+                }
+            }
+            k += 1.0;
+        }
+        (upper, lower)
+    }
+}
+
+/// The Moon's topocentric RA/Dec at `t` for a site (rad).
+fn moon_topo_radec(t: f64, site: &Site) -> (f64, f64) {
+    let eo = EarthOrientation::at(JdUtc(t));
+    let geo = moon_apparent(eo.jd_tt, &eo.nutation);
+    let topo = topocentric(&geo, &site.observer, eo.last_rad(site.observer.lon_rad));
+    (topo.ra_rad, topo.dec_rad)
+}
+
+/// Intersect two sorted lists of disjoint intervals.
+fn intersect_lists(a: &[Interval], b: &[Interval]) -> Vec<Interval> {
+    let mut out = Vec::new();
+    let (mut i, mut j) = (0, 0);
+    while i < a.len() && j < b.len() {
+        if let Some(x) = a[i].intersect(&b[j]) {
+            out.push(x);
+        }
+        if a[i].end < b[j].end {
+            i += 1;
+        } else {
+            j += 1;
+        }
+    }
+    out
+}
+
+fn covers(list: &[Interval], whole: &Interval) -> bool {
+    list.len() == 1 && list[0].start <= whole.start + EDGE_SLACK_DAYS && list[0].end >= whole.end - EDGE_SLACK_DAYS
+}
+
+/// Evaluate one transit at one site. Pure: everything it needs is passed in.
+#[allow(clippy::too_many_arguments)]
+fn evaluate(
+    target_index: usize,
+    target: &Target,
+    site_index: usize,
+    site: &Site,
+    epoch: i64,
+    mid_utc: f64,
+    sigma_days: f64,
+    night: &Night,
+    opts: &PlanOptions,
+    earth: &EarthTable,
+) -> Event {
+    let half = target.t14_hours / 48.0;
+    let ingress = mid_utc - half;
+    let egress = mid_utc + half;
+    let margin = opts.sigma_k * sigma_days;
+    let block = Interval {
+        start: ingress - margin - opts.baseline_before_min / 1440.0,
+        end: egress + margin + opts.baseline_after_min / 1440.0,
+    };
+    let icrs = unit_from_radec(target.ra_deg.to_radians(), target.dec_deg.to_radians());
+    let track = Track::new(&icrs, mid_utc, site, earth);
+    let (upper, lower) = track.culminations(block.start, block.end);
+    let extrema: Vec<f64> = upper.iter().chain(lower.iter()).copied().collect();
+    let step = DEFAULT_STEP_DAYS;
+    let lost = sigma_days > LOST_SIGMA_FRACTION_OF_PERIOD * target.ephemeris.period_days;
+
+    let mut reasons = Vec::new();
+    let mut usable = vec![block];
+    let mut apply = |list: Vec<Interval>, reason: Reason, usable: &mut Vec<Interval>| {
+        if !covers(&list, &block) {
+            reasons.push(reason);
+        }
+        *usable = intersect_lists(usable, &list);
+    };
+    let dark = night.dark.and_then(|d| d.intersect(&block)).map(|d| vec![d]).unwrap_or_default();
+    apply(dark, Reason::Daylight, &mut usable);
+    let alt_ok = intervals_where_nonnegative(&|t| track.alt_az_deg(t).0 - site.min_alt_deg, block.start, block.end, step, &extrema);
+    apply(alt_ok, Reason::BelowAltitudeLimit, &mut usable);
+    if !site.horizon.is_empty() {
+        let f = |t: f64| {
+            let (alt, az) = track.alt_az_deg(t);
+            alt - site.horizon.min_alt_deg(az)
+        };
+        let ok = intervals_where_nonnegative(&f, block.start, block.end, step / 2.0, &extrema);
+        apply(ok, Reason::BelowHorizonProfile, &mut usable);
+    }
+    if let Some((east_h, west_h)) = site.hour_angle_limits_h {
+        let f = |t: f64| {
+            let ha_h = track.ha_rad(t).to_degrees() / 15.0;
+            (ha_h - east_h).min(west_h - ha_h)
+        };
+        // The hour angle wraps at +-12 h (lower culmination): sample there too.
+        let ok = intervals_where_nonnegative(&f, block.start, block.end, step, &lower);
+        apply(ok, Reason::HourAngleLimit, &mut usable);
+    }
+    if let Some(min_sep) = site.min_moon_sep_deg {
+        let f = |t: f64| {
+            let (mra, mdec) = moon_topo_radec(t, site);
+            separation_rad(track.ra_rad, track.dec_rad, mra, mdec).to_degrees() - min_sep
+        };
+        let ok = intervals_where_nonnegative(&f, block.start, block.end, step * 3.0, &[]);
+        apply(ok, Reason::MoonTooClose, &mut usable);
+    }
+
+    // The usable run overlapping the transit most (ties: the earlier).
+    let transit = Interval { start: ingress, end: egress };
+    let best = usable
+        .iter()
+        .map(|u| (u.intersect(&transit).map(|x| x.len_days()).unwrap_or(0.0), *u))
+        .filter(|(o, _)| *o > 0.0)
+        .fold(None::<(f64, Interval)>, |acc, cur| match acc {
+            Some(a) if a.0 >= cur.0 => Some(a),
+            _ => Some(cur),
+        });
+    let (coverage, run) = match best {
+        Some((o, run)) => ((o / (egress - ingress)).clamp(0.0, 1.0), Some(run)),
+        None => (0.0, None),
+    };
+    let (verdict, before_min, after_min) = match run {
+        None => (Verdict::NotObservable, 0.0, 0.0),
+        Some(run) => {
+            let lo = ingress - margin;
+            let hi = egress + margin;
+            let ingress_seen = run.start <= lo + EDGE_SLACK_DAYS;
+            let egress_seen = run.end >= hi - EDGE_SLACK_DAYS;
+            let before = ((lo - run.start) * 1440.0).max(0.0);
+            let after = ((run.end - hi) * 1440.0).max(0.0);
+            let full_base = before >= opts.baseline_before_min - 1.0 / 60.0 && after >= opts.baseline_after_min - 1.0 / 60.0;
+            let v = match (ingress_seen, egress_seen) {
+                (true, true) if full_base => Verdict::Whole,
+                (true, true) => Verdict::WholeShortBaseline,
+                (true, false) => Verdict::IngressOnly,
+                (false, true) => Verdict::EgressOnly,
+                (false, false) => Verdict::MiddleOnly,
+            };
+            (v, before, after)
+        }
+    };
+    if lost {
+        reasons.push(Reason::EphemerisLost);
+    }
+    let mut observable = verdict != Verdict::NotObservable && !lost;
+    if observable && coverage < opts.min_coverage {
+        reasons.push(Reason::CoverageBelowMinimum);
+        observable = false;
+    }
+    reasons.sort();
+    reasons.dedup();
+
+    let (alt_in, _) = track.alt_az_deg(ingress);
+    let (alt_mid, az_mid) = track.alt_az_deg(mid_utc);
+    let (alt_eg, _) = track.alt_az_deg(egress);
+    let sm = sun_moon_at(JdUtc(mid_utc), &site.observer);
+    let moon_sep = separation_rad(track.ra_rad, track.dec_rad, sm.moon_topo.ra_rad, sm.moon_topo.dec_rad).to_degrees();
+    Event {
+        target_index,
+        site_index,
+        epoch,
+        verdict,
+        observable,
+        coverage,
+        mid_utc,
+        ingress_utc: ingress,
+        egress_utc: egress,
+        block_start_utc: block.start,
+        block_end_utc: block.end,
+        usable: run,
+        sigma_min: sigma_days * 1440.0,
+        baseline_before_min: before_min,
+        baseline_after_min: after_min,
+        night_of: night.night_of,
+        night_dark: night.dark,
+        alt_ingress_deg: alt_in,
+        alt_mid_deg: alt_mid,
+        alt_egress_deg: alt_eg,
+        airmass_ingress: airmass_kasten_young(alt_in),
+        airmass_mid: airmass_kasten_young(alt_mid),
+        airmass_egress: airmass_kasten_young(alt_eg),
+        az_mid_deg: az_mid,
+        sun_alt_mid_deg: sm.sun_alt_deg,
+        moon_alt_mid_deg: sm.moon_alt_deg,
+        moon_sep_deg: moon_sep,
+        moon_illum: sm.moon_illum,
+        meridian_utc: upper.first().copied(),
+        reasons,
+    }
+}
+
+/// Plan every transit of `targets` at `sites` over the nights in `opts`.
+///
+/// Returns, per site, the nights and the events (observable ones; all of them with
+/// `opts.include_unobservable`), sorted by block start, plus the targets whose ephemeris is lost.
+pub fn plan(sites: &[Site], targets: &[Target], opts: &PlanOptions) -> Plan {
+    let mut site_plans = Vec::new();
+    let mut lost = std::collections::BTreeMap::new();
+    for (si, site) in sites.iter().enumerate() {
+        let nights = nights_at(site, opts.first_night, opts.last_night);
+        let (Some(first), Some(last)) = (nights.first(), nights.last()) else {
+            site_plans.push(SitePlan { site_index: si, nights, events: Vec::new() });
+            continue;
+        };
+        let range = Interval { start: first.window.start, end: last.window.end };
+        let earth = EarthTable::new(range.start - 1.0, range.end + 1.0);
+        let mut events = Vec::new();
+        for (ti, target) in targets.iter().enumerate() {
+            let icrs = unit_from_radec(target.ra_deg.to_radians(), target.dec_deg.to_radians());
+            let eph = &target.ephemeris;
+            // Light time and TT-UTC are < 0.01 d: widen the range by 0.02 d in the target's time system.
+            for n in eph.epochs_between(range.start - 0.02, range.end + 0.02) {
+                let mid = earth.utc_from_system(eph.system, eph.mid_time(n), &icrs, Some(&site.observer)).0;
+                let date = night_of(mid, site.tz);
+                let Some(night) = nights.iter().find(|nt| nt.night_of == date) else {
+                    continue;
+                };
+                let sigma = eph.sigma_days(n);
+                let ev = evaluate(ti, target, si, site, n, mid, sigma, night, opts, &earth);
+                if ev.reasons.contains(&Reason::EphemerisLost) {
+                    lost.entry(ti).or_insert(ev.sigma_min);
+                }
+                if ev.observable || opts.include_unobservable {
+                    events.push(ev);
+                }
+            }
+        }
+        events.sort_by(|a, b| a.block_start_utc.total_cmp(&b.block_start_utc).then(a.target_index.cmp(&b.target_index)));
+        site_plans.push(SitePlan { site_index: si, nights, events });
+    }
+    Plan {
+        sites: site_plans,
+        lost: lost.into_iter().map(|(target_index, sigma_min)| LostEphemeris { target_index, sigma_min }).collect(),
+    }
+}
+
+/// Brute-force oracle: the usable time inside `[start, end]` for a target at a site, sampled every minute
+/// with the full-precision pipeline (no frozen track, no root finding). For tests only; about 100x slower.
+pub fn usable_minutes_oracle(site: &Site, target: &Target, night: &Night, start: f64, end: f64, earth: &EarthTable) -> Vec<bool> {
+    let icrs = unit_from_radec(target.ra_deg.to_radians(), target.dec_deg.to_radians());
+    let n = ((end - start) * 1440.0).round() as usize;
+    (0..=n)
+        .map(|i| {
+            let t = start + i as f64 / 1440.0;
+            let dark = night.dark.map(|d| t >= d.start && t <= d.end).unwrap_or(false);
+            let (alt, az) = crate::astro::sky::target_alt_az_deg(&icrs, JdUtc(t), &site.observer, earth);
+            let mut ok = dark && alt >= site.min_alt_deg && alt >= site.horizon.min_alt_deg(az);
+            let eo = EarthOrientation::at(JdUtc(t));
+            let vel = earth.earth_bary_vel_au_per_day(jd_tdb_from_utc(JdUtc(t)).0);
+            let (ra, dec) = eo.apparent_radec(&icrs, Some(&vel));
+            if let Some((e, w)) = site.hour_angle_limits_h {
+                let ha_h = wrap_pi(eo.last_rad(site.observer.lon_rad) - ra).to_degrees() / 15.0;
+                ok &= ha_h >= e && ha_h <= w;
+            }
+            if let Some(min_sep) = site.min_moon_sep_deg {
+                let sm = sun_moon_at(JdUtc(t), &site.observer);
+                ok &= separation_rad(ra, dec, sm.moon_topo.ra_rad, sm.moon_topo.dec_rad).to_degrees() >= min_sep;
+            }
+            ok
+        })
+        .collect()
+}

@@ -1,0 +1,355 @@
+//! Plan outputs: the terminal table, CSV and JSON. Pure formatting: strings in, strings out.
+
+use crate::civil::{local_hhmm, rfc3339_utc, zone_abbreviation};
+use crate::inputs::sites::Site;
+use crate::inputs::targets::Target;
+use crate::plan::{Event, Plan, PlanOptions, Reason, Verdict};
+use comfy_table::{Cell, CellAlignment, ContentArrangement, Table};
+use serde::Serialize;
+
+/// One event as written to CSV and JSON. Field names and units are documented in the README.
+#[derive(Debug, Clone, Serialize)]
+pub struct EventRecord {
+    pub target: String,
+    pub site: String,
+    pub epoch: i64,
+    pub verdict: &'static str,
+    pub observable: bool,
+    pub coverage: f64,
+    pub mid_utc: String,
+    pub ingress_utc: String,
+    pub egress_utc: String,
+    pub block_start_utc: String,
+    pub block_end_utc: String,
+    pub usable_start_utc: Option<String>,
+    pub usable_end_utc: Option<String>,
+    pub sigma_min: f64,
+    pub baseline_before_min: f64,
+    pub baseline_after_min: f64,
+    pub night_of: String,
+    pub night_start_utc: Option<String>,
+    pub night_end_utc: Option<String>,
+    pub alt_ingress_deg: f64,
+    pub alt_mid_deg: f64,
+    pub alt_egress_deg: f64,
+    pub airmass_ingress: Option<f64>,
+    pub airmass_mid: Option<f64>,
+    pub airmass_egress: Option<f64>,
+    pub az_mid_deg: f64,
+    pub sun_alt_mid_deg: f64,
+    pub moon_alt_mid_deg: f64,
+    pub moon_sep_deg: f64,
+    pub moon_illum: f64,
+    pub meridian_utc: Option<String>,
+    pub depth_ppt: Option<f64>,
+    pub priority: f64,
+    pub reasons: Vec<&'static str>,
+}
+
+/// The fields of [`EventRecord`] in order: the CSV header and the JSON keys of each event.
+pub const EVENT_FIELDS: &[&str] = &[
+    "target", "site", "epoch", "verdict", "observable", "coverage", "mid_utc", "ingress_utc", "egress_utc",
+    "block_start_utc", "block_end_utc", "usable_start_utc", "usable_end_utc", "sigma_min", "baseline_before_min",
+    "baseline_after_min", "night_of", "night_start_utc", "night_end_utc", "alt_ingress_deg", "alt_mid_deg",
+    "alt_egress_deg", "airmass_ingress", "airmass_mid", "airmass_egress", "az_mid_deg", "sun_alt_mid_deg",
+    "moon_alt_mid_deg", "moon_sep_deg", "moon_illum", "meridian_utc", "depth_ppt", "priority", "reasons",
+];
+
+fn round(x: f64, decimals: i32) -> f64 {
+    let k = 10f64.powi(decimals);
+    (x * k).round() / k
+}
+
+fn finite(x: f64, decimals: i32) -> Option<f64> {
+    x.is_finite().then(|| round(x, decimals))
+}
+
+impl EventRecord {
+    /// The record of `e`, with names looked up in the inputs.
+    pub fn new(e: &Event, sites: &[Site], targets: &[Target]) -> EventRecord {
+        let t = &targets[e.target_index];
+        EventRecord {
+            target: t.name.clone(),
+            site: sites[e.site_index].name.clone(),
+            epoch: e.epoch,
+            verdict: e.verdict.label(),
+            observable: e.observable,
+            coverage: round(e.coverage, 3),
+            mid_utc: rfc3339_utc(e.mid_utc),
+            ingress_utc: rfc3339_utc(e.ingress_utc),
+            egress_utc: rfc3339_utc(e.egress_utc),
+            block_start_utc: rfc3339_utc(e.block_start_utc),
+            block_end_utc: rfc3339_utc(e.block_end_utc),
+            usable_start_utc: e.usable.map(|u| rfc3339_utc(u.start)),
+            usable_end_utc: e.usable.map(|u| rfc3339_utc(u.end)),
+            sigma_min: round(e.sigma_min, 2),
+            baseline_before_min: round(e.baseline_before_min, 1),
+            baseline_after_min: round(e.baseline_after_min, 1),
+            night_of: e.night_of.to_string(),
+            night_start_utc: e.night_dark.map(|d| rfc3339_utc(d.start)),
+            night_end_utc: e.night_dark.map(|d| rfc3339_utc(d.end)),
+            alt_ingress_deg: round(e.alt_ingress_deg, 2),
+            alt_mid_deg: round(e.alt_mid_deg, 2),
+            alt_egress_deg: round(e.alt_egress_deg, 2),
+            airmass_ingress: finite(e.airmass_ingress, 3),
+            airmass_mid: finite(e.airmass_mid, 3),
+            airmass_egress: finite(e.airmass_egress, 3),
+            az_mid_deg: round(e.az_mid_deg, 2),
+            sun_alt_mid_deg: round(e.sun_alt_mid_deg, 2),
+            moon_alt_mid_deg: round(e.moon_alt_mid_deg, 2),
+            moon_sep_deg: round(e.moon_sep_deg, 2),
+            moon_illum: round(e.moon_illum, 3),
+            meridian_utc: e.meridian_utc.map(rfc3339_utc),
+            depth_ppt: t.depth_ppt,
+            priority: t.priority,
+            reasons: e.reasons.iter().map(|r| r.label()).collect(),
+        }
+    }
+}
+
+fn records(plan: &Plan, sites: &[Site], targets: &[Target]) -> Vec<EventRecord> {
+    plan.sites
+        .iter()
+        .flat_map(|sp| sp.events.iter())
+        .map(|e| EventRecord::new(e, sites, targets))
+        .collect()
+}
+
+/// CSV: a header and one line per event, the JSON fields as columns (`reasons` joined with `;`).
+pub fn plan_csv(plan: &Plan, sites: &[Site], targets: &[Target]) -> String {
+    let mut w = csv::WriterBuilder::new().has_headers(false).from_writer(Vec::new());
+    let _ = w.write_record(EVENT_FIELDS);
+    for r in &records(plan, sites, targets) {
+        let _ = w.write_record(csv_cells(r));
+    }
+    String::from_utf8(w.into_inner().unwrap_or_default()).unwrap_or_default()
+}
+
+/// The cells of a record in [`EVENT_FIELDS`] order: null -> empty, lists joined with `;`.
+fn csv_cells(r: &EventRecord) -> Vec<String> {
+    let value = serde_json::to_value(r).unwrap_or_default();
+    let obj = value.as_object().cloned().unwrap_or_default();
+    obj.values()
+        .map(|v| match v {
+            serde_json::Value::Null => String::new(),
+            serde_json::Value::String(s) => s.clone(),
+            serde_json::Value::Array(items) => {
+                items.iter().map(|i| i.as_str().map(str::to_string).unwrap_or_else(|| i.to_string())).collect::<Vec<_>>().join(";")
+            }
+            other => other.to_string(),
+        })
+        .collect()
+}
+
+/// JSON: `{"options": ..., "sites": [...], "events": [...], "lost_ephemerides": [...]}`.
+pub fn plan_json(plan: &Plan, sites: &[Site], targets: &[Target], opts: &PlanOptions) -> String {
+    let site_info: Vec<serde_json::Value> = plan
+        .sites
+        .iter()
+        .map(|sp| {
+            let s = &sites[sp.site_index];
+            serde_json::json!({
+                "name": s.name,
+                "timezone": s.tz.name(),
+                "darkness": s.darkness_label,
+                "darkness_sun_alt_deg": s.darkness_alt_deg,
+                "min_alt_deg": round(s.min_alt_deg, 3),
+                "nights_without_darkness": sp.nights.iter().filter(|n| n.dark.is_none()).map(|n| n.night_of.to_string()).collect::<Vec<_>>(),
+            })
+        })
+        .collect();
+    let lost: Vec<serde_json::Value> = plan
+        .lost
+        .iter()
+        .map(|l| serde_json::json!({"target": targets[l.target_index].name, "sigma_min": round(l.sigma_min, 1)}))
+        .collect();
+    let doc = serde_json::json!({
+        "options": opts,
+        "sites": site_info,
+        "events": records(plan, sites, targets),
+        "lost_ephemerides": lost,
+    });
+    let mut s = serde_json::to_string_pretty(&doc).unwrap_or_default();
+    s.push('\n');
+    s
+}
+
+fn hhmm(jd: f64, site: &Site, utc: bool) -> String {
+    if utc {
+        crate::civil::datetime_from_jd(jd).format("%H:%M").to_string()
+    } else {
+        local_hhmm(jd, site.tz)
+    }
+}
+
+fn zone_label(jd: f64, site: &Site, utc: bool) -> String {
+    if utc {
+        "UTC".into()
+    } else {
+        zone_abbreviation(jd, site.tz)
+    }
+}
+
+/// Compress a sorted list of dates into "a to b (n nights)" runs.
+fn date_runs(dates: &[chrono::NaiveDate]) -> Vec<String> {
+    let mut out = Vec::new();
+    let mut i = 0;
+    while i < dates.len() {
+        let mut j = i;
+        while j + 1 < dates.len() && dates[j].succ_opt() == Some(dates[j + 1]) {
+            j += 1;
+        }
+        out.push(if i == j {
+            dates[i].to_string()
+        } else {
+            format!("{} to {} ({} nights)", dates[i], dates[j], j - i + 1)
+        });
+        i = j + 1;
+    }
+    out
+}
+
+/// Short table notes for each reason; the legend under the table spells them out.
+fn reason_note(r: Reason) -> &'static str {
+    match r {
+        Reason::Daylight => "sun",
+        Reason::BelowAltitudeLimit => "low",
+        Reason::BelowHorizonProfile => "horizon",
+        Reason::HourAngleLimit => "HA",
+        Reason::MoonTooClose => "moon",
+        Reason::CoverageBelowMinimum => "cov",
+        Reason::EphemerisLost => "lost",
+    }
+}
+
+/// Table style: a rule under the header and nothing else (comfy-table preset string, see its docs).
+const TABLE_STYLE: &str = "     ─┼ │          ";
+
+const LEGEND: &str = "\
+Notes: flip HH:MM = meridian crossing inside the block (equatorial mounts flip). Limits that cut the block:
+  sun = twilight or daylight, low = below the altitude limit, horizon = behind the horizon profile,
+  HA = outside the hour-angle limits, moon = too close to the Moon, cov = under the minimum coverage,
+  lost = ephemeris lost.";
+
+/// The terminal table: one table per site, rows grouped by night, site local time (or UTC), fits 120
+/// columns.
+pub fn plan_table(plan: &Plan, sites: &[Site], targets: &[Target], opts: &PlanOptions, utc: bool) -> String {
+    let mut out = String::new();
+    let n_events: usize = plan.sites.iter().map(|s| s.events.len()).sum();
+    out.push_str(&format!(
+        "Transits for the nights of {} to {}; margin {} sigma; baselines {}/{} min before/after{}\n",
+        opts.first_night,
+        opts.last_night,
+        opts.sigma_k,
+        opts.baseline_before_min,
+        opts.baseline_after_min,
+        if opts.min_coverage > 0.0 { format!("; coverage >= {}", opts.min_coverage) } else { String::new() }
+    ));
+    for sp in &plan.sites {
+        let site = &sites[sp.site_index];
+        let zones: Vec<String> = {
+            let mut z: Vec<String> = sp.nights.iter().map(|n| zone_label(n.window.start, site, utc)).collect();
+            z.dedup();
+            z
+        };
+        out.push_str(&format!(
+            "\n{} ({:+.3}, {:+.3}); dark: Sun below {} deg; target above {:.1} deg; times {}\n",
+            site.name,
+            site.lat_deg,
+            site.lon_deg,
+            site.darkness_alt_deg,
+            site.min_alt_deg,
+            if utc { "UTC".to_string() } else { format!("{} ({})", zones.join(" then "), site.tz.name()) }
+        ));
+        if !sp.events.is_empty() {
+            let mut table = Table::new();
+            table
+                .load_preset(TABLE_STYLE)
+                .set_content_arrangement(ContentArrangement::Dynamic)
+                .set_width(120)
+                .set_header(vec![
+                    "Night", "Target", "Verdict", "Cover", "Block", "Ingr  Mid   Egr", "+-sig", "Alt i/m/e", "Moon", "Notes",
+                ]);
+            for col in table.column_iter_mut() {
+                col.set_padding((0, 0));
+            }
+            let mut previous_night = None;
+            for e in &sp.events {
+                let t = &targets[e.target_index];
+                if previous_night.is_some() && previous_night != Some(e.night_of) {
+                    table.add_row(vec![""; 10]);
+                }
+                let night_cell =
+                    if previous_night != Some(e.night_of) { e.night_of.format("%a %m-%d").to_string() } else { String::new() };
+                previous_night = Some(e.night_of);
+                let mut notes = Vec::new();
+                if let Some(m) = e.meridian_utc {
+                    notes.push(format!("flip {}", hhmm(m, site, utc)));
+                }
+                let limits: Vec<&str> = e.reasons.iter().map(|r| reason_note(*r)).collect();
+                if !limits.is_empty() {
+                    notes.push(limits.join(","));
+                }
+                table.add_row(vec![
+                    Cell::new(night_cell),
+                    Cell::new(&t.name),
+                    Cell::new(e.verdict.label()),
+                    Cell::new(format!("{:.0}%", e.coverage * 100.0)).set_alignment(CellAlignment::Right),
+                    Cell::new(format!("{}-{}", hhmm(e.block_start_utc, site, utc), hhmm(e.block_end_utc, site, utc))),
+                    Cell::new(format!(
+                        "{} {} {}",
+                        hhmm(e.ingress_utc, site, utc),
+                        hhmm(e.mid_utc, site, utc),
+                        hhmm(e.egress_utc, site, utc)
+                    )),
+                    Cell::new(format!("{:.1}m", e.sigma_min)).set_alignment(CellAlignment::Right),
+                    Cell::new(format!("{:.0}/{:.0}/{:.0}", e.alt_ingress_deg, e.alt_mid_deg, e.alt_egress_deg)),
+                    Cell::new(format!("{:.0}d {:.0}%", e.moon_sep_deg, e.moon_illum * 100.0)),
+                    Cell::new(notes.join(" ")),
+                ]);
+            }
+            let last = table.column_count() - 1;
+            for (i, col) in table.column_iter_mut().enumerate() {
+                if i != last {
+                    col.set_constraint(comfy_table::ColumnConstraint::ContentWidth);
+                }
+            }
+            out.push_str(&table.to_string());
+            out.push('\n');
+        }
+    let no_dark: Vec<chrono::NaiveDate> = sp.nights.iter().filter(|n| n.dark.is_none()).map(|n| n.night_of).collect();
+        if !no_dark.is_empty() {
+            out.push_str(&format!(
+                "\n  No dark time at {} (the Sun stays above {} deg) on: {}\n",
+                site.name,
+                site.darkness_alt_deg,
+                date_runs(&no_dark).join(", ")
+            ));
+        }
+        if sp.events.is_empty() {
+            out.push_str(&format!(
+                "\n  Nothing observable at {} in this range{}.\n",
+                site.name,
+                if opts.include_unobservable { "" } else { " (--include-unobservable lists every transit with its reasons)" }
+            ));
+        }
+    }
+    if !plan.lost.is_empty() {
+        out.push_str("\nEphemeris lost (timing sigma over 1/8 of the period; transits not listed, new observations needed):\n");
+        for l in &plan.lost {
+            out.push_str(&format!("  {}: sigma {:.0} min\n", targets[l.target_index].name, l.sigma_min));
+        }
+    }
+    if n_events > 0 {
+        out.push('\n');
+        out.push_str(LEGEND);
+        out.push('\n');
+    }
+    let observable = plan.sites.iter().flat_map(|s| &s.events).filter(|e| e.observable).count();
+    let whole = plan.sites.iter().flat_map(|s| &s.events).filter(|e| e.observable && e.verdict == Verdict::Whole).count();
+    out.push_str(&format!(
+        "\n{observable} observable events ({whole} whole with both baselines){}.\n",
+        if opts.include_unobservable { format!(", {} listed in all", n_events) } else { String::new() }
+    ));
+    out
+}
