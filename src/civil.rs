@@ -24,7 +24,9 @@ pub fn jd_from_datetime(t: &DateTime<Utc>) -> f64 {
 
 /// RFC 3339 UTC text with milliseconds, e.g. `2027-03-04T22:13:05.123Z`.
 pub fn rfc3339_utc(jd_utc: f64) -> String {
-    datetime_from_jd(jd_utc).format("%Y-%m-%dT%H:%M:%S%.3fZ").to_string()
+    datetime_from_jd(jd_utc)
+        .format("%Y-%m-%dT%H:%M:%S%.3fZ")
+        .to_string()
 }
 
 /// UTC Julian Date of local noon on `date` in `tz`.
@@ -46,17 +48,26 @@ pub fn night_of(jd_utc: f64, tz: Tz) -> NaiveDate {
 
 /// Local wall time of an instant as `HH:MM` in `tz`.
 pub fn local_hhmm(jd_utc: f64, tz: Tz) -> String {
-    datetime_from_jd(jd_utc).with_timezone(&tz).format("%H:%M").to_string()
+    datetime_from_jd(jd_utc)
+        .with_timezone(&tz)
+        .format("%H:%M")
+        .to_string()
 }
 
 /// The zone abbreviation in force at an instant (e.g. `CET`, `-03`).
 pub fn zone_abbreviation(jd_utc: f64, tz: Tz) -> String {
-    datetime_from_jd(jd_utc).with_timezone(&tz).format("%Z").to_string()
+    datetime_from_jd(jd_utc)
+        .with_timezone(&tz)
+        .format("%Z")
+        .to_string()
 }
 
 /// Local time with offset as RFC 3339, seconds precision.
 pub fn local_rfc3339(jd_utc: f64, tz: Tz) -> String {
-    datetime_from_jd(jd_utc).with_timezone(&tz).format("%Y-%m-%dT%H:%M:%S%:z").to_string()
+    datetime_from_jd(jd_utc)
+        .with_timezone(&tz)
+        .format("%Y-%m-%dT%H:%M:%S%:z")
+        .to_string()
 }
 
 #[cfg(test)]

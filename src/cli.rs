@@ -12,7 +12,11 @@ use std::io::Write;
 use std::path::{Path, PathBuf};
 
 #[derive(Parser, Debug)]
-#[command(name = "dipwatch", version, about = "Plan ground-based follow-up of transiting exoplanets")]
+#[command(
+    name = "dipwatch",
+    version,
+    about = "Plan ground-based follow-up of transiting exoplanets"
+)]
 struct Cli {
     #[command(subcommand)]
     command: Command,
@@ -123,7 +127,12 @@ pub fn run() -> Result<()> {
     }
 }
 
-fn read_input(given: &Option<PathBuf>, default: &str, example: &str, what: &str) -> Result<(String, String)> {
+fn read_input(
+    given: &Option<PathBuf>,
+    default: &str,
+    example: &str,
+    what: &str,
+) -> Result<(String, String)> {
     let path = match given {
         Some(p) => p.clone(),
         None => {
@@ -140,15 +149,24 @@ fn read_input(given: &Option<PathBuf>, default: &str, example: &str, what: &str)
     let label = path.display().to_string();
     let bytes = std::fs::read(&path).with_context(|| format!("cannot read {what} file {label}"))?;
     let text = String::from_utf8(bytes).map_err(|e| {
-        anyhow::anyhow!("{label}: not UTF-8 text (invalid byte at offset {}); expected a UTF-8 {what} file", e.utf8_error().valid_up_to())
+        anyhow::anyhow!(
+            "{label}: not UTF-8 text (invalid byte at offset {}); expected a UTF-8 {what} file",
+            e.utf8_error().valid_up_to()
+        )
     })?;
     Ok((label, text))
 }
 
 /// Load, parse and select sites and targets.
 fn load(input: &InputArgs) -> Result<(Vec<Site>, Vec<Target>)> {
-    let (sites_label, sites_text) = read_input(&input.sites, "sites.toml", "sites.example.toml", "sites")?;
-    let (targets_label, targets_text) = read_input(&input.targets, "targets.csv", "targets.example.csv", "targets")?;
+    let (sites_label, sites_text) =
+        read_input(&input.sites, "sites.toml", "sites.example.toml", "sites")?;
+    let (targets_label, targets_text) = read_input(
+        &input.targets,
+        "targets.csv",
+        "targets.example.csv",
+        "targets",
+    )?;
     let map = match &input.columns {
         Some(spec) => ColumnMap::parse(spec).map_err(|m| anyhow::anyhow!("--columns: {m}"))?,
         None => ColumnMap::default(),
@@ -156,21 +174,43 @@ fn load(input: &InputArgs) -> Result<(Vec<Site>, Vec<Target>)> {
     let sites = parse_sites(&sites_label, &sites_text)?;
     let targets = parse_targets(&targets_label, &targets_text, &map)?;
     let sites = select(sites, &input.site_names, |s| &s.name, "site", &sites_label)?;
-    let targets = select(targets, &input.target_names, |t| &t.name, "target", &targets_label)?;
+    let targets = select(
+        targets,
+        &input.target_names,
+        |t| &t.name,
+        "target",
+        &targets_label,
+    )?;
     Ok((sites, targets))
 }
 
-fn select<T>(items: Vec<T>, wanted: &[String], name: impl Fn(&T) -> &String, what: &str, file: &str) -> Result<Vec<T>> {
+fn select<T>(
+    items: Vec<T>,
+    wanted: &[String],
+    name: impl Fn(&T) -> &String,
+    what: &str,
+    file: &str,
+) -> Result<Vec<T>> {
     if wanted.is_empty() {
         return Ok(items);
     }
     for w in wanted {
         if !items.iter().any(|i| name(i).eq_ignore_ascii_case(w.trim())) {
             let known: Vec<&str> = items.iter().map(|i| name(i).as_str()).collect();
-            bail!("--{what} {w:?}: no {what} of that name in {file}; expected one of: {}", known.join(", "));
+            bail!(
+                "--{what} {w:?}: no {what} of that name in {file}; expected one of: {}",
+                known.join(", ")
+            );
         }
     }
-    Ok(items.into_iter().filter(|i| wanted.iter().any(|w| name(i).eq_ignore_ascii_case(w.trim()))).collect())
+    Ok(items
+        .into_iter()
+        .filter(|i| {
+            wanted
+                .iter()
+                .any(|w| name(i).eq_ignore_ascii_case(w.trim()))
+        })
+        .collect())
 }
 
 /// Resolve the night range: default from today (system clock, local date), 30 nights.
@@ -248,7 +288,10 @@ pub fn write_atomically(path: &Path, bytes: &[u8]) -> Result<()> {
         Some(d) if !d.as_os_str().is_empty() => d.to_path_buf(),
         _ => PathBuf::from("."),
     };
-    let name = path.file_name().map(|n| n.to_string_lossy().to_string()).unwrap_or_else(|| "out".into());
+    let name = path
+        .file_name()
+        .map(|n| n.to_string_lossy().to_string())
+        .unwrap_or_else(|| "out".into());
     let tmp = dir.join(format!(".{name}.{}.tmp", std::process::id()));
     let result = (|| -> std::io::Result<()> {
         let mut f = std::fs::File::create(&tmp)?;

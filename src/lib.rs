@@ -5,9 +5,9 @@
 //! The library only computes; files, the clock and the terminal belong to the binary.
 
 pub mod astro;
+pub mod civil;
 pub mod constants;
 pub mod ephemeris;
 pub mod inputs;
-pub mod civil;
 pub mod plan;
 pub mod report;

@@ -8,8 +8,12 @@
 
 use crate::astro::atmosphere::airmass_kasten_young;
 use crate::astro::barycentric::EarthTable;
-use crate::astro::crossings::{intervals_where_nonnegative, sun_crossings, Interval, SunCrossing, DEFAULT_STEP_DAYS};
-use crate::astro::frames::{alt_az_from_hadec, gmst_rad, separation_rad, unit_from_radec, wrap_pi, EarthOrientation, Vec3};
+use crate::astro::crossings::{
+    intervals_where_nonnegative, sun_crossings, Interval, SunCrossing, DEFAULT_STEP_DAYS,
+};
+use crate::astro::frames::{
+    alt_az_from_hadec, gmst_rad, separation_rad, unit_from_radec, wrap_pi, EarthOrientation, Vec3,
+};
 use crate::astro::sky::{moon_apparent, sun_moon_at, topocentric};
 use crate::astro::time::{jd_tdb_from_utc, JdUtc};
 use crate::civil::{local_noon_jd, night_of};
@@ -233,7 +237,11 @@ pub fn nights_at(site: &Site, first: NaiveDate, last: NaiveDate) -> Vec<Night> {
                     end: up.unwrap_or(end),
                 }),
             };
-            Night { night_of: d, window, dark }
+            Night {
+                night_of: d,
+                window,
+                dark,
+            }
         })
         .collect()
 }
@@ -319,38 +327,43 @@ fn intersect_lists(a: &[Interval], b: &[Interval]) -> Vec<Interval> {
 }
 
 fn covers(list: &[Interval], whole: &Interval) -> bool {
-    list.len() == 1 && list[0].start <= whole.start + EDGE_SLACK_DAYS && list[0].end >= whole.end - EDGE_SLACK_DAYS
+    list.len() == 1
+        && list[0].start <= whole.start + EDGE_SLACK_DAYS
+        && list[0].end >= whole.end - EDGE_SLACK_DAYS
 }
 
-/// Evaluate one transit at one site. Pure: everything it needs is passed in.
-#[allow(clippy::too_many_arguments)]
-fn evaluate(
-    target_index: usize,
-    target: &Target,
-    site_index: usize,
+/// The usable parts of `block` for a target at a site on a night, and the reasons for any cut.
+///
+/// Given: the target, site and night; `block` (UTC JD) inside or around that night; `earth` covering it.
+/// Returns sorted disjoint intervals (edges to 0.5 s) where every constraint holds, and the constraints that
+/// cut something. This is the root-finding path that [`usable_minutes_oracle`] checks.
+pub fn usable_intervals(
     site: &Site,
-    epoch: i64,
-    mid_utc: f64,
-    sigma_days: f64,
+    target: &Target,
     night: &Night,
-    opts: &PlanOptions,
+    block: &Interval,
     earth: &EarthTable,
-) -> Event {
-    let half = target.t14_hours / 48.0;
-    let ingress = mid_utc - half;
-    let egress = mid_utc + half;
-    let margin = opts.sigma_k * sigma_days;
-    let block = Interval {
-        start: ingress - margin - opts.baseline_before_min / 1440.0,
-        end: egress + margin + opts.baseline_after_min / 1440.0,
-    };
-    let icrs = unit_from_radec(target.ra_deg.to_radians(), target.dec_deg.to_radians());
-    let track = Track::new(&icrs, mid_utc, site, earth);
+) -> (Vec<Interval>, Vec<Reason>) {
+    let mid = 0.5 * (block.start + block.end);
+    let track = Track::new(
+        &unit_from_radec(target.ra_deg.to_radians(), target.dec_deg.to_radians()),
+        mid,
+        site,
+        earth,
+    );
+    usable_intervals_on_track(&track, site, night, block)
+}
+
+fn usable_intervals_on_track(
+    track: &Track,
+    site: &Site,
+    night: &Night,
+    block: &Interval,
+) -> (Vec<Interval>, Vec<Reason>) {
+    let block = *block;
     let (upper, lower) = track.culminations(block.start, block.end);
     let extrema: Vec<f64> = upper.iter().chain(lower.iter()).copied().collect();
     let step = DEFAULT_STEP_DAYS;
-    let lost = sigma_days > LOST_SIGMA_FRACTION_OF_PERIOD * target.ephemeris.period_days;
-
     let mut reasons = Vec::new();
     let mut usable = vec![block];
     let mut apply = |list: Vec<Interval>, reason: Reason, usable: &mut Vec<Interval>| {
@@ -359,9 +372,19 @@ fn evaluate(
         }
         *usable = intersect_lists(usable, &list);
     };
-    let dark = night.dark.and_then(|d| d.intersect(&block)).map(|d| vec![d]).unwrap_or_default();
+    let dark = night
+        .dark
+        .and_then(|d| d.intersect(&block))
+        .map(|d| vec![d])
+        .unwrap_or_default();
     apply(dark, Reason::Daylight, &mut usable);
-    let alt_ok = intervals_where_nonnegative(&|t| track.alt_az_deg(t).0 - site.min_alt_deg, block.start, block.end, step, &extrema);
+    let alt_ok = intervals_where_nonnegative(
+        &|t| track.alt_az_deg(t).0 - site.min_alt_deg,
+        block.start,
+        block.end,
+        step,
+        &extrema,
+    );
     apply(alt_ok, Reason::BelowAltitudeLimit, &mut usable);
     if !site.horizon.is_empty() {
         let f = |t: f64| {
@@ -388,12 +411,54 @@ fn evaluate(
         let ok = intervals_where_nonnegative(&f, block.start, block.end, step * 3.0, &[]);
         apply(ok, Reason::MoonTooClose, &mut usable);
     }
+    (usable, reasons)
+}
+
+/// Evaluate one transit at one site. Pure: everything it needs is passed in.
+#[allow(clippy::too_many_arguments)]
+fn evaluate(
+    target_index: usize,
+    target: &Target,
+    site_index: usize,
+    site: &Site,
+    epoch: i64,
+    mid_utc: f64,
+    sigma_days: f64,
+    night: &Night,
+    opts: &PlanOptions,
+    earth: &EarthTable,
+) -> Event {
+    let half = target.t14_hours / 48.0;
+    let ingress = mid_utc - half;
+    let egress = mid_utc + half;
+    let margin = opts.sigma_k * sigma_days;
+    let block = Interval {
+        start: ingress - margin - opts.baseline_before_min / 1440.0,
+        end: egress + margin + opts.baseline_after_min / 1440.0,
+    };
+    let track = Track::new(
+        &unit_from_radec(target.ra_deg.to_radians(), target.dec_deg.to_radians()),
+        mid_utc,
+        site,
+        earth,
+    );
+    let (usable, mut reasons) = usable_intervals_on_track(&track, site, night, &block);
+    let upper = track.culminations(block.start, block.end).0;
+    let lost = sigma_days > LOST_SIGMA_FRACTION_OF_PERIOD * target.ephemeris.period_days;
 
     // The usable run overlapping the transit most (ties: the earlier).
-    let transit = Interval { start: ingress, end: egress };
+    let transit = Interval {
+        start: ingress,
+        end: egress,
+    };
     let best = usable
         .iter()
-        .map(|u| (u.intersect(&transit).map(|x| x.len_days()).unwrap_or(0.0), *u))
+        .map(|u| {
+            (
+                u.intersect(&transit).map(|x| x.len_days()).unwrap_or(0.0),
+                *u,
+            )
+        })
         .filter(|(o, _)| *o > 0.0)
         .fold(None::<(f64, Interval)>, |acc, cur| match acc {
             Some(a) if a.0 >= cur.0 => Some(a),
@@ -412,7 +477,8 @@ fn evaluate(
             let egress_seen = run.end >= hi - EDGE_SLACK_DAYS;
             let before = ((lo - run.start) * 1440.0).max(0.0);
             let after = ((run.end - hi) * 1440.0).max(0.0);
-            let full_base = before >= opts.baseline_before_min - 1.0 / 60.0 && after >= opts.baseline_after_min - 1.0 / 60.0;
+            let full_base = before >= opts.baseline_before_min - 1.0 / 60.0
+                && after >= opts.baseline_after_min - 1.0 / 60.0;
             let v = match (ingress_seen, egress_seen) {
                 (true, true) if full_base => Verdict::Whole,
                 (true, true) => Verdict::WholeShortBaseline,
@@ -438,7 +504,13 @@ fn evaluate(
     let (alt_mid, az_mid) = track.alt_az_deg(mid_utc);
     let (alt_eg, _) = track.alt_az_deg(egress);
     let sm = sun_moon_at(JdUtc(mid_utc), &site.observer);
-    let moon_sep = separation_rad(track.ra_rad, track.dec_rad, sm.moon_topo.ra_rad, sm.moon_topo.dec_rad).to_degrees();
+    let moon_sep = separation_rad(
+        track.ra_rad,
+        track.dec_rad,
+        sm.moon_topo.ra_rad,
+        sm.moon_topo.dec_rad,
+    )
+    .to_degrees();
     Event {
         target_index,
         site_index,
@@ -483,10 +555,17 @@ pub fn plan(sites: &[Site], targets: &[Target], opts: &PlanOptions) -> Plan {
     for (si, site) in sites.iter().enumerate() {
         let nights = nights_at(site, opts.first_night, opts.last_night);
         let (Some(first), Some(last)) = (nights.first(), nights.last()) else {
-            site_plans.push(SitePlan { site_index: si, nights, events: Vec::new() });
+            site_plans.push(SitePlan {
+                site_index: si,
+                nights,
+                events: Vec::new(),
+            });
             continue;
         };
-        let range = Interval { start: first.window.start, end: last.window.end };
+        let range = Interval {
+            start: first.window.start,
+            end: last.window.end,
+        };
         let earth = EarthTable::new(range.start - 1.0, range.end + 1.0);
         let mut events = Vec::new();
         for (ti, target) in targets.iter().enumerate() {
@@ -494,7 +573,9 @@ pub fn plan(sites: &[Site], targets: &[Target], opts: &PlanOptions) -> Plan {
             let eph = &target.ephemeris;
             // Light time and TT-UTC are < 0.01 d: widen the range by 0.02 d in the target's time system.
             for n in eph.epochs_between(range.start - 0.02, range.end + 0.02) {
-                let mid = earth.utc_from_system(eph.system, eph.mid_time(n), &icrs, Some(&site.observer)).0;
+                let mid = earth
+                    .utc_from_system(eph.system, eph.mid_time(n), &icrs, Some(&site.observer))
+                    .0;
                 let date = night_of(mid, site.tz);
                 let Some(night) = nights.iter().find(|nt| nt.night_of == date) else {
                     continue;
@@ -509,25 +590,50 @@ pub fn plan(sites: &[Site], targets: &[Target], opts: &PlanOptions) -> Plan {
                 }
             }
         }
-        events.sort_by(|a, b| a.block_start_utc.total_cmp(&b.block_start_utc).then(a.target_index.cmp(&b.target_index)));
-        site_plans.push(SitePlan { site_index: si, nights, events });
+        events.sort_by(|a, b| {
+            a.block_start_utc
+                .total_cmp(&b.block_start_utc)
+                .then(a.target_index.cmp(&b.target_index))
+        });
+        site_plans.push(SitePlan {
+            site_index: si,
+            nights,
+            events,
+        });
     }
     Plan {
         sites: site_plans,
-        lost: lost.into_iter().map(|(target_index, sigma_min)| LostEphemeris { target_index, sigma_min }).collect(),
+        lost: lost
+            .into_iter()
+            .map(|(target_index, sigma_min)| LostEphemeris {
+                target_index,
+                sigma_min,
+            })
+            .collect(),
     }
 }
 
 /// Brute-force oracle: the usable time inside `[start, end]` for a target at a site, sampled every minute
 /// with the full-precision pipeline (no frozen track, no root finding). For tests only; about 100x slower.
-pub fn usable_minutes_oracle(site: &Site, target: &Target, night: &Night, start: f64, end: f64, earth: &EarthTable) -> Vec<bool> {
+pub fn usable_minutes_oracle(
+    site: &Site,
+    target: &Target,
+    night: &Night,
+    start: f64,
+    end: f64,
+    earth: &EarthTable,
+) -> Vec<bool> {
     let icrs = unit_from_radec(target.ra_deg.to_radians(), target.dec_deg.to_radians());
     let n = ((end - start) * 1440.0).round() as usize;
     (0..=n)
         .map(|i| {
             let t = start + i as f64 / 1440.0;
-            let dark = night.dark.map(|d| t >= d.start && t <= d.end).unwrap_or(false);
-            let (alt, az) = crate::astro::sky::target_alt_az_deg(&icrs, JdUtc(t), &site.observer, earth);
+            let dark = night
+                .dark
+                .map(|d| t >= d.start && t <= d.end)
+                .unwrap_or(false);
+            let (alt, az) =
+                crate::astro::sky::target_alt_az_deg(&icrs, JdUtc(t), &site.observer, earth);
             let mut ok = dark && alt >= site.min_alt_deg && alt >= site.horizon.min_alt_deg(az);
             let eo = EarthOrientation::at(JdUtc(t));
             let vel = earth.earth_bary_vel_au_per_day(jd_tdb_from_utc(JdUtc(t)).0);
@@ -538,7 +644,9 @@ pub fn usable_minutes_oracle(site: &Site, target: &Target, night: &Night, start:
             }
             if let Some(min_sep) = site.min_moon_sep_deg {
                 let sm = sun_moon_at(JdUtc(t), &site.observer);
-                ok &= separation_rad(ra, dec, sm.moon_topo.ra_rad, sm.moon_topo.dec_rad).to_degrees() >= min_sep;
+                ok &= separation_rad(ra, dec, sm.moon_topo.ra_rad, sm.moon_topo.dec_rad)
+                    .to_degrees()
+                    >= min_sep;
             }
             ok
         })

@@ -48,11 +48,40 @@ pub struct EventRecord {
 
 /// The fields of [`EventRecord`] in order: the CSV header and the JSON keys of each event.
 pub const EVENT_FIELDS: &[&str] = &[
-    "target", "site", "epoch", "verdict", "observable", "coverage", "mid_utc", "ingress_utc", "egress_utc",
-    "block_start_utc", "block_end_utc", "usable_start_utc", "usable_end_utc", "sigma_min", "baseline_before_min",
-    "baseline_after_min", "night_of", "night_start_utc", "night_end_utc", "alt_ingress_deg", "alt_mid_deg",
-    "alt_egress_deg", "airmass_ingress", "airmass_mid", "airmass_egress", "az_mid_deg", "sun_alt_mid_deg",
-    "moon_alt_mid_deg", "moon_sep_deg", "moon_illum", "meridian_utc", "depth_ppt", "priority", "reasons",
+    "target",
+    "site",
+    "epoch",
+    "verdict",
+    "observable",
+    "coverage",
+    "mid_utc",
+    "ingress_utc",
+    "egress_utc",
+    "block_start_utc",
+    "block_end_utc",
+    "usable_start_utc",
+    "usable_end_utc",
+    "sigma_min",
+    "baseline_before_min",
+    "baseline_after_min",
+    "night_of",
+    "night_start_utc",
+    "night_end_utc",
+    "alt_ingress_deg",
+    "alt_mid_deg",
+    "alt_egress_deg",
+    "airmass_ingress",
+    "airmass_mid",
+    "airmass_egress",
+    "az_mid_deg",
+    "sun_alt_mid_deg",
+    "moon_alt_mid_deg",
+    "moon_sep_deg",
+    "moon_illum",
+    "meridian_utc",
+    "depth_ppt",
+    "priority",
+    "reasons",
 ];
 
 fn round(x: f64, decimals: i32) -> f64 {
@@ -117,7 +146,9 @@ fn records(plan: &Plan, sites: &[Site], targets: &[Target]) -> Vec<EventRecord> 
 
 /// CSV: a header and one line per event, the JSON fields as columns (`reasons` joined with `;`).
 pub fn plan_csv(plan: &Plan, sites: &[Site], targets: &[Target]) -> String {
-    let mut w = csv::WriterBuilder::new().has_headers(false).from_writer(Vec::new());
+    let mut w = csv::WriterBuilder::new()
+        .has_headers(false)
+        .from_writer(Vec::new());
     let _ = w.write_record(EVENT_FIELDS);
     for r in &records(plan, sites, targets) {
         let _ = w.write_record(csv_cells(r));
@@ -133,9 +164,15 @@ fn csv_cells(r: &EventRecord) -> Vec<String> {
         .map(|v| match v {
             serde_json::Value::Null => String::new(),
             serde_json::Value::String(s) => s.clone(),
-            serde_json::Value::Array(items) => {
-                items.iter().map(|i| i.as_str().map(str::to_string).unwrap_or_else(|| i.to_string())).collect::<Vec<_>>().join(";")
-            }
+            serde_json::Value::Array(items) => items
+                .iter()
+                .map(|i| {
+                    i.as_str()
+                        .map(str::to_string)
+                        .unwrap_or_else(|| i.to_string())
+                })
+                .collect::<Vec<_>>()
+                .join(";"),
             other => other.to_string(),
         })
         .collect()
@@ -176,7 +213,9 @@ pub fn plan_json(plan: &Plan, sites: &[Site], targets: &[Target], opts: &PlanOpt
 
 fn hhmm(jd: f64, site: &Site, utc: bool) -> String {
     if utc {
-        crate::civil::datetime_from_jd(jd).format("%H:%M").to_string()
+        crate::civil::datetime_from_jd(jd)
+            .format("%H:%M")
+            .to_string()
     } else {
         local_hhmm(jd, site.tz)
     }
@@ -233,7 +272,13 @@ Notes: flip HH:MM = meridian crossing inside the block (equatorial mounts flip).
 
 /// The terminal table: one table per site, rows grouped by night, site local time (or UTC), fits 120
 /// columns.
-pub fn plan_table(plan: &Plan, sites: &[Site], targets: &[Target], opts: &PlanOptions, utc: bool) -> String {
+pub fn plan_table(
+    plan: &Plan,
+    sites: &[Site],
+    targets: &[Target],
+    opts: &PlanOptions,
+    utc: bool,
+) -> String {
     let mut out = String::new();
     let n_events: usize = plan.sites.iter().map(|s| s.events.len()).sum();
     out.push_str(&format!(
@@ -248,18 +293,22 @@ pub fn plan_table(plan: &Plan, sites: &[Site], targets: &[Target], opts: &PlanOp
     for sp in &plan.sites {
         let site = &sites[sp.site_index];
         let zones: Vec<String> = {
-            let mut z: Vec<String> = sp.nights.iter().map(|n| zone_label(n.window.start, site, utc)).collect();
+            let mut z: Vec<String> = sp
+                .nights
+                .iter()
+                .map(|n| zone_label(n.window.start, site, utc))
+                .collect();
             z.dedup();
             z
         };
         out.push_str(&format!(
-            "\n{} ({:+.3}, {:+.3}); dark: Sun below {} deg; target above {:.1} deg; times {}\n",
+            "\n{}  {:+.3} {:+.3}  times {}\n  dark when the Sun is below {} deg; target above {:.1} deg\n",
             site.name,
             site.lat_deg,
             site.lon_deg,
+            if utc { "UTC".to_string() } else { format!("{} ({})", zones.join(" then "), site.tz.name()) },
             site.darkness_alt_deg,
             site.min_alt_deg,
-            if utc { "UTC".to_string() } else { format!("{} ({})", zones.join(" then "), site.tz.name()) }
         ));
         if !sp.events.is_empty() {
             let mut table = Table::new();
@@ -268,7 +317,16 @@ pub fn plan_table(plan: &Plan, sites: &[Site], targets: &[Target], opts: &PlanOp
                 .set_content_arrangement(ContentArrangement::Dynamic)
                 .set_width(120)
                 .set_header(vec![
-                    "Night", "Target", "Verdict", "Cover", "Block", "Ingr  Mid   Egr", "+-sig", "Alt i/m/e", "Moon", "Notes",
+                    "Night",
+                    "Target",
+                    "Verdict",
+                    "Cover",
+                    "Block",
+                    "Ingr  Mid   Egr",
+                    "+-sig",
+                    "Alt i/m/e",
+                    "Moon",
+                    "Notes",
                 ]);
             for col in table.column_iter_mut() {
                 col.set_padding((0, 0));
@@ -279,8 +337,11 @@ pub fn plan_table(plan: &Plan, sites: &[Site], targets: &[Target], opts: &PlanOp
                 if previous_night.is_some() && previous_night != Some(e.night_of) {
                     table.add_row(vec![""; 10]);
                 }
-                let night_cell =
-                    if previous_night != Some(e.night_of) { e.night_of.format("%a %m-%d").to_string() } else { String::new() };
+                let night_cell = if previous_night != Some(e.night_of) {
+                    e.night_of.format("%a %m-%d").to_string()
+                } else {
+                    String::new()
+                };
                 previous_night = Some(e.night_of);
                 let mut notes = Vec::new();
                 if let Some(m) = e.meridian_utc {
@@ -288,14 +349,19 @@ pub fn plan_table(plan: &Plan, sites: &[Site], targets: &[Target], opts: &PlanOp
                 }
                 let limits: Vec<&str> = e.reasons.iter().map(|r| reason_note(*r)).collect();
                 if !limits.is_empty() {
-                    notes.push(limits.join(","));
+                    notes.push(limits.join(", "));
                 }
                 table.add_row(vec![
                     Cell::new(night_cell),
                     Cell::new(&t.name),
                     Cell::new(e.verdict.label()),
-                    Cell::new(format!("{:.0}%", e.coverage * 100.0)).set_alignment(CellAlignment::Right),
-                    Cell::new(format!("{}-{}", hhmm(e.block_start_utc, site, utc), hhmm(e.block_end_utc, site, utc))),
+                    Cell::new(format!("{:.0}%", e.coverage * 100.0))
+                        .set_alignment(CellAlignment::Right),
+                    Cell::new(format!(
+                        "{}-{}",
+                        hhmm(e.block_start_utc, site, utc),
+                        hhmm(e.block_end_utc, site, utc)
+                    )),
                     Cell::new(format!(
                         "{} {} {}",
                         hhmm(e.ingress_utc, site, utc),
@@ -303,8 +369,15 @@ pub fn plan_table(plan: &Plan, sites: &[Site], targets: &[Target], opts: &PlanOp
                         hhmm(e.egress_utc, site, utc)
                     )),
                     Cell::new(format!("{:.1}m", e.sigma_min)).set_alignment(CellAlignment::Right),
-                    Cell::new(format!("{:.0}/{:.0}/{:.0}", e.alt_ingress_deg, e.alt_mid_deg, e.alt_egress_deg)),
-                    Cell::new(format!("{:.0}d {:.0}%", e.moon_sep_deg, e.moon_illum * 100.0)),
+                    Cell::new(format!(
+                        "{:.0}/{:.0}/{:.0}",
+                        e.alt_ingress_deg, e.alt_mid_deg, e.alt_egress_deg
+                    )),
+                    Cell::new(format!(
+                        "{:.0}d {:.0}%",
+                        e.moon_sep_deg,
+                        e.moon_illum * 100.0
+                    )),
                     Cell::new(notes.join(" ")),
                 ]);
             }
@@ -317,7 +390,12 @@ pub fn plan_table(plan: &Plan, sites: &[Site], targets: &[Target], opts: &PlanOp
             out.push_str(&table.to_string());
             out.push('\n');
         }
-    let no_dark: Vec<chrono::NaiveDate> = sp.nights.iter().filter(|n| n.dark.is_none()).map(|n| n.night_of).collect();
+        let no_dark: Vec<chrono::NaiveDate> = sp
+            .nights
+            .iter()
+            .filter(|n| n.dark.is_none())
+            .map(|n| n.night_of)
+            .collect();
         if !no_dark.is_empty() {
             out.push_str(&format!(
                 "\n  No dark time at {} (the Sun stays above {} deg) on: {}\n",
@@ -330,14 +408,21 @@ pub fn plan_table(plan: &Plan, sites: &[Site], targets: &[Target], opts: &PlanOp
             out.push_str(&format!(
                 "\n  Nothing observable at {} in this range{}.\n",
                 site.name,
-                if opts.include_unobservable { "" } else { " (--include-unobservable lists every transit with its reasons)" }
+                if opts.include_unobservable {
+                    ""
+                } else {
+                    " (--include-unobservable lists every transit with its reasons)"
+                }
             ));
         }
     }
     if !plan.lost.is_empty() {
         out.push_str("\nEphemeris lost (timing sigma over 1/8 of the period; transits not listed, new observations needed):\n");
         for l in &plan.lost {
-            out.push_str(&format!("  {}: sigma {:.0} min\n", targets[l.target_index].name, l.sigma_min));
+            out.push_str(&format!(
+                "  {}: sigma {:.0} min\n",
+                targets[l.target_index].name, l.sigma_min
+            ));
         }
     }
     if n_events > 0 {
@@ -345,11 +430,25 @@ pub fn plan_table(plan: &Plan, sites: &[Site], targets: &[Target], opts: &PlanOp
         out.push_str(LEGEND);
         out.push('\n');
     }
-    let observable = plan.sites.iter().flat_map(|s| &s.events).filter(|e| e.observable).count();
-    let whole = plan.sites.iter().flat_map(|s| &s.events).filter(|e| e.observable && e.verdict == Verdict::Whole).count();
+    let observable = plan
+        .sites
+        .iter()
+        .flat_map(|s| &s.events)
+        .filter(|e| e.observable)
+        .count();
+    let whole = plan
+        .sites
+        .iter()
+        .flat_map(|s| &s.events)
+        .filter(|e| e.observable && e.verdict == Verdict::Whole)
+        .count();
     out.push_str(&format!(
         "\n{observable} observable events ({whole} whole with both baselines){}.\n",
-        if opts.include_unobservable { format!(", {} listed in all", n_events) } else { String::new() }
+        if opts.include_unobservable {
+            format!(", {} listed in all", n_events)
+        } else {
+            String::new()
+        }
     ));
     out
 }
