@@ -313,7 +313,7 @@ fn sky_cases_match_erfa() {
     const ILLUM_TOL: f64 = 0.01;
     let rows = fixture("sky_cases.csv");
     assert!(rows.len() >= 200);
-    let mut worst = [0.0_f64; 6];
+    let mut worst = [0.0_f64; 7];
     for row in &rows {
         let v: Vec<f64> = row.iter().map(|s| num(s)).collect();
         let (jd_utc, lat, lon, h, ra, dec) = (v[0], v[1], v[2], v[3], v[4], v[5]);
@@ -331,7 +331,10 @@ fn sky_cases_match_erfa() {
         let e_sun = (sm.sun_alt_deg - v[9]).abs();
         let e_moon = sky_distance_deg(sm.moon_alt_deg, sm.moon_az_deg, v[10], v[11]);
         let e_illum = (sm.moon_illum - v[12]).abs();
-        let errs = [e_bjd, e_inv, e_target, e_sun, e_moon, e_illum];
+        let hjd = table.time_in_system(TimeSystem::HjdUtc, JdUtc(jd_utc), &target, Some(&obs));
+        let e_hjd = (hjd - v[13]).abs() * 86_400.0;
+        assert!(e_hjd < BJD_TOL_S, "HJD_UTC off by {e_hjd} s: {row:?}");
+        let errs = [e_bjd, e_inv, e_target, e_sun, e_moon, e_illum, e_hjd];
         for (w, e) in worst.iter_mut().zip(errs) {
             *w = w.max(e);
         }
@@ -361,14 +364,15 @@ fn sky_cases_match_erfa() {
         );
     }
     eprintln!(
-        "worst vs ERFA over {} cases: BJD {:.2} ms, inverse {:.2} ms, target {:.5} deg, Sun {:.5} deg, Moon {:.4} deg, illum {:.5}",
+        "worst vs ERFA over {} cases: BJD {:.2} ms, inverse {:.2} ms, target {:.5} deg, Sun {:.5} deg, Moon {:.4} deg, illum {:.5}, HJD_UTC {:.2} ms",
         rows.len(),
         worst[0] * 1e3,
         worst[1] * 1e3,
         worst[2],
         worst[3],
         worst[4],
-        worst[5]
+        worst[5],
+        worst[6] * 1e3
     );
 }
 

@@ -123,11 +123,13 @@ def sky_cases(rng):
         z_km = erfa.gd2gc(1, elong, phi, hm)[2] / 1000.0
         dtdb = erfa.dtdb(t1, t2, ut_frac, elong, r_km, z_km)
         tdb1, tdb2 = t1, t2 + dtdb / 86400.0
-        _pvh, pvb = erfa.epv00(tdb1, tdb2)
+        pvh, pvb = erfa.epv00(tdb1, tdb2)
         obs = observer_gcrs_au(u1, u2, t1, t2, elong, phi, hm)
         n = erfa.s2c(math.radians(ra), math.radians(dec))
         roemer_days = float((pvb[0] + obs) @ n) * AU_M / C_M_S / 86400.0
         bjd_tdb = tdb1 + tdb2 + roemer_days
+        # HJD_UTC: UTC plus the light time of the observer relative to the Sun's centre.
+        hjd_utc = jd_utc + float((pvh[0] + obs) @ n) * AU_M / C_M_S / 86400.0
         # Target: observed place without refraction (phpa = 0).
         aob, zob, _h, _d, _r, _eo = erfa.atco13(
             math.radians(ra), math.radians(dec), 0.0, 0.0, 0.0, 0.0, u1, u2, 0.0,
@@ -146,11 +148,11 @@ def sky_cases(rng):
         to_earth = -moon
         cos_i = float(to_sun @ to_earth) / (np.linalg.norm(to_sun) * np.linalg.norm(to_earth))
         illum = (1.0 + cos_i) / 2.0
-        rows.append(tuple(f"{x:.10f}" if i in (0, 6) else f"{x:.8f}" for i, x in enumerate(
-            (jd_utc, lat, lon, hm, ra, dec, bjd_tdb, t_alt, t_az, s_alt, m_alt, m_az, illum))))
+        rows.append(tuple(f"{x:.10f}" if i in (0, 6, 13) else f"{x:.8f}" for i, x in enumerate(
+            (jd_utc, lat, lon, hm, ra, dec, bjd_tdb, t_alt, t_az, s_alt, m_alt, m_az, illum, hjd_utc))))
     write("sky_cases.csv",
           ["jd_utc", "lat_deg", "lon_deg", "height_m", "ra_deg", "dec_deg", "bjd_tdb",
-           "target_alt_deg", "target_az_deg", "sun_alt_deg", "moon_alt_deg", "moon_az_deg", "moon_illum"],
+           "target_alt_deg", "target_az_deg", "sun_alt_deg", "moon_alt_deg", "moon_az_deg", "moon_illum", "hjd_utc"],
           rows)
 
 
