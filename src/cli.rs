@@ -26,6 +26,10 @@ struct Cli {
 enum Command {
     /// List the observable full and partial transits per site and night over a date range.
     Plan(PlanArgs),
+    /// One night at one site: its almanac and every transit touching it, with start times.
+    Tonight(TonightArgs),
+    /// A per-night almanac for one site: Sun, twilights, darkness and the Moon.
+    Nights(NightsArgs),
 }
 
 /// Where the sites and targets come from, and which of them to use.
@@ -69,12 +73,9 @@ enum Format {
     Json,
 }
 
+/// How blocks are built and judged.
 #[derive(Args, Debug)]
-struct PlanArgs {
-    #[command(flatten)]
-    input: InputArgs,
-    #[command(flatten)]
-    range: RangeArgs,
+struct BlockArgs {
     /// Smallest in-transit coverage (0-1) to list an event
     #[arg(long, value_name = "F", default_value_t = 0.0)]
     min_coverage: f64,
@@ -87,6 +88,39 @@ struct PlanArgs {
     /// Out-of-transit baseline wanted after egress, minutes
     #[arg(long, value_name = "MIN", default_value_t = 30.0)]
     baseline_after: f64,
+}
+
+impl BlockArgs {
+    fn options(
+        &self,
+        first_night: NaiveDate,
+        last_night: NaiveDate,
+        include_unobservable: bool,
+    ) -> Result<PlanOptions> {
+        check_finite("min-coverage", self.min_coverage, 0.0, 1.0)?;
+        check_finite("sigma", self.sigma, 0.0, 10.0)?;
+        check_finite("baseline-before", self.baseline_before, 0.0, 720.0)?;
+        check_finite("baseline-after", self.baseline_after, 0.0, 720.0)?;
+        Ok(PlanOptions {
+            first_night,
+            last_night,
+            sigma_k: self.sigma,
+            baseline_before_min: self.baseline_before,
+            baseline_after_min: self.baseline_after,
+            min_coverage: self.min_coverage,
+            include_unobservable,
+        })
+    }
+}
+
+#[derive(Args, Debug)]
+struct PlanArgs {
+    #[command(flatten)]
+    input: InputArgs,
+    #[command(flatten)]
+    range: RangeArgs,
+    #[command(flatten)]
+    block: BlockArgs,
     /// Output format
     #[arg(long, value_enum, default_value_t = Format::Table)]
     format: Format,
@@ -124,6 +158,8 @@ pub fn run() -> Result<()> {
     };
     match cli.command {
         Command::Plan(args) => run_plan(args),
+        Command::Tonight(args) => run_tonight(args),
+        Command::Nights(args) => run_nights(args),
     }
 }
 
@@ -157,31 +193,39 @@ fn read_input(
     Ok((label, text))
 }
 
-/// Load, parse and select sites and targets.
-fn load(input: &InputArgs) -> Result<(Vec<Site>, Vec<Target>)> {
-    let (sites_label, sites_text) =
-        read_input(&input.sites, "sites.toml", "sites.example.toml", "sites")?;
-    let (targets_label, targets_text) = read_input(
-        &input.targets,
-        "targets.csv",
-        "targets.example.csv",
-        "targets",
-    )?;
-    let map = match &input.columns {
+/// Load, parse and select sites.
+fn load_sites(sites: &Option<PathBuf>, names: &[String]) -> Result<Vec<Site>> {
+    let (label, text) = read_input(sites, "sites.toml", "sites.example.toml", "sites")?;
+    let all = parse_sites(&label, &text)?;
+    select(all, names, |s| &s.name, "site", &label)
+}
+
+/// Load, parse and select targets.
+fn load_targets(
+    targets: &Option<PathBuf>,
+    columns: &Option<String>,
+    names: &[String],
+) -> Result<Vec<Target>> {
+    let map = match columns {
         Some(spec) => ColumnMap::parse(spec).map_err(|m| anyhow::anyhow!("--columns: {m}"))?,
         None => ColumnMap::default(),
     };
-    let sites = parse_sites(&sites_label, &sites_text)?;
-    let targets = parse_targets(&targets_label, &targets_text, &map)?;
-    let sites = select(sites, &input.site_names, |s| &s.name, "site", &sites_label)?;
-    let targets = select(
-        targets,
-        &input.target_names,
-        |t| &t.name,
-        "target",
-        &targets_label,
-    )?;
+    let (label, text) = read_input(targets, "targets.csv", "targets.example.csv", "targets")?;
+    let all = parse_targets(&label, &text, &map)?;
+    select(all, names, |t| &t.name, "target", &label)
+}
+
+/// Load, parse and select sites and targets.
+fn load(input: &InputArgs) -> Result<(Vec<Site>, Vec<Target>)> {
+    let sites = load_sites(&input.sites, &input.site_names)?;
+    let targets = load_targets(&input.targets, &input.columns, &input.target_names)?;
     Ok((sites, targets))
+}
+
+/// Exactly one site from the file, named by `--site`.
+fn one_site(sites_file: &Option<PathBuf>, name: &str) -> Result<Site> {
+    let mut sites = load_sites(sites_file, &[name.to_string()])?;
+    Ok(sites.remove(0))
 }
 
 fn select<T>(
@@ -244,21 +288,11 @@ fn check_finite(name: &str, v: f64, lo: f64, hi: f64) -> Result<()> {
 }
 
 fn run_plan(args: PlanArgs) -> Result<()> {
-    check_finite("min-coverage", args.min_coverage, 0.0, 1.0)?;
-    check_finite("sigma", args.sigma, 0.0, 10.0)?;
-    check_finite("baseline-before", args.baseline_before, 0.0, 720.0)?;
-    check_finite("baseline-after", args.baseline_after, 0.0, 720.0)?;
     let (first_night, last_night) = resolve_range(&args.range)?;
+    let opts = args
+        .block
+        .options(first_night, last_night, args.include_unobservable)?;
     let (sites, targets) = load(&args.input)?;
-    let opts = PlanOptions {
-        first_night,
-        last_night,
-        sigma_k: args.sigma,
-        baseline_before_min: args.baseline_before,
-        baseline_after_min: args.baseline_after,
-        min_coverage: args.min_coverage,
-        include_unobservable: args.include_unobservable,
-    };
     let result = plan(&sites, &targets, &opts);
     let text = match args.format {
         Format::Table => report::plan_table(&result, &sites, &targets, &opts, args.utc),
@@ -304,4 +338,126 @@ pub fn write_atomically(path: &Path, bytes: &[u8]) -> Result<()> {
         return Err(e).with_context(|| format!("cannot write {}", path.display()));
     }
     Ok(())
+}
+
+#[derive(Copy, Clone, Debug, PartialEq, Eq, ValueEnum)]
+enum TextFormat {
+    Text,
+    Json,
+}
+
+#[derive(Args, Debug)]
+struct TonightArgs {
+    /// The site (by name, case-insensitive)
+    #[arg(long, value_name = "NAME")]
+    site: String,
+    /// Only this target (repeatable); asked-for targets with nothing observable are explained
+    #[arg(long = "target", value_name = "NAME")]
+    target_names: Vec<String>,
+    /// The local date on which the night begins. Default: the current or coming night at the site
+    #[arg(long, value_name = "YYYY-MM-DD")]
+    date: Option<NaiveDate>,
+    /// Sites file (TOML). Default: ./sites.toml
+    #[arg(long, value_name = "FILE")]
+    sites: Option<PathBuf>,
+    /// Targets file (CSV). Default: ./targets.csv
+    #[arg(long, value_name = "FILE")]
+    targets: Option<PathBuf>,
+    /// Read differently named target columns: ours=theirs,...
+    #[arg(long, value_name = "MAP")]
+    columns: Option<String>,
+    #[command(flatten)]
+    block: BlockArgs,
+    /// Output format
+    #[arg(long, value_enum, default_value_t = TextFormat::Text)]
+    format: TextFormat,
+    /// Show UTC instead of site local time
+    #[arg(long)]
+    utc: bool,
+}
+
+fn run_tonight(args: TonightArgs) -> Result<()> {
+    let site = one_site(&args.sites, &args.site)?;
+    let targets = load_targets(&args.targets, &args.columns, &args.target_names)?;
+    let now_jd = dipwatch::civil::jd_from_datetime(&chrono::Utc::now());
+    let current_night = dipwatch::civil::night_of(now_jd, site.tz);
+    let date = args.date.unwrap_or(current_night);
+    let opts = args.block.options(date, date, true)?;
+    // The countdown only makes sense for the night in progress or about to begin.
+    let now = (date == current_night).then_some(now_jd);
+    let sites = vec![site];
+    let result = plan(&sites, &targets, &opts);
+    let events = &result.sites[0].events;
+    let almanac = dipwatch::almanac::night_almanac(&sites[0], date);
+    let asked: Vec<usize> = if args.target_names.is_empty() {
+        Vec::new()
+    } else {
+        (0..targets.len()).collect()
+    };
+    let absences: Vec<report::Absence> = asked
+        .iter()
+        .filter(|&&ti| !events.iter().any(|e| e.target_index == ti))
+        .map(|&ti| report::Absence::NoTransit {
+            target_index: ti,
+            next_mid_utc: dipwatch::plan::next_mid_after(
+                &targets[ti],
+                &sites[0],
+                almanac.window.end,
+            ),
+        })
+        .collect();
+    let text = match args.format {
+        TextFormat::Text => report::tonight_text(
+            &sites[0], &almanac, events, &targets, &asked, &absences, now, args.utc,
+        ),
+        TextFormat::Json => report::tonight_json(
+            &sites[0], &almanac, events, &sites, &targets, &absences, now,
+        ),
+    };
+    emit(&text, None)
+}
+
+#[derive(Args, Debug)]
+struct NightsArgs {
+    /// Sites file (TOML). Default: ./sites.toml
+    #[arg(long, value_name = "FILE")]
+    sites: Option<PathBuf>,
+    /// The site (by name, case-insensitive)
+    #[arg(long, value_name = "NAME")]
+    site: String,
+    /// First night, YYYY-MM-DD. Default: today
+    #[arg(long, value_name = "DATE")]
+    from: Option<NaiveDate>,
+    /// Number of nights
+    #[arg(long, value_name = "N", default_value_t = 14)]
+    days: u32,
+    /// Output format
+    #[arg(long, value_enum, default_value_t = Format::Table)]
+    format: Format,
+    /// Show UTC instead of site local time in the table
+    #[arg(long)]
+    utc: bool,
+    /// Write to this file (atomically) instead of standard output
+    #[arg(long, value_name = "FILE")]
+    out: Option<PathBuf>,
+}
+
+fn run_nights(args: NightsArgs) -> Result<()> {
+    let (first, last) = resolve_range(&RangeArgs {
+        from: args.from,
+        to: None,
+        days: Some(args.days),
+    })?;
+    let site = one_site(&args.sites, &args.site)?;
+    let nights: Vec<_> = first
+        .iter_days()
+        .take_while(|d| *d <= last)
+        .map(|d| dipwatch::almanac::night_almanac(&site, d))
+        .collect();
+    let text = match args.format {
+        Format::Table => report::nights_table(&site, &nights, args.utc),
+        Format::Csv => report::nights_csv(&nights),
+        Format::Json => report::nights_json(&site, &nights),
+    };
+    emit(&text, args.out.as_deref())
 }

@@ -4,6 +4,7 @@
 //! (Sun, Moon, target geometry at a site) -> verdicts (observable blocks, reasons) -> outputs.
 //! The library only computes; files, the clock and the terminal belong to the binary.
 
+pub mod almanac;
 pub mod astro;
 pub mod civil;
 pub mod constants;

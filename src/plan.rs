@@ -169,6 +169,10 @@ pub struct Event {
     pub alt_mid_deg: f64,
     /// Altitude at egress, deg.
     pub alt_egress_deg: f64,
+    /// Altitude at block start, deg.
+    pub alt_block_start_deg: f64,
+    /// Altitude at block end, deg.
+    pub alt_block_end_deg: f64,
     /// Kasten-Young airmass at ingress, mid-transit and egress (infinite below -6 deg).
     pub airmass_ingress: f64,
     /// Airmass at mid-transit.
@@ -532,6 +536,8 @@ fn evaluate(
         alt_ingress_deg: alt_in,
         alt_mid_deg: alt_mid,
         alt_egress_deg: alt_eg,
+        alt_block_start_deg: track.alt_az_deg(block.start).0,
+        alt_block_end_deg: track.alt_az_deg(block.end).0,
         airmass_ingress: airmass_kasten_young(alt_in),
         airmass_mid: airmass_kasten_young(alt_mid),
         airmass_egress: airmass_kasten_young(alt_eg),
@@ -610,6 +616,23 @@ pub fn plan(sites: &[Site], targets: &[Target], opts: &PlanOptions) -> Plan {
                 sigma_min,
             })
             .collect(),
+    }
+}
+
+/// The first predicted mid-transit of `target` after `jd_utc` as seen from `site`, UTC JD.
+pub fn next_mid_after(target: &Target, site: &Site, jd_utc: f64) -> f64 {
+    let eph = &target.ephemeris;
+    let earth = EarthTable::new(jd_utc - 1.0, jd_utc + eph.period_days + 1.0);
+    let icrs = unit_from_radec(target.ra_deg.to_radians(), target.dec_deg.to_radians());
+    let mut n = ((jd_utc - 0.02 - eph.t0) / eph.period_days).floor() as i64;
+    loop {
+        let t = earth
+            .utc_from_system(eph.system, eph.mid_time(n), &icrs, Some(&site.observer))
+            .0;
+        if t > jd_utc {
+            return t;
+        }
+        n += 1;
     }
 }
 

@@ -212,6 +212,51 @@ def main():
     tdb_minus_tt(rng)
     sky_cases(rng)
     sun_crossing_cases(rng)
+    night_fixture_cases()
+
+
+
+
+def night_fixture_cases():
+    """Sun crossings for whole local nights at three invented sites (north, south, arctic) for `dipwatch nights`."""
+    from datetime import date, datetime, timedelta
+    from zoneinfo import ZoneInfo
+
+    sites = [
+        ("north", 48.712, 9.031, 420.0, "Europe/Berlin"),
+        ("south", -34.517, 19.872, 150.0, "Africa/Johannesburg"),
+        ("arctic", 69.652, 18.961, 40.0, "Europe/Oslo"),
+    ]
+    rows = []
+    for name, lat, lon, hm, tz in sites:
+        days = [date(2027, m, 15) for m in range(1, 13)] + [date(2027, 6, 21), date(2027, 12, 21)]
+        for d in days:
+            noon = datetime(d.year, d.month, d.day, 12, tzinfo=ZoneInfo(tz))
+            nxt = noon.replace(tzinfo=None) + timedelta(days=1)
+            noon2 = nxt.replace(tzinfo=ZoneInfo(tz))
+            start = noon.timestamp() / 86400.0 + 2440587.5
+            end = noon2.timestamp() / 86400.0 + 2440587.5
+            elong, phi = math.radians(lon), math.radians(lat)
+            cells = [name, f"{lat}", f"{lon}", f"{hm}", tz, d.isoformat()]
+            for level in (-0.8333, -6.0, -12.0, -18.0):
+                f = lambda t: level - sun_alt_deg(t, 0.0, elong, phi, hm)
+                step = 5.0 / 1440.0
+                ts = np.arange(start, end + step / 2, step)
+                below = [f(t) >= 0 for t in ts]
+                down = up = ""
+                for k in range(1, len(ts)):
+                    if below[k] != below[k - 1]:
+                        root = crossing(f, ts[k - 1], ts[k])
+                        if below[k] and down == "":
+                            down = f"{root:.8f}"
+                        elif not below[k]:
+                            up = f"{root:.8f}"
+                cells += [down, up]
+            rows.append(tuple(cells))
+    write("nights.csv",
+          ["site", "lat_deg", "lon_deg", "height_m", "timezone", "night_of",
+           "sunset", "sunrise", "civil_dusk", "civil_dawn", "nautical_dusk", "nautical_dawn",
+           "astronomical_dusk", "astronomical_dawn"], rows)
 
 
 if __name__ == "__main__":

@@ -1,6 +1,7 @@
-//! Plan outputs: the terminal table, CSV and JSON. Pure formatting: strings in, strings out.
+//! `plan` outputs: the terminal table, CSV and JSON.
 
-use crate::civil::{local_hhmm, rfc3339_utc, zone_abbreviation};
+use super::{finite, hhmm, round, zone_label};
+use crate::civil::rfc3339_utc;
 use crate::inputs::sites::Site;
 use crate::inputs::targets::Target;
 use crate::plan::{Event, Plan, PlanOptions, Reason, Verdict};
@@ -32,6 +33,8 @@ pub struct EventRecord {
     pub alt_ingress_deg: f64,
     pub alt_mid_deg: f64,
     pub alt_egress_deg: f64,
+    pub alt_block_start_deg: f64,
+    pub alt_block_end_deg: f64,
     pub airmass_ingress: Option<f64>,
     pub airmass_mid: Option<f64>,
     pub airmass_egress: Option<f64>,
@@ -84,15 +87,6 @@ pub const EVENT_FIELDS: &[&str] = &[
     "reasons",
 ];
 
-fn round(x: f64, decimals: i32) -> f64 {
-    let k = 10f64.powi(decimals);
-    (x * k).round() / k
-}
-
-fn finite(x: f64, decimals: i32) -> Option<f64> {
-    x.is_finite().then(|| round(x, decimals))
-}
-
 impl EventRecord {
     /// The record of `e`, with names looked up in the inputs.
     pub fn new(e: &Event, sites: &[Site], targets: &[Target]) -> EventRecord {
@@ -120,6 +114,8 @@ impl EventRecord {
             alt_ingress_deg: round(e.alt_ingress_deg, 2),
             alt_mid_deg: round(e.alt_mid_deg, 2),
             alt_egress_deg: round(e.alt_egress_deg, 2),
+            alt_block_start_deg: round(e.alt_block_start_deg, 2),
+            alt_block_end_deg: round(e.alt_block_end_deg, 2),
             airmass_ingress: finite(e.airmass_ingress, 3),
             airmass_mid: finite(e.airmass_mid, 3),
             airmass_egress: finite(e.airmass_egress, 3),
@@ -146,36 +142,7 @@ fn records(plan: &Plan, sites: &[Site], targets: &[Target]) -> Vec<EventRecord> 
 
 /// CSV: a header and one line per event, the JSON fields as columns (`reasons` joined with `;`).
 pub fn plan_csv(plan: &Plan, sites: &[Site], targets: &[Target]) -> String {
-    let mut w = csv::WriterBuilder::new()
-        .has_headers(false)
-        .from_writer(Vec::new());
-    let _ = w.write_record(EVENT_FIELDS);
-    for r in &records(plan, sites, targets) {
-        let _ = w.write_record(csv_cells(r));
-    }
-    String::from_utf8(w.into_inner().unwrap_or_default()).unwrap_or_default()
-}
-
-/// The cells of a record in [`EVENT_FIELDS`] order: null -> empty, lists joined with `;`.
-fn csv_cells(r: &EventRecord) -> Vec<String> {
-    let value = serde_json::to_value(r).unwrap_or_default();
-    let obj = value.as_object().cloned().unwrap_or_default();
-    obj.values()
-        .map(|v| match v {
-            serde_json::Value::Null => String::new(),
-            serde_json::Value::String(s) => s.clone(),
-            serde_json::Value::Array(items) => items
-                .iter()
-                .map(|i| {
-                    i.as_str()
-                        .map(str::to_string)
-                        .unwrap_or_else(|| i.to_string())
-                })
-                .collect::<Vec<_>>()
-                .join(";"),
-            other => other.to_string(),
-        })
-        .collect()
+    super::csv_from_records(EVENT_FIELDS, &records(plan, sites, targets))
 }
 
 /// JSON: `{"options": ..., "sites": [...], "events": [...], "lost_ephemerides": [...]}`.
@@ -209,24 +176,6 @@ pub fn plan_json(plan: &Plan, sites: &[Site], targets: &[Target], opts: &PlanOpt
     let mut s = serde_json::to_string_pretty(&doc).unwrap_or_default();
     s.push('\n');
     s
-}
-
-fn hhmm(jd: f64, site: &Site, utc: bool) -> String {
-    if utc {
-        crate::civil::datetime_from_jd(jd)
-            .format("%H:%M")
-            .to_string()
-    } else {
-        local_hhmm(jd, site.tz)
-    }
-}
-
-fn zone_label(jd: f64, site: &Site, utc: bool) -> String {
-    if utc {
-        "UTC".into()
-    } else {
-        zone_abbreviation(jd, site.tz)
-    }
 }
 
 /// Compress a sorted list of dates into "a to b (n nights)" runs.

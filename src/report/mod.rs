@@ -1,0 +1,68 @@
+//! Outputs: terminal tables, CSV and JSON. Pure formatting: values in, strings out.
+
+mod nights;
+mod plan;
+mod tonight;
+
+pub use nights::{nights_csv, nights_json, nights_table, NightRecord, NIGHT_FIELDS};
+pub use plan::{plan_csv, plan_json, plan_table, EventRecord, EVENT_FIELDS};
+pub use tonight::{countdown, tonight_json, tonight_text, Absence};
+
+use crate::civil::{local_hhmm, zone_abbreviation};
+use crate::inputs::sites::Site;
+
+fn round(x: f64, decimals: i32) -> f64 {
+    let k = 10f64.powi(decimals);
+    (x * k).round() / k
+}
+
+fn finite(x: f64, decimals: i32) -> Option<f64> {
+    x.is_finite().then(|| round(x, decimals))
+}
+
+/// `HH:MM` in site local time, or UTC.
+fn hhmm(jd: f64, site: &Site, utc: bool) -> String {
+    if utc {
+        crate::civil::datetime_from_jd(jd)
+            .format("%H:%M")
+            .to_string()
+    } else {
+        local_hhmm(jd, site.tz)
+    }
+}
+
+/// The zone abbreviation in force at `jd`, or `UTC`.
+fn zone_label(jd: f64, site: &Site, utc: bool) -> String {
+    if utc {
+        "UTC".into()
+    } else {
+        zone_abbreviation(jd, site.tz)
+    }
+}
+
+/// Write CSV rows from serializable records whose JSON form has scalar or list values: null -> empty, lists
+/// joined with `;`. The header is `fields`.
+fn csv_from_records<T: serde::Serialize>(fields: &[&str], records: &[T]) -> String {
+    let mut w = csv::WriterBuilder::new()
+        .has_headers(false)
+        .from_writer(Vec::new());
+    let _ = w.write_record(fields);
+    for r in records {
+        let value = serde_json::to_value(r).unwrap_or_default();
+        let cells: Vec<String> = value
+            .as_object()
+            .map(|o| o.values().map(csv_cell).collect())
+            .unwrap_or_default();
+        let _ = w.write_record(cells);
+    }
+    String::from_utf8(w.into_inner().unwrap_or_default()).unwrap_or_default()
+}
+
+fn csv_cell(v: &serde_json::Value) -> String {
+    match v {
+        serde_json::Value::Null => String::new(),
+        serde_json::Value::String(s) => s.clone(),
+        serde_json::Value::Array(items) => items.iter().map(csv_cell).collect::<Vec<_>>().join(";"),
+        other => other.to_string(),
+    }
+}

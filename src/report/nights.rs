@@ -1,0 +1,179 @@
+//! `nights` outputs: one row per night with the Sun's and Moon's events.
+
+use super::{hhmm, round, zone_label};
+use crate::almanac::NightAlmanac;
+use crate::civil::rfc3339_utc;
+use crate::inputs::sites::Site;
+use comfy_table::{Cell, CellAlignment, ContentArrangement, Table};
+use serde::Serialize;
+
+/// One night as written to CSV and JSON. Field names are documented in the README.
+#[derive(Debug, Clone, Serialize)]
+pub struct NightRecord {
+    pub night_of: String,
+    pub sunset_utc: Option<String>,
+    pub sunrise_utc: Option<String>,
+    pub civil_dusk_utc: Option<String>,
+    pub civil_dawn_utc: Option<String>,
+    pub nautical_dusk_utc: Option<String>,
+    pub nautical_dawn_utc: Option<String>,
+    pub astronomical_dusk_utc: Option<String>,
+    pub astronomical_dawn_utc: Option<String>,
+    pub dark_start_utc: Option<String>,
+    pub dark_end_utc: Option<String>,
+    pub dark_hours: f64,
+    pub moonrise_utc: Option<String>,
+    pub moonset_utc: Option<String>,
+    pub moon_illum: f64,
+    pub notes: Vec<String>,
+}
+
+/// The fields of [`NightRecord`] in order.
+pub const NIGHT_FIELDS: &[&str] = &[
+    "night_of",
+    "sunset_utc",
+    "sunrise_utc",
+    "civil_dusk_utc",
+    "civil_dawn_utc",
+    "nautical_dusk_utc",
+    "nautical_dawn_utc",
+    "astronomical_dusk_utc",
+    "astronomical_dawn_utc",
+    "dark_start_utc",
+    "dark_end_utc",
+    "dark_hours",
+    "moonrise_utc",
+    "moonset_utc",
+    "moon_illum",
+    "notes",
+];
+
+impl NightRecord {
+    /// The record of one almanac night.
+    pub fn new(a: &NightAlmanac) -> NightRecord {
+        let t = |x: Option<f64>| x.map(rfc3339_utc);
+        NightRecord {
+            night_of: a.night_of.to_string(),
+            sunset_utc: t(a.sun.dusk),
+            sunrise_utc: t(a.sun.dawn),
+            civil_dusk_utc: t(a.civil.dusk),
+            civil_dawn_utc: t(a.civil.dawn),
+            nautical_dusk_utc: t(a.nautical.dusk),
+            nautical_dawn_utc: t(a.nautical.dawn),
+            astronomical_dusk_utc: t(a.astronomical.dusk),
+            astronomical_dawn_utc: t(a.astronomical.dawn),
+            dark_start_utc: t(a.dark.map(|d| d.start)),
+            dark_end_utc: t(a.dark.map(|d| d.end)),
+            dark_hours: round(a.dark_hours, 2),
+            moonrise_utc: t(a.moonrise),
+            moonset_utc: t(a.moonset),
+            moon_illum: round(a.moon_illum, 3),
+            notes: a.notes.clone(),
+        }
+    }
+}
+
+/// CSV: one line per night (`notes` joined with `;`, events that do not happen empty).
+pub fn nights_csv(nights: &[NightAlmanac]) -> String {
+    let recs: Vec<NightRecord> = nights.iter().map(NightRecord::new).collect();
+    super::csv_from_records(NIGHT_FIELDS, &recs)
+}
+
+/// JSON: `{"site": ..., "nights": [...]}`; an event that does not happen is null and a note says which.
+pub fn nights_json(site: &Site, nights: &[NightAlmanac]) -> String {
+    let recs: Vec<NightRecord> = nights.iter().map(NightRecord::new).collect();
+    let doc = serde_json::json!({
+        "site": {
+            "name": site.name,
+            "latitude_deg": site.lat_deg,
+            "longitude_deg": site.lon_deg,
+            "timezone": site.tz.name(),
+            "darkness_sun_alt_deg": site.darkness_alt_deg,
+        },
+        "nights": recs,
+    });
+    let mut s = serde_json::to_string_pretty(&doc).unwrap_or_default();
+    s.push('\n');
+    s
+}
+
+/// The terminal table: one row per night in site local time (or UTC); `--` marks an event that does not happen
+/// (the notes under the table say why).
+pub fn nights_table(site: &Site, nights: &[NightAlmanac], utc: bool) -> String {
+    let mut out = String::new();
+    let zones: Vec<String> = {
+        let mut z: Vec<String> = nights
+            .iter()
+            .map(|n| zone_label(n.window.start, site, utc))
+            .collect();
+        z.dedup();
+        z
+    };
+    out.push_str(&format!(
+        "{}  {:+.3} {:+.3}  times {}; darkness: Sun below {} deg\n",
+        site.name,
+        site.lat_deg,
+        site.lon_deg,
+        if utc {
+            "UTC".to_string()
+        } else {
+            format!("{} ({})", zones.join(" then "), site.tz.name())
+        },
+        site.darkness_alt_deg
+    ));
+    let mut table = Table::new();
+    table
+        .load_preset("     ─┼ │          ")
+        .set_content_arrangement(ContentArrangement::Disabled)
+        .set_header(vec![
+            "Night", "Sunset", "Civil", "Naut", "Astro", "Astro", "Naut", "Civil", "Sunrise",
+            "Dark h", "Moonrise", "Moonset", "Moon",
+        ]);
+    for col in table.column_iter_mut() {
+        col.set_padding((0, 1));
+    }
+    let t = |x: Option<f64>| x.map(|v| hhmm(v, site, utc)).unwrap_or_else(|| "--".into());
+    for a in nights {
+        table.add_row(vec![
+            Cell::new(a.night_of.format("%a %Y-%m-%d")),
+            Cell::new(t(a.sun.dusk)),
+            Cell::new(t(a.civil.dusk)),
+            Cell::new(t(a.nautical.dusk)),
+            Cell::new(t(a.astronomical.dusk)),
+            Cell::new(t(a.astronomical.dawn)),
+            Cell::new(t(a.nautical.dawn)),
+            Cell::new(t(a.civil.dawn)),
+            Cell::new(t(a.sun.dawn)),
+            Cell::new(format!("{:.1}", a.dark_hours)).set_alignment(CellAlignment::Right),
+            Cell::new(t(a.moonrise)),
+            Cell::new(t(a.moonset)),
+            Cell::new(format!("{:.0}%", a.moon_illum * 100.0)).set_alignment(CellAlignment::Right),
+        ]);
+    }
+    out.push_str(
+        "          dusk: sunset, then the Sun at -6, -12, -18 deg; dawn: the same in reverse\n",
+    );
+    out.push_str(&table.to_string());
+    out.push('\n');
+    let mut notes: Vec<String> = Vec::new();
+    for a in nights {
+        for n in &a.notes {
+            notes.push(format!("{}: {n}", a.night_of));
+        }
+    }
+    if !notes.is_empty() {
+        out.push_str("\nEvents marked -- do not happen:\n");
+        // Many identical notes in a row (a polar summer) are summarised.
+        let max = 12;
+        for n in notes.iter().take(max) {
+            out.push_str(&format!("  {n}\n"));
+        }
+        if notes.len() > max {
+            out.push_str(&format!(
+                "  ... and {} more such notes (see --format json)\n",
+                notes.len() - max
+            ));
+        }
+    }
+    out
+}

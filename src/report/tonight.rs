@@ -1,0 +1,293 @@
+//! `tonight` outputs: the night's almanac and, per target, the block with its contact times.
+
+use super::{hhmm, round, zone_label};
+use crate::almanac::NightAlmanac;
+use crate::astro::atmosphere::airmass_kasten_young;
+use crate::inputs::sites::Site;
+use crate::inputs::targets::Target;
+use crate::plan::{Event, Verdict};
+
+/// Why a target asked for by name has nothing to show tonight.
+#[derive(Debug, Clone, PartialEq)]
+pub enum Absence {
+    /// No transit during this night; the next mid-transit is at this UTC JD.
+    NoTransit {
+        /// Target index.
+        target_index: usize,
+        /// Next predicted mid-transit, UTC JD.
+        next_mid_utc: f64,
+    },
+}
+
+fn airmass_text(alt_deg: f64) -> String {
+    let x = airmass_kasten_young(alt_deg);
+    if x.is_finite() && alt_deg > 0.0 {
+        format!("airmass {x:.2}")
+    } else {
+        "below horizon".into()
+    }
+}
+
+/// "starts in 3 h 12 min", "in progress, 25 min left", "over" for a block at `now` (UTC JD).
+pub fn countdown(e: &Event, now: f64) -> String {
+    let fmt = |days: f64| {
+        let total = (days * 1440.0).round() as i64;
+        if total >= 60 {
+            format!("{} h {} min", total / 60, total % 60)
+        } else {
+            format!("{total} min")
+        }
+    };
+    if now < e.block_start_utc {
+        format!("starts in {}", fmt(e.block_start_utc - now))
+    } else if now < e.block_end_utc {
+        format!("in progress, {} left", fmt(e.block_end_utc - now))
+    } else {
+        "over".into()
+    }
+}
+
+fn header(site: &Site, a: &NightAlmanac, utc: bool) -> String {
+    let t = |x: Option<f64>| x.map(|v| hhmm(v, site, utc)).unwrap_or_else(|| "--".into());
+    let mut s = format!(
+        "Night of {} at {} ({}; times {})\n",
+        a.night_of.format("%A %Y-%m-%d"),
+        site.name,
+        site.tz.name(),
+        zone_label(a.window.start + 0.5, site, utc)
+    );
+    s.push_str(&format!(
+        "  Sunset {}   civil {}   nautical {}   astronomical {}\n",
+        t(a.sun.dusk),
+        t(a.civil.dusk),
+        t(a.nautical.dusk),
+        t(a.astronomical.dusk)
+    ));
+    s.push_str(&format!(
+        "  Dawn   astronomical {}   nautical {}   civil {}   sunrise {}\n",
+        t(a.astronomical.dawn),
+        t(a.nautical.dawn),
+        t(a.civil.dawn),
+        t(a.sun.dawn)
+    ));
+    s.push_str(&format!(
+        "  Dark (Sun below {} deg): {} ({:.1} h)\n",
+        site.darkness_alt_deg,
+        match a.dark {
+            Some(d) => format!("{} to {}", hhmm(d.start, site, utc), hhmm(d.end, site, utc)),
+            None => "none tonight".into(),
+        },
+        a.dark_hours
+    ));
+    let mut moon_events: Vec<(f64, &str)> = [(a.moonrise, "rises"), (a.moonset, "sets")]
+        .into_iter()
+        .filter_map(|(t, w)| t.map(|t| (t, w)))
+        .collect();
+    moon_events.sort_by(|x, y| x.0.total_cmp(&y.0));
+    let moon_text: Vec<String> = moon_events
+        .iter()
+        .map(|(t, w)| format!("{w} {}", hhmm(*t, site, utc)))
+        .collect();
+    s.push_str(&format!(
+        "  Moon: {}{:.0}% lit\n",
+        if moon_text.is_empty() {
+            String::new()
+        } else {
+            format!("{}, ", moon_text.join(", "))
+        },
+        a.moon_illum * 100.0
+    ));
+    for n in &a.notes {
+        s.push_str(&format!("  Note: {n}\n"));
+    }
+    s
+}
+
+/// The text report for one night: the almanac header, then each event with its block and contacts.
+///
+/// `events` are the night's events (observable and not); `now` is the current UTC JD when the report is for the
+/// night in progress or about to begin (adds "starts in ..."); `absences` explain named targets with no transit.
+#[allow(clippy::too_many_arguments)]
+pub fn tonight_text(
+    site: &Site,
+    almanac: &NightAlmanac,
+    events: &[Event],
+    targets: &[Target],
+    asked: &[usize],
+    absences: &[Absence],
+    now: Option<f64>,
+    utc: bool,
+) -> String {
+    let mut out = header(site, almanac, utc);
+    if let Some(n) = now {
+        out.push_str(&format!(
+            "  Now: {} {}\n",
+            hhmm(n, site, utc),
+            zone_label(n, site, utc)
+        ));
+    }
+    let observable: Vec<&Event> = events.iter().filter(|e| e.observable).collect();
+    if observable.is_empty() {
+        out.push_str("\nNothing observable tonight.\n");
+    }
+    for e in &observable {
+        let t = &targets[e.target_index];
+        let sig = format!("+-{:.1} min", e.sigma_min);
+        out.push_str(&format!(
+            "\n{}  epoch {}  {}, {:.0}% of the transit{}{}\n",
+            t.name,
+            e.epoch,
+            e.verdict.label(),
+            e.coverage * 100.0,
+            t.depth_ppt
+                .map(|d| format!(", depth {d} ppt"))
+                .unwrap_or_default(),
+            now.map(|n| format!("  [{}]", countdown(e, n)))
+                .unwrap_or_default()
+        ));
+        let rows = [
+            (
+                "block start",
+                e.block_start_utc,
+                e.alt_block_start_deg,
+                String::new(),
+            ),
+            ("ingress", e.ingress_utc, e.alt_ingress_deg, sig.clone()),
+            ("mid-transit", e.mid_utc, e.alt_mid_deg, sig.clone()),
+            ("egress", e.egress_utc, e.alt_egress_deg, sig),
+            (
+                "block end",
+                e.block_end_utc,
+                e.alt_block_end_deg,
+                String::new(),
+            ),
+        ];
+        for (label, jd, alt, sigma) in rows {
+            out.push_str(&format!(
+                "  {label:<12} {}  {sigma:<12} alt {:>5.1} deg  {}\n",
+                hhmm(jd, site, utc),
+                alt,
+                airmass_text(alt)
+            ));
+        }
+        let mut extra = vec![format!(
+            "Moon {:.0} deg away ({})",
+            e.moon_sep_deg,
+            if e.moon_alt_mid_deg > 0.0 {
+                "up"
+            } else {
+                "down"
+            }
+        )];
+        if let Some(m) = e.meridian_utc {
+            extra.push(format!(
+                "meridian crossing {} (equatorial mounts flip)",
+                hhmm(m, site, utc)
+            ));
+        }
+        if e.verdict != Verdict::Whole {
+            extra.push(format!(
+                "usable baseline {:.0}/{:.0} min",
+                e.baseline_before_min, e.baseline_after_min
+            ));
+        }
+        if !e.reasons.is_empty() {
+            extra.push(format!(
+                "cut by: {}",
+                e.reasons
+                    .iter()
+                    .map(|r| r.label())
+                    .collect::<Vec<_>>()
+                    .join(", ")
+            ));
+        }
+        out.push_str(&format!("  {}\n", extra.join("; ")));
+    }
+    // Named targets: say why nothing is shown.
+    for &ti in asked {
+        if observable.iter().any(|e| e.target_index == ti) {
+            continue;
+        }
+        let name = &targets[ti].name;
+        // Highest altitude the target ever reaches here (upper culmination, catalogue place).
+        let highest = 90.0 - (site.lat_deg - targets[ti].dec_deg).abs();
+        if highest < site.min_alt_deg {
+            out.push_str(&format!(
+                "\n{name}: never rises above this site's limit of {:.1} deg (highest altitude {:.1} deg)\n",
+                site.min_alt_deg, highest
+            ));
+            continue;
+        }
+        for e in events.iter().filter(|e| e.target_index == ti) {
+            out.push_str(&format!(
+                "\n{name}: the transit at {} (mid) cannot be observed: {}\n",
+                hhmm(e.mid_utc, site, utc),
+                if e.reasons.is_empty() {
+                    "no usable in-transit time".to_string()
+                } else {
+                    e.reasons
+                        .iter()
+                        .map(|r| r.label())
+                        .collect::<Vec<_>>()
+                        .join(", ")
+                }
+            ));
+        }
+        for a in absences {
+            let Absence::NoTransit {
+                target_index,
+                next_mid_utc,
+            } = a;
+            if *target_index == ti {
+                out.push_str(&format!(
+                    "\n{name}: no transit during this night; the next mid-transit is at {} UTC\n",
+                    crate::civil::rfc3339_utc(*next_mid_utc)
+                ));
+            }
+        }
+    }
+    out
+}
+
+/// JSON for one night: `{"site", "night": {...}, "events": [...], "absent": [...]}`.
+pub fn tonight_json(
+    site: &Site,
+    almanac: &NightAlmanac,
+    events: &[Event],
+    sites: &[Site],
+    targets: &[Target],
+    absences: &[Absence],
+    now: Option<f64>,
+) -> String {
+    let recs: Vec<serde_json::Value> = events
+        .iter()
+        .map(|e| {
+            let mut v = serde_json::to_value(super::EventRecord::new(e, sites, targets))
+                .unwrap_or_default();
+            if let (Some(n), Some(obj)) = (now, v.as_object_mut()) {
+                obj.insert("status".into(), countdown(e, n).into());
+                obj.insert(
+                    "minutes_to_block_start".into(),
+                    round((e.block_start_utc - n) * 1440.0, 1).into(),
+                );
+            }
+            v
+        })
+        .collect();
+    let absent: Vec<serde_json::Value> = absences
+        .iter()
+        .map(|Absence::NoTransit { target_index, next_mid_utc }| {
+            serde_json::json!({"target": targets[*target_index].name, "next_mid_utc": crate::civil::rfc3339_utc(*next_mid_utc)})
+        })
+        .collect();
+    let doc = serde_json::json!({
+        "site": site.name,
+        "night": super::NightRecord::new(almanac),
+        "now_utc": now.map(crate::civil::rfc3339_utc),
+        "events": recs,
+        "absent": absent,
+    });
+    let mut s = serde_json::to_string_pretty(&doc).unwrap_or_default();
+    s.push('\n');
+    s
+}
