@@ -73,6 +73,8 @@ pub const EVENT_FIELDS: &[&str] = &[
     "alt_ingress_deg",
     "alt_mid_deg",
     "alt_egress_deg",
+    "alt_block_start_deg",
+    "alt_block_end_deg",
     "airmass_ingress",
     "airmass_mid",
     "airmass_egress",
