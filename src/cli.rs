@@ -30,6 +30,8 @@ enum Command {
     Tonight(TonightArgs),
     /// A per-night almanac for one site: Sun, twilights, darkness and the Moon.
     Nights(NightsArgs),
+    /// Write the plan as an iCalendar file (RFC 5545) for the team's calendars.
+    Calendar(CalendarArgs),
 }
 
 /// Where the sites and targets come from, and which of them to use.
@@ -160,6 +162,7 @@ pub fn run() -> Result<()> {
         Command::Plan(args) => run_plan(args),
         Command::Tonight(args) => run_tonight(args),
         Command::Nights(args) => run_nights(args),
+        Command::Calendar(args) => run_calendar(args),
     }
 }
 
@@ -460,4 +463,140 @@ fn run_nights(args: NightsArgs) -> Result<()> {
         Format::Json => report::nights_json(&site, &nights),
     };
     emit(&text, args.out.as_deref())
+}
+
+#[derive(Args, Debug)]
+struct CalendarArgs {
+    #[command(flatten)]
+    input: InputArgs,
+    #[command(flatten)]
+    range: RangeArgs,
+    #[command(flatten)]
+    block: BlockArgs,
+    /// Calendar file to write (atomically), or - for standard output
+    #[arg(long, value_name = "FILE")]
+    out: PathBuf,
+    /// One file per site: FILE-<site>.ics next to --out
+    #[arg(long)]
+    per_site: bool,
+    /// Add a reminder this many minutes before each block
+    #[arg(long, value_name = "MIN")]
+    alarm_minutes: Option<u32>,
+    /// The previous export: changed events get a higher SEQUENCE, dropped ones are written as cancelled
+    #[arg(long, value_name = "FILE")]
+    previous: Option<PathBuf>,
+}
+
+/// The export time: SOURCE_DATE_EPOCH (seconds since 1970, for reproducible files) or the system clock.
+fn export_stamp() -> Result<chrono::DateTime<chrono::Utc>> {
+    match std::env::var("SOURCE_DATE_EPOCH") {
+        Ok(v) => {
+            let secs: i64 = v.trim().parse().map_err(|_| {
+                anyhow::anyhow!("SOURCE_DATE_EPOCH: found {v:?}, expected whole seconds since 1970")
+            })?;
+            chrono::DateTime::from_timestamp(secs, 0)
+                .ok_or_else(|| anyhow::anyhow!("SOURCE_DATE_EPOCH: {secs} is out of range"))
+        }
+        Err(_) => Ok(chrono::Utc::now()),
+    }
+}
+
+fn site_file_name(out: &Path, site: &str) -> PathBuf {
+    let stem = out
+        .file_stem()
+        .map(|s| s.to_string_lossy().to_string())
+        .unwrap_or_else(|| "calendar".into());
+    let slug: String = site
+        .chars()
+        .map(|c| {
+            if c.is_ascii_alphanumeric() {
+                c.to_ascii_lowercase()
+            } else {
+                '-'
+            }
+        })
+        .collect::<String>()
+        .split('-')
+        .filter(|p| !p.is_empty())
+        .collect::<Vec<_>>()
+        .join("-");
+    out.with_file_name(format!("{stem}-{slug}.ics"))
+}
+
+fn run_calendar(args: CalendarArgs) -> Result<()> {
+    let (first_night, last_night) = resolve_range(&args.range)?;
+    let opts = args.block.options(first_night, last_night, false)?;
+    if args.per_site && args.out.as_os_str() == "-" {
+        bail!("--per-site writes one file per site; expected --out FILE, not -");
+    }
+    let (sites, targets) = load(&args.input)?;
+    let previous = match &args.previous {
+        None => Vec::new(),
+        Some(p) => {
+            let text = std::fs::read_to_string(p)
+                .with_context(|| format!("cannot read previous calendar {}", p.display()))?;
+            dipwatch::calendar::parse_previous(&text)
+                .map_err(|m| anyhow::anyhow!("{}: {m}", p.display()))?
+        }
+    };
+    let cal_opts = dipwatch::calendar::CalendarOptions {
+        alarm_minutes: args.alarm_minutes,
+        stamp: export_stamp()?,
+    };
+    let result = plan(&sites, &targets, &opts);
+    let range = result
+        .sites
+        .iter()
+        .filter_map(|sp| {
+            Some((
+                sp.nights.first()?.window.start,
+                sp.nights.last()?.window.end,
+            ))
+        })
+        .fold((f64::INFINITY, f64::NEG_INFINITY), |acc, r| {
+            (acc.0.min(r.0), acc.1.max(r.1))
+        });
+    let jobs: Vec<(Option<usize>, PathBuf)> = if args.per_site {
+        (0..sites.len())
+            .map(|i| (Some(i), site_file_name(&args.out, &sites[i].name)))
+            .collect()
+    } else {
+        vec![(None, args.out.clone())]
+    };
+    // Build every file first, then write: an error never leaves some files written and others not.
+    let mut outputs = Vec::new();
+    for (filter, path) in jobs {
+        let (text, summary) = dipwatch::calendar::build_calendar(
+            &result, &sites, &targets, filter, &previous, range, &cal_opts,
+        );
+        outputs.push((path, text, summary));
+    }
+    for (path, text, summary) in &outputs {
+        if path.as_os_str() == "-" {
+            emit(text, None)?;
+        } else {
+            write_atomically(path, text.as_bytes())?;
+        }
+        let mut line = format!(
+            "dipwatch: wrote {} events to {}",
+            summary.events,
+            path.display()
+        );
+        if args.previous.is_some() {
+            line.push_str(&format!(
+                "; {} new, {} changed, {} cancelled",
+                summary.new,
+                summary.changed,
+                summary.cancelled.len()
+            ));
+        }
+        eprintln!("{line}");
+        for (s, start) in &summary.cancelled {
+            eprintln!(
+                "dipwatch: no longer planned, written as cancelled: {s} (was {})",
+                dipwatch::civil::rfc3339_utc(*start)
+            );
+        }
+    }
+    Ok(())
 }

@@ -6,6 +6,7 @@
 
 pub mod almanac;
 pub mod astro;
+pub mod calendar;
 pub mod civil;
 pub mod constants;
 pub mod ephemeris;
