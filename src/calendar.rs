@@ -317,7 +317,7 @@ pub fn build_calendar(
         }
     }
     for p in previous {
-        let in_scope = exported_sites.iter().any(|s| *s == p.site);
+        let in_scope = exported_sites.contains(&p.site);
         if written.contains(&p.uid) || !in_scope || p.start_utc < range.0 || p.start_utc > range.1 {
             continue;
         }

@@ -193,7 +193,12 @@ fn tonight_explains_named_targets_with_nothing_to_show() {
     assert!(out.status.success());
     let text = String::from_utf8_lossy(&out.stdout);
     assert!(text.contains("Nothing observable tonight."), "{text}");
-    // Each named target gets its own explanation: a transit that cannot be observed (with reasons) or none.
+    // Each named target gets its own explanation: a transit that cannot be observed (with reasons), no transit,
+    // or a target that never rises high enough (Brackenhurst b at dec -58.7 from latitude +54.4).
+    assert!(
+        text.contains("Brackenhurst b: never rises above this site's limit of 25.0 deg"),
+        "{text}"
+    );
     for name in ["Brackenhurst b", "Tollund Reach c"] {
         assert!(
             text.contains(&format!("{name}: the transit at"))
