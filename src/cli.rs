@@ -32,6 +32,8 @@ enum Command {
     Nights(NightsArgs),
     /// Write the plan as an iCalendar file (RFC 5545) for the team's calendars.
     Calendar(CalendarArgs),
+    /// Fit observed mid-transit times to refine ephemerides, and say which ephemerides are getting stale.
+    Refine(RefineArgs),
 }
 
 /// Where the sites and targets come from, and which of them to use.
@@ -163,6 +165,7 @@ pub fn run() -> Result<()> {
         Command::Tonight(args) => run_tonight(args),
         Command::Nights(args) => run_nights(args),
         Command::Calendar(args) => run_calendar(args),
+        Command::Refine(args) => run_refine(args),
     }
 }
 
@@ -599,4 +602,171 @@ fn run_calendar(args: CalendarArgs) -> Result<()> {
         }
     }
     Ok(())
+}
+
+#[derive(Args, Debug)]
+struct RefineArgs {
+    /// Targets file (CSV). Default: ./targets.csv
+    #[arg(long, value_name = "FILE")]
+    targets: Option<PathBuf>,
+    /// Observed mid-transit times (CSV: target, tc, tc_sigma_days[, time_system, source])
+    #[arg(long, value_name = "FILE")]
+    observed: Option<PathBuf>,
+    /// Only this target (repeatable)
+    #[arg(long = "target", value_name = "NAME")]
+    target_names: Vec<String>,
+    /// Read differently named target columns: ours=theirs,...
+    #[arg(long, value_name = "MAP")]
+    columns: Option<String>,
+    /// Use the catalogue T0 (with its sigma) as one more data point
+    #[arg(long)]
+    prior: bool,
+    /// Write the updated targets CSV here (atomically)
+    #[arg(long, value_name = "FILE", conflicts_with = "in_place")]
+    out: Option<PathBuf>,
+    /// Overwrite the targets file itself with the updated ephemerides
+    #[arg(long)]
+    in_place: bool,
+    /// Output format of the report
+    #[arg(long, value_enum, default_value_t = Format::Table)]
+    format: Format,
+    /// Date at which to judge how stale each ephemeris is. Default: 180 days from today
+    #[arg(long, value_name = "DATE")]
+    stale_at: Option<NaiveDate>,
+    /// Flag targets whose timing 1-sigma exceeds this fraction of T14 at that date
+    #[arg(long, value_name = "F", default_value_t = 0.1)]
+    stale_fraction: f64,
+}
+
+fn run_refine(args: RefineArgs) -> Result<()> {
+    check_finite("stale-fraction", args.stale_fraction, 0.0, 10.0)?;
+    let targets_path = args
+        .targets
+        .clone()
+        .unwrap_or_else(|| PathBuf::from("targets.csv"));
+    let map = match &args.columns {
+        Some(spec) => ColumnMap::parse(spec).map_err(|m| anyhow::anyhow!("--columns: {m}"))?,
+        None => ColumnMap::default(),
+    };
+    let (targets_label, targets_text) = read_input(
+        &args.targets,
+        "targets.csv",
+        "targets.example.csv",
+        "targets",
+    )?;
+    let all_targets = parse_targets(&targets_label, &targets_text, &map)?;
+    let targets = select(
+        all_targets,
+        &args.target_names,
+        |t| &t.name,
+        "target",
+        &targets_label,
+    )?;
+    let observations = match &args.observed {
+        None => Vec::new(),
+        Some(p) => {
+            let label = p.display().to_string();
+            let text = std::fs::read_to_string(p)
+                .with_context(|| format!("cannot read observed times {label}"))?;
+            let mut obs = dipwatch::inputs::observed::parse_observed(&label, &text)?;
+            if !args.target_names.is_empty() {
+                obs.retain(|o| {
+                    args.target_names
+                        .iter()
+                        .any(|n| n.trim().eq_ignore_ascii_case(o.target.trim()))
+                });
+            }
+            obs
+        }
+    };
+    let observed_label = args
+        .observed
+        .as_ref()
+        .map(|p| p.display().to_string())
+        .unwrap_or_default();
+    let refinements = dipwatch::refine::refine_targets(&targets, &observations, args.prior)
+        .map_err(|e| match e {
+            dipwatch::refine::RefineError::Fit { .. } => anyhow::anyhow!("{e}"),
+            _ => anyhow::anyhow!(
+                "{observed_label}:{}",
+                e.to_string().trim_start_matches("line ")
+            ),
+        })?;
+    let stale_date = args
+        .stale_at
+        .unwrap_or_else(|| chrono::Local::now().date_naive() + Duration::days(180));
+    let stale_jd = dipwatch::astro::time::jd_from_calendar(
+        chrono::Datelike::year(&stale_date),
+        chrono::Datelike::month(&stale_date),
+        f64::from(chrono::Datelike::day(&stale_date)),
+    );
+    let mut stale: Vec<report::StaleRow> = targets
+        .iter()
+        .enumerate()
+        .map(|(i, t)| {
+            let refined = refinements.iter().find(|r| r.target_index == i);
+            let eph = refined.map(|r| &r.ephemeris).unwrap_or(&t.ephemeris);
+            report::StaleRow {
+                target_index: i,
+                refined: refined.is_some(),
+                staleness: dipwatch::refine::staleness(eph, t.t14_hours, stale_jd),
+            }
+        })
+        .collect();
+    stale.sort_by(|a, b| {
+        b.staleness
+            .fraction_of_t14
+            .total_cmp(&a.staleness.fraction_of_t14)
+    });
+    let stale_at = stale_date.to_string();
+    let text = match args.format {
+        Format::Table => report::refine_text(
+            &refinements,
+            &targets,
+            &stale,
+            &stale_at,
+            args.stale_fraction,
+        ),
+        Format::Csv => report::refine_csv(&refinements, &targets, &stale, args.stale_fraction),
+        Format::Json => report::refine_json(
+            &refinements,
+            &targets,
+            &stale,
+            &stale_at,
+            args.stale_fraction,
+        ),
+    };
+    let out_path = if args.in_place {
+        Some(targets_path.clone())
+    } else {
+        args.out.clone()
+    };
+    if let Some(out) = &out_path {
+        if !args.in_place && same_file(out, &targets_path) {
+            bail!(
+                "--out {} is the targets file itself; pass --in-place to overwrite it",
+                out.display()
+            );
+        }
+        let updates: Vec<(String, dipwatch::ephemeris::Ephemeris)> = refinements
+            .iter()
+            .map(|r| (targets[r.target_index].name.clone(), r.ephemeris))
+            .collect();
+        let updated = report::rewrite_targets_csv(&targets_text, &map, &updates)
+            .map_err(|m| anyhow::anyhow!("{targets_label}: {m}"))?;
+        write_atomically(out, updated.as_bytes())?;
+        eprintln!(
+            "dipwatch: wrote {} refined ephemerides to {}",
+            updates.len(),
+            out.display()
+        );
+    }
+    emit(&text, None)
+}
+
+fn same_file(a: &Path, b: &Path) -> bool {
+    match (std::fs::canonicalize(a), std::fs::canonicalize(b)) {
+        (Ok(x), Ok(y)) => x == y,
+        _ => a == b,
+    }
 }

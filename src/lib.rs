@@ -12,4 +12,5 @@ pub mod constants;
 pub mod ephemeris;
 pub mod inputs;
 pub mod plan;
+pub mod refine;
 pub mod report;

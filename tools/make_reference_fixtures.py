@@ -213,6 +213,7 @@ def main():
     sky_cases(rng)
     sun_crossing_cases(rng)
     night_fixture_cases()
+    refine_cases(np.random.default_rng(6))
 
 
 
@@ -258,6 +259,31 @@ def night_fixture_cases():
            "sunset", "sunrise", "civil_dusk", "civil_dawn", "nautical_dusk", "nautical_dawn",
            "astronomical_dusk", "astronomical_dawn"], rows)
 
+
+
+def refine_cases(rng):
+    """Weighted straight-line fits of transit times by numpy.polyfit (w = 1/sigma, cov='unscaled')."""
+    points, fits = [], []
+    for k in range(40):
+        n_pts = int(rng.integers(3, 13))
+        epochs = np.sort(rng.choice(np.arange(-200, 600), size=n_pts, replace=False))
+        t0 = 2458000.0 + rng.uniform(0, 3000)
+        period = float(np.exp(rng.uniform(np.log(0.5), np.log(30.0))))
+        sig = rng.uniform(0.0003, 0.003, size=n_pts)
+        scatter = 1.0 if k % 3 else 2.5  # every third data set scatters more than its error bars
+        times = t0 + epochs * period + rng.normal(0, 1, size=n_pts) * sig * scatter
+        off = float(times[0])
+        coef, cov = np.polyfit(epochs.astype(float), times - off, 1, w=1.0 / sig, cov="unscaled")
+        slope, intercept = coef
+        model = intercept + slope * epochs
+        chi2 = float(np.sum(((times - off - model) / sig) ** 2))
+        for e, t, sg in zip(epochs, times, sig):
+            points.append((str(k), str(int(e)), f"{t:.9f}", f"{sg:.9f}"))
+        fits.append((str(k), f"{intercept + off:.9f}", f"{slope:.12f}", f"{cov[1][1]:.12e}",
+                     f"{cov[0][0]:.12e}", f"{cov[0][1]:.12e}", f"{chi2:.9f}"))
+    write("refine_points.csv", ["set", "epoch", "bjd_tdb", "sigma_days"], points)
+    write("refine_fits.csv", ["set", "t0_at_epoch0", "period_days", "var_t0_days2", "var_period_days2",
+                              "cov_days2", "chi2"], fits)
 
 if __name__ == "__main__":
     main()

@@ -5,6 +5,7 @@
 //! [`MAX_PROBLEMS`]) and reported together, each naming line, field, what was found and what was expected.
 
 pub mod angles;
+pub mod observed;
 pub mod sites;
 pub mod targets;
 

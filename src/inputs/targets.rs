@@ -152,7 +152,7 @@ const MIN_FULL_JD: f64 = 2_400_000.0;
 const MAX_FULL_JD: f64 = 2_600_000.0;
 
 /// Detect the delimiter from the first non-comment line: the most frequent of comma, semicolon and tab.
-fn detect_delimiter(text: &str) -> u8 {
+pub(crate) fn detect_delimiter(text: &str) -> u8 {
     let header = text
         .lines()
         .find(|l| !l.trim_start().starts_with('#') && !l.trim().is_empty())

@@ -2,10 +2,14 @@
 
 mod nights;
 mod plan;
+mod refine;
 mod tonight;
 
 pub use nights::{nights_csv, nights_json, nights_table, NightRecord, NIGHT_FIELDS};
 pub use plan::{plan_csv, plan_json, plan_table, EventRecord, EVENT_FIELDS};
+pub use refine::{
+    refine_csv, refine_json, refine_text, rewrite_targets_csv, stale_status, StaleRow,
+};
 pub use tonight::{countdown, tonight_json, tonight_text, Absence};
 
 use crate::civil::{local_hhmm, zone_abbreviation};
