@@ -34,6 +34,8 @@ enum Command {
     Calendar(CalendarArgs),
     /// Fit observed mid-transit times to refine ephemerides, and say which ephemerides are getting stale.
     Refine(RefineArgs),
+    /// Choose, per telescope and night, the non-overlapping blocks that serve the programme best.
+    Schedule(ScheduleArgs),
 }
 
 /// Where the sites and targets come from, and which of them to use.
@@ -166,6 +168,7 @@ pub fn run() -> Result<()> {
         Command::Nights(args) => run_nights(args),
         Command::Calendar(args) => run_calendar(args),
         Command::Refine(args) => run_refine(args),
+        Command::Schedule(args) => run_schedule(args),
     }
 }
 
@@ -488,6 +491,11 @@ struct CalendarArgs {
     /// The previous export: changed events get a higher SEQUENCE, dropped ones are written as cancelled
     #[arg(long, value_name = "FILE")]
     previous: Option<PathBuf>,
+    /// Export the schedule (see `dipwatch schedule`) instead of every observable event
+    #[arg(long)]
+    schedule: bool,
+    #[command(flatten)]
+    choice: ChoiceArgs,
 }
 
 /// The export time: SOURCE_DATE_EPOCH (seconds since 1970, for reproducible files) or the system clock.
@@ -546,7 +554,21 @@ fn run_calendar(args: CalendarArgs) -> Result<()> {
         alarm_minutes: args.alarm_minutes,
         stamp: export_stamp()?,
     };
-    let result = plan(&sites, &targets, &opts);
+    let mut result = plan(&sites, &targets, &opts);
+    if args.schedule {
+        let (_, chosen) = make_schedule(&sites, &targets, &opts, &args.choice)?;
+        for sp in &mut result.sites {
+            sp.events = chosen
+                .iter()
+                .filter(|c| c.event.site_index == sp.site_index)
+                .map(|c| c.event.clone())
+                .collect();
+            sp.events
+                .sort_by(|a, b| a.block_start_utc.total_cmp(&b.block_start_utc));
+            sp.events
+                .dedup_by(|a, b| a.target_index == b.target_index && a.epoch == b.epoch);
+        }
+    }
     let range = result
         .sites
         .iter()
@@ -769,4 +791,135 @@ fn same_file(a: &Path, b: &Path) -> bool {
         (Ok(x), Ok(y)) => x == y,
         _ => a == b,
     }
+}
+
+/// How the schedule is chosen.
+#[derive(Args, Debug)]
+struct ChoiceArgs {
+    /// Minimum gap between two blocks on one telescope (slew, focus, calibrations), minutes
+    #[arg(long, value_name = "MIN", default_value_t = 10.0)]
+    changeover: f64,
+    /// Score weight of the in-transit coverage
+    #[arg(long, value_name = "W", default_value_t = 1.0)]
+    weight_coverage: f64,
+    /// Score weight of the verdict (whole 1, short baseline 0.8, ingress/egress only 0.5, middle only 0.2)
+    #[arg(long, value_name = "W", default_value_t = 1.0)]
+    weight_verdict: f64,
+    /// Score weight of 1/airmass at mid-transit
+    #[arg(long, value_name = "W", default_value_t = 0.5)]
+    weight_airmass: f64,
+    /// Score weight of the Moon separation (up to 90 deg)
+    #[arg(long, value_name = "W", default_value_t = 0.25)]
+    weight_moon: f64,
+    /// Score weight of the timing sigma (up to 30 min): uncertain ephemerides gain most
+    #[arg(long, value_name = "W", default_value_t = 0.25)]
+    weight_sigma: f64,
+    /// Let several telescopes observe the same transit
+    #[arg(long)]
+    allow_repeats: bool,
+}
+
+#[derive(Args, Debug)]
+struct ScheduleArgs {
+    #[command(flatten)]
+    input: InputArgs,
+    #[command(flatten)]
+    range: RangeArgs,
+    #[command(flatten)]
+    block: BlockArgs,
+    #[command(flatten)]
+    choice: ChoiceArgs,
+    /// Output format
+    #[arg(long, value_enum, default_value_t = Format::Table)]
+    format: Format,
+    /// Show UTC instead of site local time in the table
+    #[arg(long)]
+    utc: bool,
+    /// Write to this file (atomically) instead of standard output
+    #[arg(long, value_name = "FILE")]
+    out: Option<PathBuf>,
+}
+
+/// Plan per telescope (each with its own altitude limit) and choose the blocks.
+fn make_schedule(
+    sites: &[Site],
+    targets: &[Target],
+    opts: &PlanOptions,
+    c: &ChoiceArgs,
+) -> Result<(
+    Vec<dipwatch::schedule::TelescopeEvents>,
+    Vec<dipwatch::schedule::Chosen>,
+)> {
+    check_finite("changeover", c.changeover, 0.0, 720.0)?;
+    for (name, w) in [
+        ("weight-coverage", c.weight_coverage),
+        ("weight-verdict", c.weight_verdict),
+        ("weight-airmass", c.weight_airmass),
+        ("weight-moon", c.weight_moon),
+        ("weight-sigma", c.weight_sigma),
+    ] {
+        check_finite(name, w, 0.0, 1000.0)?;
+    }
+    let weights = dipwatch::schedule::ScoreWeights {
+        coverage: c.weight_coverage,
+        verdict: c.weight_verdict,
+        airmass: c.weight_airmass,
+        moon: c.weight_moon,
+        sigma: c.weight_sigma,
+    };
+    let mut tels = Vec::new();
+    for (si, site) in sites.iter().enumerate() {
+        // Telescopes sharing an altitude limit share one plan.
+        let mut cache: Vec<(f64, Vec<dipwatch::plan::Event>)> = Vec::new();
+        for t in &site.telescopes {
+            let s = site.for_telescope(t);
+            let events = match cache.iter().find(|(a, _)| *a == s.min_alt_deg) {
+                Some((_, ev)) => ev.clone(),
+                None => {
+                    let mut p = plan(std::slice::from_ref(&s), targets, opts);
+                    let mut ev = std::mem::take(&mut p.sites[0].events);
+                    for e in &mut ev {
+                        e.site_index = si;
+                    }
+                    cache.push((s.min_alt_deg, ev.clone()));
+                    ev
+                }
+            };
+            tels.push(dipwatch::schedule::TelescopeEvents {
+                site_index: si,
+                telescope: t.name.clone(),
+                events,
+            });
+        }
+    }
+    let chosen =
+        dipwatch::schedule::schedule(&tels, targets, &weights, c.changeover, c.allow_repeats);
+    Ok((tels, chosen))
+}
+
+fn run_schedule(args: ScheduleArgs) -> Result<()> {
+    let (first_night, last_night) = resolve_range(&args.range)?;
+    let opts = args.block.options(first_night, last_night, false)?;
+    let (sites, targets) = load(&args.input)?;
+    let (tels, chosen) = make_schedule(&sites, &targets, &opts, &args.choice)?;
+    let weights = dipwatch::schedule::ScoreWeights {
+        coverage: args.choice.weight_coverage,
+        verdict: args.choice.weight_verdict,
+        airmass: args.choice.weight_airmass,
+        moon: args.choice.weight_moon,
+        sigma: args.choice.weight_sigma,
+    };
+    let text = match args.format {
+        Format::Table => report::schedule_table(&chosen, &tels, &sites, &targets, args.utc),
+        Format::Csv => report::schedule_csv(&chosen, &tels, &sites, &targets),
+        Format::Json => report::schedule_json(
+            &chosen,
+            &tels,
+            &sites,
+            &targets,
+            &weights,
+            args.choice.changeover,
+        ),
+    };
+    emit(&text, args.out.as_deref())
 }

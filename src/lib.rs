@@ -14,3 +14,4 @@ pub mod inputs;
 pub mod plan;
 pub mod refine;
 pub mod report;
+pub mod schedule;

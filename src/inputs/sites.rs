@@ -37,6 +37,28 @@ pub struct Site {
     pub hour_angle_limits_h: Option<(f64, f64)>,
     /// Minimum separation from the Moon's centre, deg, if set.
     pub min_moon_sep_deg: Option<f64>,
+    /// Telescopes at the site (at least one).
+    pub telescopes: Vec<Telescope>,
+}
+
+/// One telescope at a site.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Telescope {
+    /// Name, unique within the site.
+    pub name: String,
+    /// Its own lowest usable altitude, deg, if it differs from the site's.
+    pub min_alt_deg: Option<f64>,
+}
+
+impl Site {
+    /// The site as seen by one of its telescopes: the same site with that telescope's altitude limit.
+    pub fn for_telescope(&self, t: &Telescope) -> Site {
+        let mut s = self.clone();
+        if let Some(a) = t.min_alt_deg {
+            s.min_alt_deg = a;
+        }
+        s
+    }
 }
 
 #[derive(Deserialize)]
@@ -59,6 +81,7 @@ struct RawSite {
     min_moon_sep_deg: Option<Spanned<f64>>,
     hour_angle_limits_h: Option<Spanned<Vec<f64>>>,
     horizon: Option<Spanned<Vec<Vec<f64>>>>,
+    telescopes: Option<Spanned<toml::Value>>,
 }
 
 fn line_of(text: &str, offset: usize) -> usize {
@@ -274,6 +297,20 @@ pub fn parse_sites(file: &str, text: &str) -> Result<Vec<Site>, InputError> {
                 HorizonProfile::new(&pairs)
             }
         };
+        let telescopes = match &r.telescopes {
+            None => vec![Telescope {
+                name: "main".into(),
+                min_alt_deg: None,
+            }],
+            Some(v) => match parse_telescopes(v.get_ref()) {
+                Ok(t) => t,
+                Err(msg) => {
+                    problems.push(at(&v.span()), "telescopes", msg);
+                    ok = false;
+                    Vec::new()
+                }
+            },
+        };
         if !ok || tz.is_none() {
             continue;
         }
@@ -306,9 +343,65 @@ pub fn parse_sites(file: &str, text: &str) -> Result<Vec<Site>, InputError> {
             horizon,
             hour_angle_limits_h,
             min_moon_sep_deg: r.min_moon_sep_deg.as_ref().map(|v| *v.get_ref()),
+            telescopes,
         });
     }
     problems.into_result(file, sites)
+}
+
+fn parse_telescopes(v: &toml::Value) -> Result<Vec<Telescope>, String> {
+    let expected = "a count (1-20) or a list of {name = \"...\", min_alt_deg = ...} tables";
+    match v {
+        toml::Value::Integer(n) if (1..=20).contains(n) => Ok((1..=*n)
+            .map(|i| Telescope {
+                name: format!("T{i}"),
+                min_alt_deg: None,
+            })
+            .collect()),
+        toml::Value::Array(items) if !items.is_empty() => {
+            let mut out: Vec<Telescope> = Vec::new();
+            for (i, item) in items.iter().enumerate() {
+                let table = item
+                    .as_table()
+                    .ok_or_else(|| format!("item {}: found {item}, expected {expected}", i + 1))?;
+                if let Some(k) = table.keys().find(|k| *k != "name" && *k != "min_alt_deg") {
+                    return Err(format!(
+                        "item {}: unknown key {k:?}; expected name and min_alt_deg",
+                        i + 1
+                    ));
+                }
+                let name = match table.get("name") {
+                    None => format!("T{}", i + 1),
+                    Some(toml::Value::String(s)) if !s.trim().is_empty() => s.trim().to_string(),
+                    Some(other) => {
+                        return Err(format!(
+                            "item {}: name: found {other}, expected text",
+                            i + 1
+                        ))
+                    }
+                };
+                let min_alt_deg =
+                    match table.get("min_alt_deg") {
+                        None => None,
+                        Some(toml::Value::Float(x)) if (-5.0..=89.0).contains(x) => Some(*x),
+                        Some(toml::Value::Integer(x)) if (-5..=89).contains(x) => Some(*x as f64),
+                        Some(other) => return Err(format!(
+                            "item {}: min_alt_deg: found {other}, expected a number within -5..89",
+                            i + 1
+                        )),
+                    };
+                if out.iter().any(|t| t.name.eq_ignore_ascii_case(&name)) {
+                    return Err(format!(
+                        "item {}: found the name {name:?} twice; expected unique telescope names",
+                        i + 1
+                    ));
+                }
+                out.push(Telescope { name, min_alt_deg });
+            }
+            Ok(out)
+        }
+        other => Err(format!("found {other}, expected {expected}")),
+    }
 }
 
 fn parse_darkness(v: &toml::Value) -> Result<(f64, String), String> {

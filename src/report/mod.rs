@@ -3,6 +3,7 @@
 mod nights;
 mod plan;
 mod refine;
+mod schedule;
 mod tonight;
 
 pub use nights::{nights_csv, nights_json, nights_table, NightRecord, NIGHT_FIELDS};
@@ -10,6 +11,7 @@ pub use plan::{plan_csv, plan_json, plan_table, EventRecord, EVENT_FIELDS};
 pub use refine::{
     refine_csv, refine_json, refine_text, rewrite_targets_csv, stale_status, StaleRow,
 };
+pub use schedule::{schedule_csv, schedule_json, schedule_table, SCHEDULE_FIELDS};
 pub use tonight::{countdown, tonight_json, tonight_text, Absence};
 
 use crate::civil::{local_hhmm, zone_abbreviation};
