@@ -80,8 +80,7 @@ fn two_overlapping_blocks_of_different_priority() {
         .clone();
     let mut b = events
         .iter()
-        .filter(|e| e.verdict == Verdict::Whole && e.target_index != a.target_index)
-        .next()
+        .find(|e| e.verdict == Verdict::Whole && e.target_index != a.target_index)
         .unwrap()
         .clone();
     b.night_of = a.night_of;

@@ -380,16 +380,17 @@ fn parse_telescopes(v: &toml::Value) -> Result<Vec<Telescope>, String> {
                         ))
                     }
                 };
-                let min_alt_deg =
-                    match table.get("min_alt_deg") {
-                        None => None,
-                        Some(toml::Value::Float(x)) if (-5.0..=89.0).contains(x) => Some(*x),
-                        Some(toml::Value::Integer(x)) if (-5..=89).contains(x) => Some(*x as f64),
-                        Some(other) => return Err(format!(
+                let min_alt_deg = match table.get("min_alt_deg") {
+                    None => None,
+                    Some(toml::Value::Float(x)) if (-5.0..=89.0).contains(x) => Some(*x),
+                    Some(toml::Value::Integer(x)) if (-5..=89).contains(x) => Some(*x as f64),
+                    Some(other) => {
+                        return Err(format!(
                             "item {}: min_alt_deg: found {other}, expected a number within -5..89",
                             i + 1
-                        )),
-                    };
+                        ))
+                    }
+                };
                 if out.iter().any(|t| t.name.eq_ignore_ascii_case(&name)) {
                     return Err(format!(
                         "item {}: found the name {name:?} twice; expected unique telescope names",
