@@ -36,6 +36,9 @@ enum Command {
     Refine(RefineArgs),
     /// Choose, per telescope and night, the non-overlapping blocks that serve the programme best.
     Schedule(ScheduleArgs),
+    /// Draw SVG charts: one night for one target, or a season grid of verdicts.
+    #[command(subcommand)]
+    Chart(ChartCommand),
 }
 
 /// Where the sites and targets come from, and which of them to use.
@@ -169,6 +172,8 @@ pub fn run() -> Result<()> {
         Command::Calendar(args) => run_calendar(args),
         Command::Refine(args) => run_refine(args),
         Command::Schedule(args) => run_schedule(args),
+        Command::Chart(ChartCommand::Night(args)) => run_chart_night(args),
+        Command::Chart(ChartCommand::Season(args)) => run_chart_season(args),
     }
 }
 
@@ -658,6 +663,9 @@ struct RefineArgs {
     /// Flag targets whose timing 1-sigma exceeds this fraction of T14 at that date
     #[arg(long, value_name = "F", default_value_t = 0.1)]
     stale_fraction: f64,
+    /// Also draw the O-C chart (SVG); with several refined targets, one file per target (FILE-<target>.svg)
+    #[arg(long, value_name = "FILE.svg")]
+    chart: Option<PathBuf>,
 }
 
 fn run_refine(args: RefineArgs) -> Result<()> {
@@ -758,6 +766,24 @@ fn run_refine(args: RefineArgs) -> Result<()> {
             args.stale_fraction,
         ),
     };
+    if let Some(chart) = &args.chart {
+        for r in &refinements {
+            let name = &targets[r.target_index].name;
+            let path = if refinements.len() == 1 {
+                chart.clone()
+            } else {
+                site_file_name(chart, name).with_extension("svg")
+            };
+            write_atomically(
+                &path,
+                dipwatch::chart::oc_chart_svg(name, &r.rows).as_bytes(),
+            )?;
+            eprintln!(
+                "dipwatch: wrote the O-C chart of {name} to {}",
+                path.display()
+            );
+        }
+    }
     let out_path = if args.in_place {
         Some(targets_path.clone())
     } else {
@@ -922,4 +948,110 @@ fn run_schedule(args: ScheduleArgs) -> Result<()> {
         ),
     };
     emit(&text, args.out.as_deref())
+}
+
+#[derive(Subcommand, Debug)]
+enum ChartCommand {
+    /// Altitude and airmass of one target through one night, with the observing block marked.
+    Night(ChartNightArgs),
+    /// A grid of nights by targets showing each event's verdict, with the Moon along the top.
+    Season(ChartSeasonArgs),
+}
+
+#[derive(Args, Debug)]
+struct ChartNightArgs {
+    /// Sites file (TOML). Default: ./sites.toml
+    #[arg(long, value_name = "FILE")]
+    sites: Option<PathBuf>,
+    /// Targets file (CSV). Default: ./targets.csv
+    #[arg(long, value_name = "FILE")]
+    targets: Option<PathBuf>,
+    /// Read differently named target columns: ours=theirs,...
+    #[arg(long, value_name = "MAP")]
+    columns: Option<String>,
+    /// The site
+    #[arg(long, value_name = "NAME")]
+    site: String,
+    /// The target
+    #[arg(long, value_name = "NAME")]
+    target: String,
+    /// The local date on which the night begins
+    #[arg(long, value_name = "YYYY-MM-DD")]
+    date: NaiveDate,
+    #[command(flatten)]
+    block: BlockArgs,
+    /// SVG file to write
+    #[arg(long, value_name = "FILE.svg")]
+    out: PathBuf,
+}
+
+fn run_chart_night(args: ChartNightArgs) -> Result<()> {
+    let site = one_site(&args.sites, &args.site)?;
+    let targets = load_targets(
+        &args.targets,
+        &args.columns,
+        std::slice::from_ref(&args.target),
+    )?;
+    let opts = args.block.options(args.date, args.date, true)?;
+    let sites = vec![site];
+    let result = plan(&sites, &targets, &opts);
+    let almanac = dipwatch::almanac::night_almanac(&sites[0], args.date);
+    let svg = dipwatch::chart::night_chart_svg(
+        &sites[0],
+        &targets[0],
+        &almanac,
+        &result.sites[0].events,
+        opts.sigma_k,
+    );
+    write_atomically(&args.out, svg.as_bytes())?;
+    eprintln!("dipwatch: wrote {}", args.out.display());
+    Ok(())
+}
+
+#[derive(Args, Debug)]
+struct ChartSeasonArgs {
+    #[command(flatten)]
+    input: InputArgs,
+    /// First night, YYYY-MM-DD
+    #[arg(long, value_name = "DATE")]
+    from: NaiveDate,
+    /// Last night, inclusive, YYYY-MM-DD
+    #[arg(long, value_name = "DATE")]
+    to: NaiveDate,
+    #[command(flatten)]
+    block: BlockArgs,
+    /// SVG file to write
+    #[arg(long, value_name = "FILE.svg")]
+    out: PathBuf,
+}
+
+fn run_chart_season(args: ChartSeasonArgs) -> Result<()> {
+    let (first, last) = resolve_range(&RangeArgs {
+        from: Some(args.from),
+        to: Some(args.to),
+        days: None,
+    })?;
+    let opts = args.block.options(first, last, false)?;
+    let (sites, targets) = load(&args.input)?;
+    let result = plan(&sites, &targets, &opts);
+    // Moon illuminated fraction at local midnight of the first site.
+    let moon: Vec<(NaiveDate, f64)> = first
+        .iter_days()
+        .take_while(|d| *d <= last)
+        .map(|d| {
+            let mid = dipwatch::civil::local_noon_jd(d, sites[0].tz) + 0.5;
+            (
+                d,
+                dipwatch::astro::sky::sun_moon_at(
+                    dipwatch::astro::time::JdUtc(mid),
+                    &sites[0].observer,
+                )
+                .moon_illum,
+            )
+        })
+        .collect();
+    let svg = dipwatch::chart::season_svg(&result, &sites, &targets, &moon);
+    write_atomically(&args.out, svg.as_bytes())?;
+    eprintln!("dipwatch: wrote {}", args.out.display());
+    Ok(())
 }

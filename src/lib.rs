@@ -7,6 +7,7 @@
 pub mod almanac;
 pub mod astro;
 pub mod calendar;
+pub mod chart;
 pub mod civil;
 pub mod constants;
 pub mod ephemeris;

@@ -1,0 +1,167 @@
+//! Charts: valid XML, one drawn block and two contact markers per event, one glyph per planned event, and a
+//! time axis that covers the night.
+
+use std::process::Command;
+
+fn repo(rel: &str) -> String {
+    format!("{}/{rel}", env!("CARGO_MANIFEST_DIR"))
+}
+
+fn temp(name: &str) -> std::path::PathBuf {
+    let d = std::env::temp_dir().join(format!("dipwatch-chart-{name}-{}", std::process::id()));
+    let _ = std::fs::remove_dir_all(&d);
+    std::fs::create_dir_all(&d).unwrap();
+    d
+}
+
+fn run(args: &[&str]) -> std::process::Output {
+    let o = Command::new(env!("CARGO_BIN_EXE_dipwatch"))
+        .args(args)
+        .output()
+        .unwrap();
+    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    o
+}
+
+fn count_class(doc: &roxmltree::Document, class_prefix: &str) -> usize {
+    doc.descendants()
+        .filter(|n| {
+            n.attribute("class")
+                .is_some_and(|c| c == class_prefix || c.starts_with(&format!("{class_prefix} ")))
+        })
+        .count()
+}
+
+fn plan_json(args: &[&str]) -> serde_json::Value {
+    serde_json::from_slice(&run(args).stdout).unwrap()
+}
+
+#[test]
+fn night_chart_draws_each_event_and_covers_the_night() {
+    let d = temp("night");
+    let out = d.join("n.svg");
+    let (s, t) = (repo("sites.example.toml"), repo("targets.example.csv"));
+    run(&[
+        "chart",
+        "night",
+        "--sites",
+        &s,
+        "--targets",
+        &t,
+        "--site",
+        "Kestrel Moor",
+        "--target",
+        "Amberfall b",
+        "--date",
+        "2027-03-07",
+        "--out",
+        out.to_str().unwrap(),
+    ]);
+    let text = std::fs::read_to_string(&out).unwrap();
+    let doc = roxmltree::Document::parse(&text).expect("the SVG parses as XML");
+    // The same events as plan (all of them, observable or not) for that target and night.
+    let p = plan_json(&[
+        "plan",
+        "--sites",
+        &s,
+        "--targets",
+        &t,
+        "--site",
+        "Kestrel Moor",
+        "--target",
+        "Amberfall b",
+        "--from",
+        "2027-03-07",
+        "--days",
+        "1",
+        "--include-unobservable",
+        "--format",
+        "json",
+    ]);
+    let n_events = p["events"].as_array().unwrap().len();
+    assert_eq!(n_events, 1);
+    assert_eq!(count_class(&doc, "block"), n_events);
+    assert_eq!(count_class(&doc, "contact"), 2 * n_events);
+    assert_eq!(count_class(&doc, "sigma"), 2 * n_events);
+    assert_eq!(count_class(&doc, "meridian"), 1);
+    assert!(count_class(&doc, "target-alt") >= 1 && count_class(&doc, "limit") == 1);
+    // The time axis covers sunset to sunrise.
+    let sites =
+        dipwatch::inputs::sites::parse_sites("s", &std::fs::read_to_string(&s).unwrap()).unwrap();
+    let alm = dipwatch::almanac::night_almanac(&sites[0], "2027-03-07".parse().unwrap());
+    let range = dipwatch::chart::night_range(&alm, &[]);
+    assert!(range.start < alm.sun.dusk.unwrap() && range.end > alm.sun.dawn.unwrap());
+    let night_rects = doc
+        .descendants()
+        .filter(|n| n.attribute("class") == Some("twilight night"))
+        .count();
+    assert!(night_rects >= 1);
+}
+
+#[test]
+fn season_grid_has_one_glyph_per_planned_event() {
+    let d = temp("season");
+    let out = d.join("s.svg");
+    let (s, t) = (repo("sites.example.toml"), repo("targets.example.csv"));
+    run(&[
+        "chart",
+        "season",
+        "--sites",
+        &s,
+        "--targets",
+        &t,
+        "--from",
+        "2027-03-01",
+        "--to",
+        "2027-03-31",
+        "--out",
+        out.to_str().unwrap(),
+    ]);
+    let text = std::fs::read_to_string(&out).unwrap();
+    let doc = roxmltree::Document::parse(&text).expect("the SVG parses as XML");
+    let p = plan_json(&[
+        "plan",
+        "--sites",
+        &s,
+        "--targets",
+        &t,
+        "--from",
+        "2027-03-01",
+        "--to",
+        "2027-03-31",
+        "--format",
+        "json",
+    ]);
+    let events = p["events"].as_array().unwrap();
+    assert_eq!(count_class(&doc, "event"), events.len());
+    for v in ["whole", "ingress-only", "egress-only"] {
+        let want = events.iter().filter(|e| e["verdict"] == v).count();
+        assert_eq!(
+            count_class(&doc, &format!("event verdict-{v}")),
+            want,
+            "{v}"
+        );
+    }
+    assert_eq!(count_class(&doc, "moon"), 31);
+}
+
+#[test]
+fn oc_chart_marks_every_point() {
+    let d = temp("oc");
+    let out = d.join("oc.svg");
+    run(&[
+        "refine",
+        "--targets",
+        &repo("targets.example.csv"),
+        "--observed",
+        &repo("observed.example.csv"),
+        "--target",
+        "Glasswater b",
+        "--chart",
+        out.to_str().unwrap(),
+    ]);
+    let text = std::fs::read_to_string(&out).unwrap();
+    let doc = roxmltree::Document::parse(&text).expect("the SVG parses as XML");
+    assert_eq!(count_class(&doc, "point"), 4);
+    assert_eq!(count_class(&doc, "errorbar"), 4);
+}
