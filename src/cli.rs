@@ -307,6 +307,9 @@ fn run_plan(args: PlanArgs) -> Result<()> {
         .block
         .options(first_night, last_night, args.include_unobservable)?;
     let (sites, targets) = load(&args.input)?;
+    if args.format == Format::Csv {
+        return stream_plan_csv(&sites, &targets, &opts, args.out.as_deref());
+    }
     let result = plan(&sites, &targets, &opts);
     let text = match args.format {
         Format::Table => report::plan_table(&result, &sites, &targets, &opts, args.utc),
@@ -314,6 +317,76 @@ fn run_plan(args: PlanArgs) -> Result<()> {
         Format::Json => report::plan_json(&result, &sites, &targets, &opts),
     };
     emit(&text, args.out.as_deref())
+}
+
+/// Nights planned at a time when streaming CSV: bounds memory at catalogue scale.
+const STREAM_CHUNK_NIGHTS: i64 = 32;
+
+/// Plan and write CSV site by site and month by month, formatting rows in parallel; the output is the same
+/// as `report::plan_csv` of the whole plan. A progress bar shows on a terminal for long runs.
+fn stream_plan_csv(sites: &[Site], targets: &[Target], opts: &PlanOptions, out: Option<&Path>) -> Result<()> {
+    use rayon::prelude::*;
+    let planner = dipwatch::plan::Planner::new(sites, targets, opts);
+    let n_nights = (opts.last_night - opts.first_night).num_days() + 1;
+    let chunks: Vec<(NaiveDate, NaiveDate)> = (0..n_nights)
+        .step_by(STREAM_CHUNK_NIGHTS as usize)
+        .map(|k| {
+            let a = opts.first_night + Duration::days(k);
+            (a, (a + Duration::days(STREAM_CHUNK_NIGHTS - 1)).min(opts.last_night))
+        })
+        .collect();
+    let long = targets.len() as i64 * n_nights * sites.len() as i64 > 2_000_000;
+    let bar = if long && std::io::IsTerminal::is_terminal(&std::io::stderr()) {
+        let b = indicatif::ProgressBar::new((chunks.len() * sites.len()) as u64);
+        b.set_style(
+            indicatif::ProgressStyle::with_template("{msg} [{bar:30}] {pos}/{len} site-months, {eta} left")
+                .unwrap_or_else(|_| indicatif::ProgressStyle::default_bar()),
+        );
+        b.set_message("planning");
+        Some(b)
+    } else {
+        None
+    };
+    let write_all = |w: &mut dyn Write| -> Result<()> {
+        w.write_all(report::csv_header().as_bytes())?;
+        for si in 0..sites.len() {
+            for &(a, b) in &chunks {
+                let (sp, _) = planner.site_plan(si, a, b);
+                let parts: Vec<String> = sp
+                    .events
+                    .par_chunks(2048)
+                    .map(|c| {
+                        let mut s = String::with_capacity(c.len() * 420);
+                        report::push_event_csv_rows(c, sites, targets, &mut s);
+                        s
+                    })
+                    .collect();
+                for p in parts {
+                    w.write_all(p.as_bytes())?;
+                }
+                if let Some(b) = &bar {
+                    b.inc(1);
+                }
+            }
+        }
+        w.flush()?;
+        Ok(())
+    };
+    let result = match out {
+        None => {
+            let stdout = std::io::stdout();
+            let mut w = std::io::BufWriter::with_capacity(1 << 20, stdout.lock());
+            match write_all(&mut w) {
+                Err(e) if e.downcast_ref::<std::io::Error>().is_some_and(|io| io.kind() == std::io::ErrorKind::BrokenPipe) => Ok(()),
+                other => other,
+            }
+        }
+        Some(path) => write_atomically_with(path, |f| write_all(f)),
+    };
+    if let Some(b) = bar {
+        b.finish_and_clear();
+    }
+    result
 }
 
 /// Print to stdout, or write the file atomically (temporary file in the same folder, then rename).
@@ -332,20 +405,26 @@ fn emit(text: &str, out: Option<&Path>) -> Result<()> {
 
 /// Write `bytes` to `path` so that readers see either the old file or the whole new one, never a part.
 pub fn write_atomically(path: &Path, bytes: &[u8]) -> Result<()> {
+    write_atomically_with(path, |w| w.write_all(bytes).map_err(anyhow::Error::from))
+}
+
+/// Like [`write_atomically`], with the content produced by `fill` into a buffered temporary file in the same
+/// folder; on any error the temporary file is removed and `path` is untouched.
+pub fn write_atomically_with(path: &Path, fill: impl FnOnce(&mut dyn Write) -> Result<()>) -> Result<()> {
     let dir = match path.parent() {
         Some(d) if !d.as_os_str().is_empty() => d.to_path_buf(),
         _ => PathBuf::from("."),
     };
-    let name = path
-        .file_name()
-        .map(|n| n.to_string_lossy().to_string())
-        .unwrap_or_else(|| "out".into());
+    let name = path.file_name().map(|n| n.to_string_lossy().to_string()).unwrap_or_else(|| "out".into());
     let tmp = dir.join(format!(".{name}.{}.tmp", std::process::id()));
-    let result = (|| -> std::io::Result<()> {
-        let mut f = std::fs::File::create(&tmp)?;
-        f.write_all(bytes)?;
+    let result = (|| -> Result<()> {
+        let f = std::fs::File::create(&tmp)?;
+        let mut w = std::io::BufWriter::with_capacity(1 << 20, f);
+        fill(&mut w)?;
+        let f = w.into_inner().map_err(|e| e.into_error())?;
         f.sync_all()?;
-        std::fs::rename(&tmp, path)
+        std::fs::rename(&tmp, path)?;
+        Ok(())
     })();
     if let Err(e) = result {
         let _ = std::fs::remove_file(&tmp);
@@ -353,6 +432,7 @@ pub fn write_atomically(path: &Path, bytes: &[u8]) -> Result<()> {
     }
     Ok(())
 }
+
 
 #[derive(Copy, Clone, Debug, PartialEq, Eq, ValueEnum)]
 enum TextFormat {

@@ -9,17 +9,19 @@
 use crate::astro::atmosphere::airmass_kasten_young;
 use crate::astro::barycentric::EarthTable;
 use crate::astro::crossings::{
-    intervals_where_nonnegative, sun_crossings, Interval, SunCrossing, DEFAULT_STEP_DAYS,
+    intervals_where_nonnegative, sun_crossings_with, Interval, SunCrossing, DEFAULT_STEP_DAYS,
 };
 use crate::astro::frames::{
     alt_az_from_hadec, gmst_rad, separation_rad, unit_from_radec, wrap_pi, EarthOrientation, Vec3,
 };
-use crate::astro::sky::{moon_apparent, sun_moon_at, topocentric};
+use crate::astro::sky::sun_moon_at;
+use crate::astro::tables::SkyTables;
 use crate::astro::time::{jd_tdb_from_utc, JdUtc};
-use crate::civil::{local_noon_jd, night_of};
+use crate::civil::local_noon_jd;
 use crate::inputs::sites::Site;
 use crate::inputs::targets::Target;
 use chrono::NaiveDate;
+use rayon::prelude::*;
 use std::f64::consts::TAU;
 
 /// Ratio of sidereal to solar time rate (IERS Conventions 2010, ERA rate 1.002 737 811 911 354 48).
@@ -224,28 +226,51 @@ pub struct Plan {
     pub lost: Vec<LostEphemeris>,
 }
 
-/// The nights `first..=last` at a site with their dark intervals.
-pub fn nights_at(site: &Site, first: NaiveDate, last: NaiveDate) -> Vec<Night> {
+/// The local-noon-to-noon windows of the nights `first..=last` at a site, UTC JD.
+pub fn night_windows(site: &Site, first: NaiveDate, last: NaiveDate) -> Vec<(NaiveDate, Interval)> {
     first
         .iter_days()
         .take_while(|d| *d <= last)
         .map(|d| {
             let start = local_noon_jd(d, site.tz);
             let end = local_noon_jd(d.succ_opt().unwrap_or(d), site.tz);
-            let window = Interval { start, end };
-            let dark = match sun_crossings(&site.observer, site.darkness_alt_deg, start, end) {
+            (d, Interval { start, end })
+        })
+        .collect()
+}
+
+/// The nights `first..=last` at a site with their dark intervals.
+pub fn nights_at(site: &Site, first: NaiveDate, last: NaiveDate) -> Vec<Night> {
+    let windows = night_windows(site, first, last);
+    let (Some(a), Some(b)) = (windows.first(), windows.last()) else {
+        return Vec::new();
+    };
+    let tables = SkyTables::new(a.1.start, b.1.end);
+    nights_with(site, &windows, &tables)
+}
+
+/// The nights in `windows` at a site with their dark intervals, from precomputed tables.
+pub fn nights_with(site: &Site, windows: &[(NaiveDate, Interval)], tables: &SkyTables) -> Vec<Night> {
+    let obs = site.observer;
+    windows
+        .par_iter()
+        .map(|&(d, window)| {
+            let crossing = sun_crossings_with(
+                &|t| tables.sun_alt_deg(t, &obs),
+                &|t| tables.sun_hour_angle_rad(t, &obs),
+                site.darkness_alt_deg,
+                window.start,
+                window.end,
+            );
+            let dark = match crossing {
                 SunCrossing::AlwaysAbove => None,
                 SunCrossing::AlwaysBelow => Some(window),
                 SunCrossing::Crosses { down, up } => Some(Interval {
-                    start: down.unwrap_or(start),
-                    end: up.unwrap_or(end),
+                    start: down.unwrap_or(window.start),
+                    end: up.unwrap_or(window.end),
                 }),
             };
-            Night {
-                night_of: d,
-                window,
-                dark,
-            }
+            Night { night_of: d, window, dark }
         })
         .collect()
 }
@@ -261,14 +286,12 @@ struct Track {
 }
 
 impl Track {
-    fn new(icrs: &Vec3, t_ref: f64, site: &Site, earth: &EarthTable) -> Track {
-        let eo = EarthOrientation::at(JdUtc(t_ref));
-        let vel = earth.earth_bary_vel_au_per_day(jd_tdb_from_utc(JdUtc(t_ref)).0);
-        let (ra_rad, dec_rad) = eo.apparent_radec(icrs, Some(&vel));
+    fn new(icrs: &Vec3, t_ref: f64, site: &Site, tables: &SkyTables) -> Track {
+        let (ra_rad, dec_rad) = tables.apparent_radec(icrs, t_ref);
         Track {
             ra_rad,
             dec_rad,
-            eqeq_rad: eo.nutation.equation_of_equinoxes_rad(),
+            eqeq_rad: wrap_pi(tables.gast_rad(t_ref) - gmst_rad(t_ref)),
             lon_rad: site.observer.lon_rad,
             lat_rad: site.observer.lat_rad,
         }
@@ -277,6 +300,11 @@ impl Track {
     /// Hour angle, rad -pi..pi (west +).
     fn ha_rad(&self, t: f64) -> f64 {
         wrap_pi(gmst_rad(t) + self.eqeq_rad + self.lon_rad - self.ra_rad)
+    }
+
+    /// Altitude, deg.
+    fn alt_deg(&self, t: f64) -> f64 {
+        crate::astro::frames::alt_from_hadec(self.ha_rad(t), self.dec_rad, self.lat_rad).to_degrees()
     }
 
     /// (altitude deg, azimuth deg).
@@ -305,12 +333,45 @@ impl Track {
     }
 }
 
-/// The Moon's topocentric RA/Dec at `t` for a site (rad).
-fn moon_topo_radec(t: f64, site: &Site) -> (f64, f64) {
-    let eo = EarthOrientation::at(JdUtc(t));
-    let geo = moon_apparent(eo.jd_tt, &eo.nutation);
-    let topo = topocentric(&geo, &site.observer, eo.last_rad(site.observer.lon_rad));
-    (topo.ra_rad, topo.dec_rad)
+/// The sub-intervals of `block` where the target is at or above `min_alt_deg`, solved exactly for the frozen
+/// apparent place: above the limit when |H| <= H0 with cos H0 = (sin h - sin phi sin dec) / (cos phi cos dec)
+/// (Meeus 1998 eq. 15.1 for any altitude h), the hour angle H advancing at the sidereal rate.
+fn alt_intervals(track: &Track, min_alt_deg: f64, block: &Interval) -> Vec<Interval> {
+    let (sl, cl) = track.lat_rad.sin_cos();
+    let (sd, cd) = track.dec_rad.sin_cos();
+    let sh = min_alt_deg.to_radians().sin();
+    let denom = cl * cd;
+    let c0 = if denom.abs() < 1e-12 {
+        // At a pole, or a target at a celestial pole: the altitude does not change.
+        if sl * sd >= sh {
+            -2.0
+        } else {
+            2.0
+        }
+    } else {
+        (sh - sl * sd) / denom
+    };
+    if c0 <= -1.0 {
+        return vec![*block];
+    }
+    if c0 >= 1.0 {
+        return Vec::new();
+    }
+    let h0 = c0.acos();
+    let omega = TAU * SIDEREAL_RATE;
+    let ha_a = track.ha_rad(block.start);
+    let ha_b = ha_a + omega * (block.end - block.start);
+    let mut out = Vec::new();
+    let k0 = ((ha_a - h0) / TAU).floor() as i64 - 1;
+    let k1 = ((ha_b + h0) / TAU).ceil() as i64 + 1;
+    for k in k0..=k1 {
+        let a = (TAU * k as f64 - h0).max(ha_a);
+        let b = (TAU * k as f64 + h0).min(ha_b);
+        if b > a {
+            out.push(Interval { start: block.start + (a - ha_a) / omega, end: block.start + (b - ha_a) / omega });
+        }
+    }
+    out
 }
 
 /// Intersect two sorted lists of disjoint intervals.
@@ -349,13 +410,15 @@ pub fn usable_intervals(
     earth: &EarthTable,
 ) -> (Vec<Interval>, Vec<Reason>) {
     let mid = 0.5 * (block.start + block.end);
+    let _ = earth;
+    let tables = SkyTables::new(block.start - 1.0, block.end + 1.0);
     let track = Track::new(
         &unit_from_radec(target.ra_deg.to_radians(), target.dec_deg.to_radians()),
         mid,
         site,
-        earth,
+        &tables,
     );
-    usable_intervals_on_track(&track, site, night, block)
+    usable_intervals_on_track(&track, site, night, block, &tables)
 }
 
 fn usable_intervals_on_track(
@@ -363,6 +426,7 @@ fn usable_intervals_on_track(
     site: &Site,
     night: &Night,
     block: &Interval,
+    tables: &SkyTables,
 ) -> (Vec<Interval>, Vec<Reason>) {
     let block = *block;
     let (upper, lower) = track.culminations(block.start, block.end);
@@ -382,13 +446,7 @@ fn usable_intervals_on_track(
         .map(|d| vec![d])
         .unwrap_or_default();
     apply(dark, Reason::Daylight, &mut usable);
-    let alt_ok = intervals_where_nonnegative(
-        &|t| track.alt_az_deg(t).0 - site.min_alt_deg,
-        block.start,
-        block.end,
-        step,
-        &extrema,
-    );
+    let alt_ok = alt_intervals(track, site.min_alt_deg, &block);
     apply(alt_ok, Reason::BelowAltitudeLimit, &mut usable);
     if !site.horizon.is_empty() {
         let f = |t: f64| {
@@ -409,7 +467,8 @@ fn usable_intervals_on_track(
     }
     if let Some(min_sep) = site.min_moon_sep_deg {
         let f = |t: f64| {
-            let (mra, mdec) = moon_topo_radec(t, site);
+            let (m, _, _) = tables.moon_topo(t, &site.observer);
+            let (mra, mdec) = (m.ra_rad, m.dec_rad);
             separation_rad(track.ra_rad, track.dec_rad, mra, mdec).to_degrees() - min_sep
         };
         let ok = intervals_where_nonnegative(&f, block.start, block.end, step * 3.0, &[]);
@@ -430,7 +489,7 @@ fn evaluate(
     sigma_days: f64,
     night: &Night,
     opts: &PlanOptions,
-    earth: &EarthTable,
+    tables: &SkyTables,
 ) -> Event {
     let half = target.t14_hours / 48.0;
     let ingress = mid_utc - half;
@@ -444,9 +503,9 @@ fn evaluate(
         &unit_from_radec(target.ra_deg.to_radians(), target.dec_deg.to_radians()),
         mid_utc,
         site,
-        earth,
+        tables,
     );
-    let (usable, mut reasons) = usable_intervals_on_track(&track, site, night, &block);
+    let (usable, mut reasons) = usable_intervals_on_track(&track, site, night, &block, tables);
     let upper = track.culminations(block.start, block.end).0;
     let lost = sigma_days > LOST_SIGMA_FRACTION_OF_PERIOD * target.ephemeris.period_days;
 
@@ -504,17 +563,11 @@ fn evaluate(
     reasons.sort();
     reasons.dedup();
 
-    let (alt_in, _) = track.alt_az_deg(ingress);
+    let alt_in = track.alt_deg(ingress);
     let (alt_mid, az_mid) = track.alt_az_deg(mid_utc);
-    let (alt_eg, _) = track.alt_az_deg(egress);
-    let sm = sun_moon_at(JdUtc(mid_utc), &site.observer);
-    let moon_sep = separation_rad(
-        track.ra_rad,
-        track.dec_rad,
-        sm.moon_topo.ra_rad,
-        sm.moon_topo.dec_rad,
-    )
-    .to_degrees();
+    let alt_eg = track.alt_deg(egress);
+    let (sun_alt, moon_topo, moon_alt, moon_illum) = tables.sun_moon(mid_utc, &site.observer);
+    let moon_sep = separation_rad(track.ra_rad, track.dec_rad, moon_topo.ra_rad, moon_topo.dec_rad).to_degrees();
     Event {
         target_index,
         site_index,
@@ -536,16 +589,16 @@ fn evaluate(
         alt_ingress_deg: alt_in,
         alt_mid_deg: alt_mid,
         alt_egress_deg: alt_eg,
-        alt_block_start_deg: track.alt_az_deg(block.start).0,
-        alt_block_end_deg: track.alt_az_deg(block.end).0,
+        alt_block_start_deg: track.alt_deg(block.start),
+        alt_block_end_deg: track.alt_deg(block.end),
         airmass_ingress: airmass_kasten_young(alt_in),
         airmass_mid: airmass_kasten_young(alt_mid),
         airmass_egress: airmass_kasten_young(alt_eg),
         az_mid_deg: az_mid,
-        sun_alt_mid_deg: sm.sun_alt_deg,
-        moon_alt_mid_deg: sm.moon_alt_deg,
+        sun_alt_mid_deg: sun_alt,
+        moon_alt_mid_deg: moon_alt,
         moon_sep_deg: moon_sep,
-        moon_illum: sm.moon_illum,
+        moon_illum,
         meridian_utc: upper.first().copied(),
         reasons,
     }
@@ -556,67 +609,125 @@ fn evaluate(
 /// Returns, per site, the nights and the events (observable ones; all of them with
 /// `opts.include_unobservable`), sorted by block start, plus the targets whose ephemeris is lost.
 pub fn plan(sites: &[Site], targets: &[Target], opts: &PlanOptions) -> Plan {
+    let planner = Planner::new(sites, targets, opts);
     let mut site_plans = Vec::new();
     let mut lost = std::collections::BTreeMap::new();
-    for (si, site) in sites.iter().enumerate() {
-        let nights = nights_at(site, opts.first_night, opts.last_night);
-        let (Some(first), Some(last)) = (nights.first(), nights.last()) else {
-            site_plans.push(SitePlan {
-                site_index: si,
-                nights,
-                events: Vec::new(),
-            });
-            continue;
-        };
-        let range = Interval {
-            start: first.window.start,
-            end: last.window.end,
-        };
-        let earth = EarthTable::new(range.start - 1.0, range.end + 1.0);
-        let mut events = Vec::new();
-        for (ti, target) in targets.iter().enumerate() {
-            let icrs = unit_from_radec(target.ra_deg.to_radians(), target.dec_deg.to_radians());
-            let eph = &target.ephemeris;
-            // Light time and TT-UTC are < 0.01 d: widen the range by 0.02 d in the target's time system.
-            for n in eph.epochs_between(range.start - 0.02, range.end + 0.02) {
-                let mid = earth
-                    .utc_from_system(eph.system, eph.mid_time(n), &icrs, Some(&site.observer))
-                    .0;
-                let date = night_of(mid, site.tz);
-                let Some(night) = nights.iter().find(|nt| nt.night_of == date) else {
-                    continue;
-                };
-                let sigma = eph.sigma_days(n);
-                let ev = evaluate(ti, target, si, site, n, mid, sigma, night, opts, &earth);
-                if ev.reasons.contains(&Reason::EphemerisLost) {
-                    lost.entry(ti).or_insert(ev.sigma_min);
-                }
-                if ev.observable || opts.include_unobservable {
-                    events.push(ev);
-                }
-            }
+    for si in 0..sites.len() {
+        let (sp, site_lost) = planner.site_plan(si, opts.first_night, opts.last_night);
+        for (ti, sigma) in site_lost {
+            lost.entry(ti).or_insert(sigma);
         }
-        events.sort_by(|a, b| {
-            a.block_start_utc
-                .total_cmp(&b.block_start_utc)
-                .then(a.target_index.cmp(&b.target_index))
-        });
-        site_plans.push(SitePlan {
-            site_index: si,
-            nights,
-            events,
-        });
+        site_plans.push(sp);
     }
     Plan {
         sites: site_plans,
-        lost: lost
-            .into_iter()
-            .map(|(target_index, sigma_min)| LostEphemeris {
-                target_index,
-                sigma_min,
-            })
-            .collect(),
+        lost: lost.into_iter().map(|(target_index, sigma_min)| LostEphemeris { target_index, sigma_min }).collect(),
     }
+}
+
+/// A planning run's shared state: the inputs and one set of [`SkyTables`] covering every site's nights, so
+/// the run can be done site by site and in chunks of nights (streaming output keeps memory bounded).
+pub struct Planner<'a> {
+    sites: &'a [Site],
+    targets: &'a [Target],
+    opts: &'a PlanOptions,
+    tables: Option<SkyTables>,
+}
+
+impl<'a> Planner<'a> {
+    /// Prepare a run: computes the tables for the whole range of `opts`.
+    pub fn new(sites: &'a [Site], targets: &'a [Target], opts: &'a PlanOptions) -> Planner<'a> {
+        let span = sites
+            .iter()
+            .filter_map(|s| {
+                let w = night_windows(s, opts.first_night, opts.last_night);
+                Some((w.first()?.1.start, w.last()?.1.end))
+            })
+            .fold(None, |acc: Option<(f64, f64)>, (a, b)| Some(acc.map_or((a, b), |(x, y)| (x.min(a), y.max(b)))));
+        let tables = span.map(|(a, b)| SkyTables::new(a - 1.0, b + 1.0));
+        Planner { sites, targets, opts, tables }
+    }
+
+    /// The plan of site `si` for the nights `first..=last` (within the run's range), and the targets whose
+    /// ephemeris is lost there, with their sigma in minutes.
+    pub fn site_plan(&self, si: usize, first: NaiveDate, last: NaiveDate) -> (SitePlan, Vec<(usize, f64)>) {
+        let site = &self.sites[si];
+        let windows = night_windows(site, first, last);
+        let (Some(tables), false) = (&self.tables, windows.is_empty()) else {
+            return (SitePlan { site_index: si, nights: Vec::new(), events: Vec::new() }, Vec::new());
+        };
+        let nights = nights_with(site, &windows, tables);
+        let range = Interval { start: windows[0].1.start, end: windows[windows.len() - 1].1.end };
+        let per_target: Vec<(Vec<Event>, Option<f64>)> = self
+            .targets
+            .par_iter()
+            .enumerate()
+            .map(|(ti, target)| events_of_target(ti, target, si, site, &nights, &range, self.opts, tables))
+            .collect();
+        let mut events = Vec::new();
+        let mut lost = Vec::new();
+        for (ti, (evs, lost_sigma)) in per_target.into_iter().enumerate() {
+            if let Some(sigma) = lost_sigma {
+                lost.push((ti, sigma));
+            }
+            events.extend(evs);
+        }
+        events.par_sort_by(|a, b| {
+            a.block_start_utc.total_cmp(&b.block_start_utc).then(a.target_index.cmp(&b.target_index))
+        });
+        (SitePlan { site_index: si, nights, events }, lost)
+    }
+}
+
+/// The events of one target at one site over the nights; and the timing sigma (minutes) if its ephemeris is
+/// lost in the range. Transits whose block misses the night's dark time are dropped before any geometry unless
+/// the options ask for unobservable events.
+#[allow(clippy::too_many_arguments)]
+fn events_of_target(
+    ti: usize,
+    target: &Target,
+    si: usize,
+    site: &Site,
+    nights: &[Night],
+    range: &Interval,
+    opts: &PlanOptions,
+    tables: &SkyTables,
+) -> (Vec<Event>, Option<f64>) {
+    let icrs = unit_from_radec(target.ra_deg.to_radians(), target.dec_deg.to_radians());
+    let eph = &target.ephemeris;
+    let half = target.t14_hours / 48.0;
+    let mut events = Vec::new();
+    let mut lost_sigma = None;
+    // Light time and TT-UTC are < 0.01 d: widen the range by 0.02 d in the target's time system.
+    for n in eph.epochs_between(range.start - 0.02, range.end + 0.02) {
+        let mid = tables.earth.utc_from_system(eph.system, eph.mid_time(n), &icrs, Some(&site.observer)).0;
+        // The night whose noon-to-noon window holds the mid-transit.
+        let k = nights.partition_point(|nt| nt.window.start <= mid);
+        if k == 0 || mid >= nights[k - 1].window.end {
+            continue;
+        }
+        let night = &nights[k - 1];
+        let sigma = eph.sigma_days(n);
+        let is_lost = sigma > LOST_SIGMA_FRACTION_OF_PERIOD * eph.period_days;
+        if is_lost && lost_sigma.is_none() {
+            lost_sigma = Some(sigma * 1440.0);
+        }
+        if !opts.include_unobservable {
+            if is_lost {
+                continue;
+            }
+            // Reject daytime transits before any geometry: the in-transit part must meet the dark time.
+            let touches_dark = night.dark.is_some_and(|d| mid + half > d.start && mid - half < d.end);
+            if !touches_dark {
+                continue;
+            }
+        }
+        let ev = evaluate(ti, target, si, site, n, mid, sigma, night, opts, tables);
+        if ev.observable || opts.include_unobservable {
+            events.push(ev);
+        }
+    }
+    (events, lost_sigma)
 }
 
 /// The first predicted mid-transit of `target` after `jd_utc` as seen from `site`, UTC JD.

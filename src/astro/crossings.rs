@@ -118,15 +118,33 @@ pub enum SunCrossing {
 }
 
 /// The Sun's crossings of `alt_deg` in the window `[start, end]` (UTC JD), normally local noon to the next
-/// local noon.
+/// local noon, with the direct (unpropagated) Sun of [`crate::astro::sky`].
 ///
 /// Returns the first descending and the last ascending crossing, or the polar cases explicitly. Accuracy:
 /// 0.5 s of root finding on top of the Sun's altitude error (about 1", i.e. < 1 s of time away from the poles).
-/// Samples every 20 minutes plus the instants of local apparent midnight and noon (the altitude extrema),
-/// found from the Sun's hour angle.
 pub fn sun_crossings(observer: &Observer, alt_deg: f64, start: f64, end: f64) -> SunCrossing {
-    let f = |t: f64| alt_deg - sun_alt_deg(JdUtc(t), observer);
-    let extrema = sun_transit_instants(observer, start, end);
+    use crate::astro::frames::{wrap_pi, EarthOrientation};
+    use crate::astro::sky::sun_apparent;
+    let ha = |t: f64| {
+        let eo = EarthOrientation::at(JdUtc(t));
+        let sun = sun_apparent(eo.jd_tt, &eo.nutation);
+        wrap_pi(eo.last_rad(observer.lon_rad) - sun.ra_rad)
+    };
+    sun_crossings_with(&|t| sun_alt_deg(JdUtc(t), observer), &ha, alt_deg, start, end)
+}
+
+/// [`sun_crossings`] for any model of the Sun: `sun_alt_deg(t)` its altitude and `sun_ha_rad(t)` its hour
+/// angle (-pi..pi) at UTC JD `t`. Samples every 20 minutes plus the instants of local apparent midnight and
+/// noon (the altitude extrema), found from the hour angle, so a grazing Sun near the poles is not missed.
+pub fn sun_crossings_with(
+    sun_alt_deg: &dyn Fn(f64) -> f64,
+    sun_ha_rad: &dyn Fn(f64) -> f64,
+    alt_deg: f64,
+    start: f64,
+    end: f64,
+) -> SunCrossing {
+    let f = |t: f64| alt_deg - sun_alt_deg(t);
+    let extrema = transit_instants(sun_ha_rad, start, end);
     let below = intervals_where_nonnegative(&f, start, end, 20.0 / 1440.0, &extrema);
     if below.is_empty() {
         return SunCrossing::AlwaysAbove;
@@ -142,24 +160,19 @@ pub fn sun_crossings(observer: &Observer, alt_deg: f64, start: f64, end: f64) ->
     }
 }
 
-/// Instants of the Sun's upper and lower meridian transits within `[start, end]` (UTC JD), to about 10 s.
-pub fn sun_transit_instants(observer: &Observer, start: f64, end: f64) -> Vec<f64> {
-    use crate::astro::frames::{wrap_pi, EarthOrientation};
-    use crate::astro::sky::sun_apparent;
-    let ha = |t: f64| {
-        let eo = EarthOrientation::at(JdUtc(t));
-        let sun = sun_apparent(eo.jd_tt, &eo.nutation);
-        wrap_pi(eo.last_rad(observer.lon_rad) - sun.ra_rad)
-    };
+/// Instants of upper and lower meridian transits within `[start, end]` (UTC JD), from an hour-angle function
+/// (rad, -pi..pi, increasing about 2pi a day), to 0.5 s.
+pub fn transit_instants(ha: &dyn Fn(f64) -> f64, start: f64, end: f64) -> Vec<f64> {
+    use crate::astro::frames::wrap_pi;
     let mut out = Vec::new();
-    // Hour angle grows by ~2pi per day; step through in 1/4 day chunks and find where it passes 0 and pi.
+    // The hour angle grows by ~2pi per day; step through in 1/4 day chunks and find where it passes 0 and pi.
     let mut t = start;
     while t < end {
         let t1 = (t + 0.25).min(end);
         let (h0, h1) = (ha(t), ha(t1));
         // Upper transit: ha crosses 0 from negative to positive.
         if h0 < 0.0 && h1 >= 0.0 {
-            out.push(bisect(&ha, t, h0, t1));
+            out.push(bisect(&|x| ha(x), t, h0, t1));
         }
         // Lower transit: ha wraps from +pi to -pi.
         if h0 > 0.0 && h1 < 0.0 {

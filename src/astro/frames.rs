@@ -56,7 +56,7 @@ pub fn unit_from_radec(ra_rad: f64, dec_rad: f64) -> Vec3 {
 
 /// Right ascension 0..2pi and declination -pi/2..pi/2 (radians) of a vector of any length.
 pub fn radec_from_vec(v: &Vec3) -> (f64, f64) {
-    let ra = v[1].atan2(v[0]).rem_euclid(TAU);
+    let ra = wrap_to(v[1].atan2(v[0]), TAU);
     let dec = v[2].atan2((v[0] * v[0] + v[1] * v[1]).sqrt());
     (ra, dec)
 }
@@ -64,6 +64,18 @@ pub fn radec_from_vec(v: &Vec3) -> (f64, f64) {
 /// Vector length.
 pub fn norm(v: &Vec3) -> f64 {
     (v[0] * v[0] + v[1] * v[1] + v[2] * v[2]).sqrt()
+}
+
+/// `x` reduced to `[0, m)` with a floor instead of the (slow) `fmod` behind `rem_euclid`; equal to
+/// `x.rem_euclid(m)` up to rounding in the last place.
+#[inline]
+pub fn wrap_to(x: f64, m: f64) -> f64 {
+    let r = x - m * (x / m).floor();
+    if r >= m || r < 0.0 {
+        0.0
+    } else {
+        r
+    }
 }
 
 /// Angular separation of two directions, radians, 0..pi.
@@ -147,7 +159,7 @@ pub fn gmst_rad(jd_ut1: f64) -> f64 {
     let t = (jd_ut1 - J2000_JD) / 36_525.0;
     let deg = 280.460_618_37 + 360.985_647_366_29 * (jd_ut1 - J2000_JD) + 0.000_387_933 * t * t
         - t * t * t / 38_710_000.0;
-    deg.to_radians().rem_euclid(TAU)
+    wrap_to(deg.to_radians(), TAU)
 }
 
 /// Geodetic position of an observer.
@@ -211,13 +223,19 @@ pub fn alt_az_from_hadec(ha_rad: f64, dec_rad: f64, lat_rad: f64) -> (f64, f64) 
     let y = -sh * cd;
     let z = ch * cd * cl + sd * sl;
     let alt = z.atan2((x * x + y * y).sqrt());
-    let az = y.atan2(x).rem_euclid(TAU);
+    let az = wrap_to(y.atan2(x), TAU);
     (alt, az)
+}
+
+/// Geometric altitude only (rad) from hour angle, declination and latitude: sin h = sin phi sin dec +
+/// cos phi cos dec cos H (Meeus 1998 eq. 13.6); cheaper than [`alt_az_from_hadec`] when the azimuth is not needed.
+pub fn alt_from_hadec(ha_rad: f64, dec_rad: f64, lat_rad: f64) -> f64 {
+    (lat_rad.sin() * dec_rad.sin() + lat_rad.cos() * dec_rad.cos() * ha_rad.cos()).clamp(-1.0, 1.0).asin()
 }
 
 /// Hour angle wrapped to -pi..pi (west +).
 pub fn wrap_pi(angle_rad: f64) -> f64 {
-    let a = (angle_rad + PI).rem_euclid(TAU) - PI;
+    let a = wrap_to(angle_rad + PI, TAU) - PI;
     if a <= -PI {
         a + TAU
     } else {

@@ -5,4 +5,5 @@ pub mod barycentric;
 pub mod crossings;
 pub mod frames;
 pub mod sky;
+pub mod tables;
 pub mod time;

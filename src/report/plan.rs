@@ -144,7 +144,95 @@ fn records(plan: &Plan, sites: &[Site], targets: &[Target]) -> Vec<EventRecord> 
 
 /// CSV: a header and one line per event, the JSON fields as columns (`reasons` joined with `;`).
 pub fn plan_csv(plan: &Plan, sites: &[Site], targets: &[Target]) -> String {
-    super::csv_from_records(EVENT_FIELDS, &records(plan, sites, targets))
+    let mut out = csv_header();
+    for sp in &plan.sites {
+        push_event_csv_rows(&sp.events, sites, targets, &mut out);
+    }
+    out
+}
+
+/// The CSV header line of events.
+pub fn csv_header() -> String {
+    let mut s = EVENT_FIELDS.join(",");
+    s.push('\n');
+    s
+}
+
+/// A CSV field, quoted when it holds a comma, quote or line break (RFC 4180 section 2).
+fn push_csv_text(s: &str, out: &mut String) {
+    if s.contains([',', '"', '\n', '\r']) {
+        out.push('"');
+        out.push_str(&s.replace('"', "\"\""));
+        out.push('"');
+    } else {
+        out.push_str(s);
+    }
+}
+
+/// Append one CSV row per event (the columns of [`EVENT_FIELDS`]) to `out`. Formats numbers with fixed
+/// decimals and timestamps without allocating, so a catalogue-scale plan streams quickly.
+pub fn push_event_csv_rows(events: &[Event], sites: &[Site], targets: &[Target], out: &mut String) {
+    use crate::civil::push_rfc3339_utc as ts;
+    use std::fmt::Write;
+    for e in events {
+        let t = &targets[e.target_index];
+        push_csv_text(&t.name, out);
+        out.push(',');
+        push_csv_text(&sites[e.site_index].name, out);
+        let _ = write!(out, ",{},{},{},{:.3},", e.epoch, e.verdict.label(), e.observable, e.coverage);
+        for jd in [e.mid_utc, e.ingress_utc, e.egress_utc, e.block_start_utc, e.block_end_utc] {
+            ts(jd, out);
+            out.push(',');
+        }
+        for jd in [e.usable.map(|u| u.start), e.usable.map(|u| u.end)] {
+            if let Some(jd) = jd {
+                ts(jd, out);
+            }
+            out.push(',');
+        }
+        let _ = write!(
+            out,
+            "{:.2},{:.1},{:.1},{},",
+            e.sigma_min, e.baseline_before_min, e.baseline_after_min, e.night_of
+        );
+        for jd in [e.night_dark.map(|d| d.start), e.night_dark.map(|d| d.end)] {
+            if let Some(jd) = jd {
+                ts(jd, out);
+            }
+            out.push(',');
+        }
+        let _ = write!(
+            out,
+            "{:.2},{:.2},{:.2},{:.2},{:.2},",
+            e.alt_ingress_deg, e.alt_mid_deg, e.alt_egress_deg, e.alt_block_start_deg, e.alt_block_end_deg
+        );
+        for x in [e.airmass_ingress, e.airmass_mid, e.airmass_egress] {
+            if x.is_finite() {
+                let _ = write!(out, "{x:.3}");
+            }
+            out.push(',');
+        }
+        let _ = write!(
+            out,
+            "{:.2},{:.2},{:.2},{:.2},{:.3},",
+            e.az_mid_deg, e.sun_alt_mid_deg, e.moon_alt_mid_deg, e.moon_sep_deg, e.moon_illum
+        );
+        if let Some(m) = e.meridian_utc {
+            ts(m, out);
+        }
+        out.push(',');
+        if let Some(d) = t.depth_ppt {
+            let _ = write!(out, "{d}");
+        }
+        let _ = write!(out, ",{},", t.priority);
+        for (k, r) in e.reasons.iter().enumerate() {
+            if k > 0 {
+                out.push(';');
+            }
+            out.push_str(r.label());
+        }
+        out.push('\n');
+    }
 }
 
 /// JSON: `{"options": ..., "sites": [...], "events": [...], "lost_ephemerides": [...]}`.
