@@ -1,11 +1,12 @@
 //! The almanac of one night at a site: sunset and sunrise, the three twilights, hours of darkness at the site's
 //! level, Moon rise and set, and the Moon's illuminated fraction.
 
-use crate::astro::crossings::{intervals_where_nonnegative, sun_crossings, Interval, SunCrossing};
-use crate::astro::frames::EarthOrientation;
-use crate::astro::sky::{
-    alt_az, moon_apparent, moon_illuminated_fraction, sun_apparent, topocentric,
+use crate::astro::crossings::{
+    intervals_where_nonnegative, sun_crossings_with, Interval, SunCrossing,
 };
+use crate::astro::frames::EarthOrientation;
+use crate::astro::sky::{alt_az, moon_apparent, topocentric};
+use crate::astro::tables::SkyTables;
 use crate::astro::time::JdUtc;
 use crate::civil::local_noon_jd;
 use crate::constants::{
@@ -62,8 +63,15 @@ pub struct NightAlmanac {
     pub notes: Vec<String>,
 }
 
-fn level(site: &Site, alt_deg: f64, window: &Interval) -> LevelCrossings {
-    let state = sun_crossings(&site.observer, alt_deg, window.start, window.end);
+fn level(site: &Site, alt_deg: f64, window: &Interval, tables: &SkyTables) -> LevelCrossings {
+    let obs = site.observer;
+    let state = sun_crossings_with(
+        &|t| tables.sun_alt_deg(t, &obs),
+        &|t| tables.sun_hour_angle_rad(t, &obs),
+        alt_deg,
+        window.start,
+        window.end,
+    );
     let (dusk, dawn) = match state {
         SunCrossing::Crosses { down, up } => (down, up),
         _ => (None, None),
@@ -90,15 +98,16 @@ pub fn night_almanac(site: &Site, night_of: NaiveDate) -> NightAlmanac {
         start: local_noon_jd(night_of, site.tz),
         end: local_noon_jd(night_of.succ_opt().unwrap_or(night_of), site.tz),
     };
-    let sun = level(site, SUNRISE_ALT_DEG, &window);
-    let civil = level(site, CIVIL_TWILIGHT_ALT_DEG, &window);
-    let nautical = level(site, NAUTICAL_TWILIGHT_ALT_DEG, &window);
-    let astronomical = level(site, ASTRONOMICAL_TWILIGHT_ALT_DEG, &window);
+    let tables = SkyTables::new(window.start - 0.5, window.end + 0.5);
+    let sun = level(site, SUNRISE_ALT_DEG, &window, &tables);
+    let civil = level(site, CIVIL_TWILIGHT_ALT_DEG, &window, &tables);
+    let nautical = level(site, NAUTICAL_TWILIGHT_ALT_DEG, &window, &tables);
+    let astronomical = level(site, ASTRONOMICAL_TWILIGHT_ALT_DEG, &window, &tables);
     let site_level = [&sun, &civil, &nautical, &astronomical]
         .into_iter()
         .find(|l| l.alt_deg == site.darkness_alt_deg)
         .copied()
-        .unwrap_or_else(|| level(site, site.darkness_alt_deg, &window));
+        .unwrap_or_else(|| level(site, site.darkness_alt_deg, &window, &tables));
     let dark = match site_level.state {
         SunCrossing::AlwaysAbove => None,
         SunCrossing::AlwaysBelow => Some(window),
@@ -126,7 +135,7 @@ pub fn night_almanac(site: &Site, night_of: NaiveDate) -> NightAlmanac {
             SunCrossing::Crosses { .. } => {}
         }
     }
-    let f = |t: f64| moon_alt_deg(t, site) - MOONRISE_TOPO_ALT_DEG;
+    let f = |t: f64| tables.moon_topo(t, &site.observer).1 - MOONRISE_TOPO_ALT_DEG;
     let up = intervals_where_nonnegative(&f, window.start, window.end, 20.0 / 1440.0, &[]);
     let moonrise = up.iter().map(|i| i.start).find(|&t| t > window.start);
     let moonset = up.iter().map(|i| i.end).find(|&t| t < window.end);
@@ -148,12 +157,7 @@ pub fn night_almanac(site: &Site, night_of: NaiveDate) -> NightAlmanac {
             "no moonset between this noon and the next (the Moon's day is longer than ours)".into(),
         );
     }
-    let mid = 0.5 * (window.start + window.end);
-    let eo = EarthOrientation::at(JdUtc(mid));
-    let moon_illum = moon_illuminated_fraction(
-        &sun_apparent(eo.jd_tt, &eo.nutation),
-        &moon_apparent(eo.jd_tt, &eo.nutation),
-    );
+    let moon_illum = tables.moon_illum(0.5 * (window.start + window.end));
     NightAlmanac {
         night_of,
         window,

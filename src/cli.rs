@@ -324,7 +324,12 @@ const STREAM_CHUNK_NIGHTS: i64 = 32;
 
 /// Plan and write CSV site by site and month by month, formatting rows in parallel; the output is the same
 /// as `report::plan_csv` of the whole plan. A progress bar shows on a terminal for long runs.
-fn stream_plan_csv(sites: &[Site], targets: &[Target], opts: &PlanOptions, out: Option<&Path>) -> Result<()> {
+fn stream_plan_csv(
+    sites: &[Site],
+    targets: &[Target],
+    opts: &PlanOptions,
+    out: Option<&Path>,
+) -> Result<()> {
     use rayon::prelude::*;
     let planner = dipwatch::plan::Planner::new(sites, targets, opts);
     let n_nights = (opts.last_night - opts.first_night).num_days() + 1;
@@ -332,15 +337,20 @@ fn stream_plan_csv(sites: &[Site], targets: &[Target], opts: &PlanOptions, out: 
         .step_by(STREAM_CHUNK_NIGHTS as usize)
         .map(|k| {
             let a = opts.first_night + Duration::days(k);
-            (a, (a + Duration::days(STREAM_CHUNK_NIGHTS - 1)).min(opts.last_night))
+            (
+                a,
+                (a + Duration::days(STREAM_CHUNK_NIGHTS - 1)).min(opts.last_night),
+            )
         })
         .collect();
     let long = targets.len() as i64 * n_nights * sites.len() as i64 > 2_000_000;
     let bar = if long && std::io::IsTerminal::is_terminal(&std::io::stderr()) {
         let b = indicatif::ProgressBar::new((chunks.len() * sites.len()) as u64);
         b.set_style(
-            indicatif::ProgressStyle::with_template("{msg} [{bar:30}] {pos}/{len} site-months, {eta} left")
-                .unwrap_or_else(|_| indicatif::ProgressStyle::default_bar()),
+            indicatif::ProgressStyle::with_template(
+                "{msg} [{bar:30}] {pos}/{len} site-months, {eta} left",
+            )
+            .unwrap_or_else(|_| indicatif::ProgressStyle::default_bar()),
         );
         b.set_message("planning");
         Some(b)
@@ -377,7 +387,12 @@ fn stream_plan_csv(sites: &[Site], targets: &[Target], opts: &PlanOptions, out: 
             let stdout = std::io::stdout();
             let mut w = std::io::BufWriter::with_capacity(1 << 20, stdout.lock());
             match write_all(&mut w) {
-                Err(e) if e.downcast_ref::<std::io::Error>().is_some_and(|io| io.kind() == std::io::ErrorKind::BrokenPipe) => Ok(()),
+                Err(e)
+                    if e.downcast_ref::<std::io::Error>()
+                        .is_some_and(|io| io.kind() == std::io::ErrorKind::BrokenPipe) =>
+                {
+                    Ok(())
+                }
                 other => other,
             }
         }
@@ -410,12 +425,18 @@ pub fn write_atomically(path: &Path, bytes: &[u8]) -> Result<()> {
 
 /// Like [`write_atomically`], with the content produced by `fill` into a buffered temporary file in the same
 /// folder; on any error the temporary file is removed and `path` is untouched.
-pub fn write_atomically_with(path: &Path, fill: impl FnOnce(&mut dyn Write) -> Result<()>) -> Result<()> {
+pub fn write_atomically_with(
+    path: &Path,
+    fill: impl FnOnce(&mut dyn Write) -> Result<()>,
+) -> Result<()> {
     let dir = match path.parent() {
         Some(d) if !d.as_os_str().is_empty() => d.to_path_buf(),
         _ => PathBuf::from("."),
     };
-    let name = path.file_name().map(|n| n.to_string_lossy().to_string()).unwrap_or_else(|| "out".into());
+    let name = path
+        .file_name()
+        .map(|n| n.to_string_lossy().to_string())
+        .unwrap_or_else(|| "out".into());
     let tmp = dir.join(format!(".{name}.{}.tmp", std::process::id()));
     let result = (|| -> Result<()> {
         let f = std::fs::File::create(&tmp)?;
@@ -432,7 +453,6 @@ pub fn write_atomically_with(path: &Path, fill: impl FnOnce(&mut dyn Write) -> R
     }
     Ok(())
 }
-
 
 #[derive(Copy, Clone, Debug, PartialEq, Eq, ValueEnum)]
 enum TextFormat {

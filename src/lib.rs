@@ -16,3 +16,4 @@ pub mod plan;
 pub mod refine;
 pub mod report;
 pub mod schedule;
+pub mod synthetic;

@@ -250,7 +250,11 @@ pub fn nights_at(site: &Site, first: NaiveDate, last: NaiveDate) -> Vec<Night> {
 }
 
 /// The nights in `windows` at a site with their dark intervals, from precomputed tables.
-pub fn nights_with(site: &Site, windows: &[(NaiveDate, Interval)], tables: &SkyTables) -> Vec<Night> {
+pub fn nights_with(
+    site: &Site,
+    windows: &[(NaiveDate, Interval)],
+    tables: &SkyTables,
+) -> Vec<Night> {
     let obs = site.observer;
     windows
         .par_iter()
@@ -270,7 +274,11 @@ pub fn nights_with(site: &Site, windows: &[(NaiveDate, Interval)], tables: &SkyT
                     end: up.unwrap_or(window.end),
                 }),
             };
-            Night { night_of: d, window, dark }
+            Night {
+                night_of: d,
+                window,
+                dark,
+            }
         })
         .collect()
 }
@@ -304,7 +312,8 @@ impl Track {
 
     /// Altitude, deg.
     fn alt_deg(&self, t: f64) -> f64 {
-        crate::astro::frames::alt_from_hadec(self.ha_rad(t), self.dec_rad, self.lat_rad).to_degrees()
+        crate::astro::frames::alt_from_hadec(self.ha_rad(t), self.dec_rad, self.lat_rad)
+            .to_degrees()
     }
 
     /// (altitude deg, azimuth deg).
@@ -368,7 +377,10 @@ fn alt_intervals(track: &Track, min_alt_deg: f64, block: &Interval) -> Vec<Inter
         let a = (TAU * k as f64 - h0).max(ha_a);
         let b = (TAU * k as f64 + h0).min(ha_b);
         if b > a {
-            out.push(Interval { start: block.start + (a - ha_a) / omega, end: block.start + (b - ha_a) / omega });
+            out.push(Interval {
+                start: block.start + (a - ha_a) / omega,
+                end: block.start + (b - ha_a) / omega,
+            });
         }
     }
     out
@@ -567,7 +579,13 @@ fn evaluate(
     let (alt_mid, az_mid) = track.alt_az_deg(mid_utc);
     let alt_eg = track.alt_deg(egress);
     let (sun_alt, moon_topo, moon_alt, moon_illum) = tables.sun_moon(mid_utc, &site.observer);
-    let moon_sep = separation_rad(track.ra_rad, track.dec_rad, moon_topo.ra_rad, moon_topo.dec_rad).to_degrees();
+    let moon_sep = separation_rad(
+        track.ra_rad,
+        track.dec_rad,
+        moon_topo.ra_rad,
+        moon_topo.dec_rad,
+    )
+    .to_degrees();
     Event {
         target_index,
         site_index,
@@ -621,7 +639,13 @@ pub fn plan(sites: &[Site], targets: &[Target], opts: &PlanOptions) -> Plan {
     }
     Plan {
         sites: site_plans,
-        lost: lost.into_iter().map(|(target_index, sigma_min)| LostEphemeris { target_index, sigma_min }).collect(),
+        lost: lost
+            .into_iter()
+            .map(|(target_index, sigma_min)| LostEphemeris {
+                target_index,
+                sigma_min,
+            })
+            .collect(),
     }
 }
 
@@ -643,26 +667,50 @@ impl<'a> Planner<'a> {
                 let w = night_windows(s, opts.first_night, opts.last_night);
                 Some((w.first()?.1.start, w.last()?.1.end))
             })
-            .fold(None, |acc: Option<(f64, f64)>, (a, b)| Some(acc.map_or((a, b), |(x, y)| (x.min(a), y.max(b)))));
+            .fold(None, |acc: Option<(f64, f64)>, (a, b)| {
+                Some(acc.map_or((a, b), |(x, y)| (x.min(a), y.max(b))))
+            });
         let tables = span.map(|(a, b)| SkyTables::new(a - 1.0, b + 1.0));
-        Planner { sites, targets, opts, tables }
+        Planner {
+            sites,
+            targets,
+            opts,
+            tables,
+        }
     }
 
     /// The plan of site `si` for the nights `first..=last` (within the run's range), and the targets whose
     /// ephemeris is lost there, with their sigma in minutes.
-    pub fn site_plan(&self, si: usize, first: NaiveDate, last: NaiveDate) -> (SitePlan, Vec<(usize, f64)>) {
+    pub fn site_plan(
+        &self,
+        si: usize,
+        first: NaiveDate,
+        last: NaiveDate,
+    ) -> (SitePlan, Vec<(usize, f64)>) {
         let site = &self.sites[si];
         let windows = night_windows(site, first, last);
         let (Some(tables), false) = (&self.tables, windows.is_empty()) else {
-            return (SitePlan { site_index: si, nights: Vec::new(), events: Vec::new() }, Vec::new());
+            return (
+                SitePlan {
+                    site_index: si,
+                    nights: Vec::new(),
+                    events: Vec::new(),
+                },
+                Vec::new(),
+            );
         };
         let nights = nights_with(site, &windows, tables);
-        let range = Interval { start: windows[0].1.start, end: windows[windows.len() - 1].1.end };
+        let range = Interval {
+            start: windows[0].1.start,
+            end: windows[windows.len() - 1].1.end,
+        };
         let per_target: Vec<(Vec<Event>, Option<f64>)> = self
             .targets
             .par_iter()
             .enumerate()
-            .map(|(ti, target)| events_of_target(ti, target, si, site, &nights, &range, self.opts, tables))
+            .map(|(ti, target)| {
+                events_of_target(ti, target, si, site, &nights, &range, self.opts, tables)
+            })
             .collect();
         let mut events = Vec::new();
         let mut lost = Vec::new();
@@ -673,9 +721,18 @@ impl<'a> Planner<'a> {
             events.extend(evs);
         }
         events.par_sort_by(|a, b| {
-            a.block_start_utc.total_cmp(&b.block_start_utc).then(a.target_index.cmp(&b.target_index))
+            a.block_start_utc
+                .total_cmp(&b.block_start_utc)
+                .then(a.target_index.cmp(&b.target_index))
         });
-        (SitePlan { site_index: si, nights, events }, lost)
+        (
+            SitePlan {
+                site_index: si,
+                nights,
+                events,
+            },
+            lost,
+        )
     }
 }
 
@@ -700,7 +757,10 @@ fn events_of_target(
     let mut lost_sigma = None;
     // Light time and TT-UTC are < 0.01 d: widen the range by 0.02 d in the target's time system.
     for n in eph.epochs_between(range.start - 0.02, range.end + 0.02) {
-        let mid = tables.earth.utc_from_system(eph.system, eph.mid_time(n), &icrs, Some(&site.observer)).0;
+        let mid = tables
+            .earth
+            .utc_from_system(eph.system, eph.mid_time(n), &icrs, Some(&site.observer))
+            .0;
         // The night whose noon-to-noon window holds the mid-transit.
         let k = nights.partition_point(|nt| nt.window.start <= mid);
         if k == 0 || mid >= nights[k - 1].window.end {
@@ -717,7 +777,9 @@ fn events_of_target(
                 continue;
             }
             // Reject daytime transits before any geometry: the in-transit part must meet the dark time.
-            let touches_dark = night.dark.is_some_and(|d| mid + half > d.start && mid - half < d.end);
+            let touches_dark = night
+                .dark
+                .is_some_and(|d| mid + half > d.start && mid - half < d.end);
             if !touches_dark {
                 continue;
             }
@@ -785,4 +847,50 @@ pub fn usable_minutes_oracle(
             ok
         })
         .collect()
+}
+
+/// The brute-force planner used as the speed reference: every transit of every target at `site` over the
+/// nights of `opts`, its whole block sampled every minute with the full-precision pipeline
+/// ([`usable_minutes_oracle`]). Returns (target index, epoch, usable in-transit minutes). No tables, no root
+/// finding, no early rejection: about as simple as a planner can be.
+pub fn brute_force_site(
+    site: &Site,
+    targets: &[Target],
+    opts: &PlanOptions,
+) -> Vec<(usize, i64, usize)> {
+    let nights = nights_at(site, opts.first_night, opts.last_night);
+    let (Some(first), Some(last)) = (nights.first(), nights.last()) else {
+        return Vec::new();
+    };
+    let earth = EarthTable::new(first.window.start - 1.0, last.window.end + 1.0);
+    let mut out = Vec::new();
+    for (ti, t) in targets.iter().enumerate() {
+        let icrs = unit_from_radec(t.ra_deg.to_radians(), t.dec_deg.to_radians());
+        let eph = &t.ephemeris;
+        for n in eph.epochs_between(first.window.start - 0.02, last.window.end + 0.02) {
+            let mid = earth
+                .utc_from_system(eph.system, eph.mid_time(n), &icrs, Some(&site.observer))
+                .0;
+            let Some(night) = nights
+                .iter()
+                .find(|nt| mid >= nt.window.start && mid < nt.window.end)
+            else {
+                continue;
+            };
+            let half = t.t14_hours / 48.0;
+            let margin = opts.sigma_k * eph.sigma_days(n);
+            let start = mid - half - margin - opts.baseline_before_min / 1440.0;
+            let end = mid + half + margin + opts.baseline_after_min / 1440.0;
+            let ok = usable_minutes_oracle(site, t, night, start, end, &earth);
+            let in_transit = ok
+                .iter()
+                .enumerate()
+                .filter(|(i, &u)| u && (start + *i as f64 / 1440.0 - mid).abs() <= half)
+                .count();
+            if in_transit > 0 {
+                out.push((ti, n, in_transit));
+            }
+        }
+    }
+    out
 }

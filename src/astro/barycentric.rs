@@ -192,7 +192,8 @@ impl EarthTable {
                 let tdb_geo = value - self.delay_days(value - d0, target, &[0.0; 3], false);
                 let utc_geo = jd_utc_from_tdb(JdTdb(tdb_geo));
                 let obs = observer_icrs_au(utc_geo, observer);
-                let site_days = (obs[0] * target[0] + obs[1] * target[1] + obs[2] * target[2]) * AU_LIGHT_TIME_S
+                let site_days = (obs[0] * target[0] + obs[1] * target[1] + obs[2] * target[2])
+                    * AU_LIGHT_TIME_S
                     / SECONDS_PER_DAY;
                 JdUtc(utc_geo.0 - site_days)
             }
@@ -240,7 +241,9 @@ fn observer_icrs_au(jd_utc: JdUtc, observer: Option<&Observer>) -> Vec3 {
     };
     // Rotated with the mean sidereal time only: leaving out precession and nutation (< 0.5 deg until 2060)
     // moves this <= 21 ms term by < 0.2 ms, and keeps the conversion cheap in loops.
-    let p = obs.geocentric_m((crate::astro::frames::gmst_rad(jd_utc.0) + obs.lon_rad).rem_euclid(std::f64::consts::TAU));
+    let p = obs.geocentric_m(
+        (crate::astro::frames::gmst_rad(jd_utc.0) + obs.lon_rad).rem_euclid(std::f64::consts::TAU),
+    );
     [p[0] / AU_M, p[1] / AU_M, p[2] / AU_M]
 }
 

@@ -130,7 +130,13 @@ pub fn sun_crossings(observer: &Observer, alt_deg: f64, start: f64, end: f64) ->
         let sun = sun_apparent(eo.jd_tt, &eo.nutation);
         wrap_pi(eo.last_rad(observer.lon_rad) - sun.ra_rad)
     };
-    sun_crossings_with(&|t| sun_alt_deg(JdUtc(t), observer), &ha, alt_deg, start, end)
+    sun_crossings_with(
+        &|t| sun_alt_deg(JdUtc(t), observer),
+        &ha,
+        alt_deg,
+        start,
+        end,
+    )
 }
 
 /// [`sun_crossings`] for any model of the Sun: `sun_alt_deg(t)` its altitude and `sun_ha_rad(t)` its hour

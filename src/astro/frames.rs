@@ -230,7 +230,9 @@ pub fn alt_az_from_hadec(ha_rad: f64, dec_rad: f64, lat_rad: f64) -> (f64, f64) 
 /// Geometric altitude only (rad) from hour angle, declination and latitude: sin h = sin phi sin dec +
 /// cos phi cos dec cos H (Meeus 1998 eq. 13.6); cheaper than [`alt_az_from_hadec`] when the azimuth is not needed.
 pub fn alt_from_hadec(ha_rad: f64, dec_rad: f64, lat_rad: f64) -> f64 {
-    (lat_rad.sin() * dec_rad.sin() + lat_rad.cos() * dec_rad.cos() * ha_rad.cos()).clamp(-1.0, 1.0).asin()
+    (lat_rad.sin() * dec_rad.sin() + lat_rad.cos() * dec_rad.cos() * ha_rad.cos())
+        .clamp(-1.0, 1.0)
+        .asin()
 }
 
 /// Hour angle wrapped to -pi..pi (west +).

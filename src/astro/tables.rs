@@ -10,7 +10,8 @@
 
 use crate::astro::barycentric::{lagrange4, EarthTable};
 use crate::astro::frames::{
-    alt_az_from_hadec, gmst_rad, mat_vec, radec_from_vec, unit_from_radec, EarthOrientation, Mat3, Observer, Vec3,
+    alt_az_from_hadec, gmst_rad, mat_vec, radec_from_vec, unit_from_radec, EarthOrientation, Mat3,
+    Observer, Vec3,
 };
 use crate::astro::sky::{moon_apparent, moon_illuminated_fraction, topocentric, ApparentPlace};
 use crate::astro::time::{jd_tt_from_utc, JdUtc};
@@ -118,14 +119,22 @@ impl SkyTables {
         let r = (h[0] * h[0] + h[1] * h[1] + h[2] * h[2]).sqrt();
         let u = [-h[0] / r, -h[1] / r, -h[2] / r];
         let (ra_rad, dec_rad) = self.apparent_radec(&u, t);
-        ApparentPlace { ra_rad, dec_rad, dist_km: r * AU_M / 1000.0 }
+        ApparentPlace {
+            ra_rad,
+            dec_rad,
+            dist_km: r * AU_M / 1000.0,
+        }
     }
 
     /// Geometric altitude of the Sun's centre at a site, deg.
     pub fn sun_alt_deg(&self, t: f64, obs: &Observer) -> f64 {
         let s = self.sun(t);
-        crate::astro::frames::alt_from_hadec(self.last_rad(t, obs.lon_rad) - s.ra_rad, s.dec_rad, obs.lat_rad)
-            .to_degrees()
+        crate::astro::frames::alt_from_hadec(
+            self.last_rad(t, obs.lon_rad) - s.ra_rad,
+            s.dec_rad,
+            obs.lat_rad,
+        )
+        .to_degrees()
     }
 
     /// The Sun's hour angle at a site, rad -pi..pi.
@@ -154,7 +163,11 @@ impl SkyTables {
             }
         };
         let (ra_rad, dec_rad) = radec_from_vec(&v);
-        ApparentPlace { ra_rad, dec_rad, dist_km: (v[0] * v[0] + v[1] * v[1] + v[2] * v[2]).sqrt() }
+        ApparentPlace {
+            ra_rad,
+            dec_rad,
+            dist_km: (v[0] * v[0] + v[1] * v[1] + v[2] * v[2]).sqrt(),
+        }
     }
 
     /// Topocentric place of the Moon and its (altitude deg, azimuth deg) at a site.
@@ -175,11 +188,20 @@ impl SkyTables {
     pub fn sun_moon(&self, t: f64, obs: &Observer) -> (f64, ApparentPlace, f64, f64) {
         let last = self.last_rad(t, obs.lon_rad);
         let sun = self.sun(t);
-        let sun_alt = crate::astro::frames::alt_from_hadec(last - sun.ra_rad, sun.dec_rad, obs.lat_rad).to_degrees();
+        let sun_alt =
+            crate::astro::frames::alt_from_hadec(last - sun.ra_rad, sun.dec_rad, obs.lat_rad)
+                .to_degrees();
         let geo = self.moon_geocentric(t);
         let topo = topocentric(&geo, obs, last);
-        let moon_alt = crate::astro::frames::alt_from_hadec(last - topo.ra_rad, topo.dec_rad, obs.lat_rad).to_degrees();
-        (sun_alt, topo, moon_alt, moon_illuminated_fraction(&sun, &geo))
+        let moon_alt =
+            crate::astro::frames::alt_from_hadec(last - topo.ra_rad, topo.dec_rad, obs.lat_rad)
+                .to_degrees();
+        (
+            sun_alt,
+            topo,
+            moon_alt,
+            moon_illuminated_fraction(&sun, &geo),
+        )
     }
 }
 
@@ -198,14 +220,27 @@ mod tests {
         for k in 0..60 {
             let t = 2_461_400.0 + k as f64 * 0.6543;
             let direct = sun_moon_at(JdUtc(t), &obs);
-            assert!((tables.sun_alt_deg(t, &obs) - direct.sun_alt_deg).abs() < TOL_DEG, "Sun at {t}");
+            assert!(
+                (tables.sun_alt_deg(t, &obs) - direct.sun_alt_deg).abs() < TOL_DEG,
+                "Sun at {t}"
+            );
             let (_, malt, maz) = tables.moon_topo(t, &obs);
-            assert!((malt - direct.moon_alt_deg).abs() < TOL_DEG, "Moon alt at {t}: {malt} vs {}", direct.moon_alt_deg);
-            assert!(((maz - direct.moon_az_deg + 540.0) % 360.0 - 180.0).abs() * malt.to_radians().cos() < 0.002);
+            assert!(
+                (malt - direct.moon_alt_deg).abs() < TOL_DEG,
+                "Moon alt at {t}: {malt} vs {}",
+                direct.moon_alt_deg
+            );
+            assert!(
+                ((maz - direct.moon_az_deg + 540.0) % 360.0 - 180.0).abs()
+                    * malt.to_radians().cos()
+                    < 0.002
+            );
             assert!((tables.moon_illum(t) - direct.moon_illum).abs() < 5e-4);
             let (alt, _) = target_alt_az_deg(&icrs, JdUtc(t), &obs, &tables.earth);
             let (ra, dec) = tables.apparent_radec(&icrs, t);
-            let alt2 = alt_az_from_hadec(tables.last_rad(t, obs.lon_rad) - ra, dec, obs.lat_rad).0.to_degrees();
+            let alt2 = alt_az_from_hadec(tables.last_rad(t, obs.lon_rad) - ra, dec, obs.lat_rad)
+                .0
+                .to_degrees();
             assert!((alt - alt2).abs() < TOL_DEG, "target at {t}");
         }
     }

@@ -7,7 +7,9 @@ mod schedule;
 mod tonight;
 
 pub use nights::{nights_csv, nights_json, nights_table, NightRecord, NIGHT_FIELDS};
-pub use plan::{csv_header, plan_csv, plan_json, plan_table, push_event_csv_rows, EventRecord, EVENT_FIELDS};
+pub use plan::{
+    csv_header, plan_csv, plan_json, plan_table, push_event_csv_rows, EventRecord, EVENT_FIELDS,
+};
 pub use refine::{
     refine_csv, refine_json, refine_text, rewrite_targets_csv, stale_status, StaleRow,
 };

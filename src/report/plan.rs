@@ -179,8 +179,21 @@ pub fn push_event_csv_rows(events: &[Event], sites: &[Site], targets: &[Target],
         push_csv_text(&t.name, out);
         out.push(',');
         push_csv_text(&sites[e.site_index].name, out);
-        let _ = write!(out, ",{},{},{},{:.3},", e.epoch, e.verdict.label(), e.observable, e.coverage);
-        for jd in [e.mid_utc, e.ingress_utc, e.egress_utc, e.block_start_utc, e.block_end_utc] {
+        let _ = write!(
+            out,
+            ",{},{},{},{:.3},",
+            e.epoch,
+            e.verdict.label(),
+            e.observable,
+            e.coverage
+        );
+        for jd in [
+            e.mid_utc,
+            e.ingress_utc,
+            e.egress_utc,
+            e.block_start_utc,
+            e.block_end_utc,
+        ] {
             ts(jd, out);
             out.push(',');
         }
@@ -204,7 +217,11 @@ pub fn push_event_csv_rows(events: &[Event], sites: &[Site], targets: &[Target],
         let _ = write!(
             out,
             "{:.2},{:.2},{:.2},{:.2},{:.2},",
-            e.alt_ingress_deg, e.alt_mid_deg, e.alt_egress_deg, e.alt_block_start_deg, e.alt_block_end_deg
+            e.alt_ingress_deg,
+            e.alt_mid_deg,
+            e.alt_egress_deg,
+            e.alt_block_start_deg,
+            e.alt_block_end_deg
         );
         for x in [e.airmass_ingress, e.airmass_mid, e.airmass_egress] {
             if x.is_finite() {

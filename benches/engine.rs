@@ -1,0 +1,85 @@
+//! Benchmarks of the planning engine (criterion). Run with `cargo bench --bench engine`.
+//!
+//! - `plan/1000x3x30`: the engine on 1000 synthetic targets, 3 sites, 30 nights.
+//! - `subset/engine` vs `subset/brute_force`: the same job (20 targets, 1 site, 30 nights) through the engine
+//!   and through the brute-force 1-minute sampler `dipwatch::plan::brute_force_site`; the ratio of the two
+//!   medians is the speed-up the README reports.
+
+use chrono::NaiveDate;
+use criterion::{criterion_group, criterion_main, Criterion};
+use dipwatch::inputs::sites::parse_sites;
+use dipwatch::inputs::targets::{parse_targets, ColumnMap};
+use dipwatch::plan::{brute_force_site, plan, PlanOptions};
+use std::hint::black_box;
+
+const SITES: &str = r#"
+[[site]]
+name = "North Bench"
+latitude_deg = 40.1
+longitude_deg = -3.5
+elevation_m = 800
+timezone = "Europe/Madrid"
+min_alt_deg = 30
+
+[[site]]
+name = "West Bench"
+latitude_deg = 31.9
+longitude_deg = -111.6
+elevation_m = 2000
+timezone = "America/Phoenix"
+max_airmass = 2.0
+darkness = "astronomical"
+
+[[site]]
+name = "South Bench"
+latitude_deg = -31.3
+longitude_deg = 149.0
+elevation_m = 1100
+timezone = "Australia/Sydney"
+min_alt_deg = 30
+"#;
+
+fn options(nights: i64) -> PlanOptions {
+    let first = NaiveDate::from_ymd_opt(2027, 3, 1).expect("date");
+    PlanOptions {
+        first_night: first,
+        last_night: first + chrono::Duration::days(nights - 1),
+        sigma_k: 1.0,
+        baseline_before_min: 30.0,
+        baseline_after_min: 30.0,
+        min_coverage: 0.0,
+        include_unobservable: false,
+    }
+}
+
+fn engine(c: &mut Criterion) {
+    let sites = parse_sites("bench", SITES).expect("sites");
+    let targets = parse_targets(
+        "synthetic",
+        &dipwatch::synthetic::catalogue_csv(1000, 2027),
+        &ColumnMap::default(),
+    )
+    .expect("targets");
+    let opts = options(30);
+    let mut g = c.benchmark_group("plan");
+    g.sample_size(10);
+    g.bench_function("1000x3x30", |b| {
+        b.iter(|| black_box(plan(&sites, &targets, &opts)))
+    });
+    g.finish();
+
+    let subset = &targets[..20];
+    let one_site = &sites[..1];
+    let mut g = c.benchmark_group("subset");
+    g.sample_size(10);
+    g.bench_function("engine", |b| {
+        b.iter(|| black_box(plan(one_site, subset, &opts)))
+    });
+    g.bench_function("brute_force", |b| {
+        b.iter(|| black_box(brute_force_site(&one_site[0], subset, &opts)))
+    });
+    g.finish();
+}
+
+criterion_group!(benches, engine);
+criterion_main!(benches);

@@ -1,0 +1,55 @@
+#!/usr/bin/env bash
+# Whole-process timings for the README's Performance section. Rerun from the repo root:
+#   bash tools/bench_whole_process.sh
+# Needs /usr/bin/time (GNU time). Prints the median of 5 runs and the peak resident memory of each job.
+set -euo pipefail
+cd "$(dirname "$0")/.."
+cargo build --quiet --release --example synthetic_catalogue
+cargo build --quiet --release
+work=$(mktemp -d)
+trap 'rm -rf "$work"' EXIT
+./target/release/examples/synthetic_catalogue 10000 2027 > "$work/cat10k.csv"
+./target/release/examples/synthetic_catalogue 100 2027 > "$work/cat100.csv"
+cat > "$work/sites.toml" <<'TOML'
+[[site]]
+name = "North Bench"
+latitude_deg = 40.1
+longitude_deg = -3.5
+elevation_m = 800
+timezone = "Europe/Madrid"
+min_alt_deg = 30
+
+[[site]]
+name = "West Bench"
+latitude_deg = 31.9
+longitude_deg = -111.6
+elevation_m = 2000
+timezone = "America/Phoenix"
+max_airmass = 2.0
+darkness = "astronomical"
+
+[[site]]
+name = "South Bench"
+latitude_deg = -31.3
+longitude_deg = 149.0
+elevation_m = 1100
+timezone = "Australia/Sydney"
+min_alt_deg = 30
+TOML
+run5() { # label, command...
+  local label=$1; shift
+  local times=() mem=0
+  for _ in 1 2 3 4 5; do
+    /usr/bin/time -f "%e %M" -o "$work/t" "$@" > "$work/out"
+    read -r t m < "$work/t"
+    times+=("$t"); (( m > mem )) && mem=$m
+  done
+  local median
+  median=$(printf '%s\n' "${times[@]}" | sort -n | sed -n 3p)
+  printf '%-60s median %6s s of (%s), peak %d MiB, output %s lines\n' "$label" "$median" "${times[*]}" $((mem / 1024)) "$(wc -l < "$work/out")"
+}
+run5 "plan 10000 targets x 3 sites x 365 nights -> CSV" \
+  ./target/release/dipwatch plan --sites "$work/sites.toml" --targets "$work/cat10k.csv" --from 2027-01-01 --days 365 --format csv
+run5 "tonight, 1 site, 100 targets" \
+  ./target/release/dipwatch tonight --sites "$work/sites.toml" --targets "$work/cat100.csv" --site "North Bench" --date 2027-03-10
+echo "machine: $(nproc) cores, $(grep -m1 'model name' /proc/cpuinfo | cut -d: -f2 | sed 's/^ //'), $(free -g | awk '/Mem:/{print $2}') GiB"
