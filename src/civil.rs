@@ -93,12 +93,15 @@ pub fn night_of(jd_utc: f64, tz: Tz) -> NaiveDate {
     (local.naive_local() - Duration::hours(12)).date()
 }
 
-/// Local wall time of an instant as `HH:MM` in `tz`.
+/// Local wall time of an instant as `HH:MM` in `tz`; inside the hour that a clock change repeats, the zone
+/// abbreviation is added (`02:30 CEST`, then `02:30 CET`) so the two are never confused.
 pub fn local_hhmm(jd_utc: f64, tz: Tz) -> String {
-    datetime_from_jd(jd_utc)
-        .with_timezone(&tz)
-        .format("%H:%M")
-        .to_string()
+    let local = datetime_from_jd(jd_utc).with_timezone(&tz);
+    let text = local.format("%H:%M").to_string();
+    match tz.from_local_datetime(&local.naive_local()) {
+        chrono::LocalResult::Ambiguous(..) => format!("{text} {}", local.format("%Z")),
+        _ => text,
+    }
 }
 
 /// The zone abbreviation in force at an instant (e.g. `CET`, `-03`).

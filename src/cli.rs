@@ -86,16 +86,36 @@ enum Format {
 #[derive(Args, Debug)]
 struct BlockArgs {
     /// Smallest in-transit coverage (0-1) to list an event
-    #[arg(long, value_name = "F", default_value_t = 0.0)]
+    #[arg(
+        long,
+        value_name = "F",
+        default_value_t = 0.0,
+        allow_negative_numbers = true
+    )]
     min_coverage: f64,
     /// Timing margin around ingress and egress, in units of the epoch's sigma
-    #[arg(long, value_name = "K", default_value_t = 1.0)]
+    #[arg(
+        long,
+        value_name = "K",
+        default_value_t = 1.0,
+        allow_negative_numbers = true
+    )]
     sigma: f64,
     /// Out-of-transit baseline wanted before ingress, minutes
-    #[arg(long, value_name = "MIN", default_value_t = 30.0)]
+    #[arg(
+        long,
+        value_name = "MIN",
+        default_value_t = 30.0,
+        allow_negative_numbers = true
+    )]
     baseline_before: f64,
     /// Out-of-transit baseline wanted after egress, minutes
-    #[arg(long, value_name = "MIN", default_value_t = 30.0)]
+    #[arg(
+        long,
+        value_name = "MIN",
+        default_value_t = 30.0,
+        allow_negative_numbers = true
+    )]
     baseline_after: f64,
 }
 
@@ -761,7 +781,12 @@ struct RefineArgs {
     #[arg(long, value_name = "DATE")]
     stale_at: Option<NaiveDate>,
     /// Flag targets whose timing 1-sigma exceeds this fraction of T14 at that date
-    #[arg(long, value_name = "F", default_value_t = 0.1)]
+    #[arg(
+        long,
+        value_name = "F",
+        default_value_t = 0.1,
+        allow_negative_numbers = true
+    )]
     stale_fraction: f64,
     /// Also draw the O-C chart (SVG); with several refined targets, one file per target (FILE-<target>.svg)
     #[arg(long, value_name = "FILE.svg")]
@@ -923,22 +948,52 @@ fn same_file(a: &Path, b: &Path) -> bool {
 #[derive(Args, Debug)]
 struct ChoiceArgs {
     /// Minimum gap between two blocks on one telescope (slew, focus, calibrations), minutes
-    #[arg(long, value_name = "MIN", default_value_t = 10.0)]
+    #[arg(
+        long,
+        value_name = "MIN",
+        default_value_t = 10.0,
+        allow_negative_numbers = true
+    )]
     changeover: f64,
     /// Score weight of the in-transit coverage
-    #[arg(long, value_name = "W", default_value_t = 1.0)]
+    #[arg(
+        long,
+        value_name = "W",
+        default_value_t = 1.0,
+        allow_negative_numbers = true
+    )]
     weight_coverage: f64,
     /// Score weight of the verdict (whole 1, short baseline 0.8, ingress/egress only 0.5, middle only 0.2)
-    #[arg(long, value_name = "W", default_value_t = 1.0)]
+    #[arg(
+        long,
+        value_name = "W",
+        default_value_t = 1.0,
+        allow_negative_numbers = true
+    )]
     weight_verdict: f64,
     /// Score weight of 1/airmass at mid-transit
-    #[arg(long, value_name = "W", default_value_t = 0.5)]
+    #[arg(
+        long,
+        value_name = "W",
+        default_value_t = 0.5,
+        allow_negative_numbers = true
+    )]
     weight_airmass: f64,
     /// Score weight of the Moon separation (up to 90 deg)
-    #[arg(long, value_name = "W", default_value_t = 0.25)]
+    #[arg(
+        long,
+        value_name = "W",
+        default_value_t = 0.25,
+        allow_negative_numbers = true
+    )]
     weight_moon: f64,
     /// Score weight of the timing sigma (up to 30 min): uncertain ephemerides gain most
-    #[arg(long, value_name = "W", default_value_t = 0.25)]
+    #[arg(
+        long,
+        value_name = "W",
+        default_value_t = 0.25,
+        allow_negative_numbers = true
+    )]
     weight_sigma: f64,
     /// Let several telescopes observe the same transit
     #[arg(long)]

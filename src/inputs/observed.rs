@@ -56,7 +56,10 @@ pub fn parse_observed(file: &str, text: &str) -> Result<Vec<Observation>, InputE
             ))
         }
     };
-    let header_line = reader.position().line().max(1) as usize;
+    let header_line = text
+        .lines()
+        .position(|l| !l.trim().is_empty() && !l.trim_start().starts_with('#'))
+        .map_or(1, |i| i + 1);
     let index: HashMap<&str, usize> = ["target", "tc", "tc_sigma_days", "time_system", "source"]
         .into_iter()
         .filter_map(|name| headers.iter().position(|h| h == name).map(|i| (name, i)))

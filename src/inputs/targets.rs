@@ -201,7 +201,10 @@ pub fn parse_targets(file: &str, text: &str, map: &ColumnMap) -> Result<Vec<Targ
             ))
         }
     };
-    let header_line = reader.position().line().max(1) as usize;
+    let header_line = text
+        .lines()
+        .position(|l| !l.trim().is_empty() && !l.trim_start().starts_with('#'))
+        .map_or(1, |i| i + 1);
     let lowered: Vec<String> = headers.iter().map(|h| h.trim().to_lowercase()).collect();
     let mut index = HashMap::new();
     let mut problems = Problems::default();

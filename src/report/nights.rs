@@ -104,7 +104,12 @@ pub fn nights_table(site: &Site, nights: &[NightAlmanac], utc: bool) -> String {
     let zones: Vec<String> = {
         let mut z: Vec<String> = nights
             .iter()
-            .map(|n| zone_label(n.window.start, site, utc))
+            .flat_map(|n| {
+                [
+                    zone_label(n.window.start, site, utc),
+                    zone_label(n.window.end, site, utc),
+                ]
+            })
             .collect();
         z.dedup();
         z

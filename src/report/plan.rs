@@ -352,7 +352,12 @@ pub fn plan_table(
             let mut z: Vec<String> = sp
                 .nights
                 .iter()
-                .map(|n| zone_label(n.window.start, site, utc))
+                .flat_map(|n| {
+                    [
+                        zone_label(n.window.start, site, utc),
+                        zone_label(n.window.end, site, utc),
+                    ]
+                })
                 .collect();
             z.dedup();
             z

@@ -1,0 +1,85 @@
+//! Invariants over random targets (proptest): ingress < mid < egress inside the block; coverage in [0, 1];
+//! every event's night inside the requested range and its mid-transit inside that night's window; the usable
+//! run inside the block; and the same inputs give byte-identical CSV.
+
+use dipwatch::astro::barycentric::TimeSystem;
+use dipwatch::ephemeris::Ephemeris;
+use dipwatch::inputs::sites::parse_sites;
+use dipwatch::inputs::targets::Target;
+use dipwatch::plan::{plan, PlanOptions};
+use proptest::prelude::*;
+
+fn sites() -> Vec<dipwatch::inputs::sites::Site> {
+    let text =
+        std::fs::read_to_string(format!("{}/sites.example.toml", env!("CARGO_MANIFEST_DIR")))
+            .unwrap();
+    parse_sites("sites.example.toml", &text).unwrap()
+}
+
+prop_compose! {
+    fn any_target()(
+        ra in 0.0..360.0_f64,
+        sin_dec in -1.0..1.0_f64,
+        period in 0.3..40.0_f64,
+        t14_frac in 0.01..0.3_f64,
+        phase in 0.0..1.0_f64,
+        t0_sigma in 0.0..0.01_f64,
+        p_sigma in 0.0..0.001_f64,
+        system in 0usize..3,
+    ) -> Target {
+        Target {
+            name: "Random b".into(),
+            ra_deg: ra,
+            dec_deg: sin_dec.asin().to_degrees(),
+            ephemeris: Ephemeris {
+                t0: 2_461_000.0 + phase * period,
+                t0_sigma_days: t0_sigma,
+                period_days: period,
+                period_sigma_days: p_sigma,
+                cov_t0_period_days2: 0.0,
+                system: [TimeSystem::BjdTdb, TimeSystem::HjdUtc, TimeSystem::JdUtc][system],
+            },
+            t14_hours: (period * 24.0 * t14_frac).min(12.0),
+            depth_ppt: Some(5.0),
+            mag: None,
+            priority: 1.0,
+            notes: String::new(),
+        }
+    }
+}
+
+proptest! {
+    #![proptest_config(ProptestConfig { cases: 64, ..ProptestConfig::default() })]
+    #[test]
+    fn plan_invariants(targets in prop::collection::vec(any_target(), 1..4), start_day in 0i64..365, all in any::<bool>()) {
+        let sites = sites();
+        let first = chrono::NaiveDate::from_ymd_opt(2027, 1, 1).unwrap() + chrono::Duration::days(start_day);
+        let opts = PlanOptions {
+            first_night: first,
+            last_night: first + chrono::Duration::days(9),
+            sigma_k: 1.0,
+            baseline_before_min: 30.0,
+            baseline_after_min: 30.0,
+            min_coverage: 0.0,
+            include_unobservable: all,
+        };
+        let p = plan(&sites, &targets, &opts);
+        for sp in &p.sites {
+            for e in &sp.events {
+                prop_assert!(e.block_start_utc < e.ingress_utc && e.ingress_utc < e.mid_utc);
+                prop_assert!(e.mid_utc < e.egress_utc && e.egress_utc < e.block_end_utc);
+                prop_assert!((0.0..=1.0).contains(&e.coverage));
+                prop_assert!(e.night_of >= opts.first_night && e.night_of <= opts.last_night);
+                let night = sp.nights.iter().find(|n| n.night_of == e.night_of).unwrap();
+                prop_assert!(e.mid_utc >= night.window.start && e.mid_utc < night.window.end);
+                if let Some(u) = e.usable {
+                    prop_assert!(u.start >= e.block_start_utc - 1e-9 && u.end <= e.block_end_utc + 1e-9);
+                }
+                prop_assert!(!e.observable || e.coverage > 0.0);
+            }
+        }
+        let a = dipwatch::report::plan_csv(&p, &sites, &targets);
+        let b = dipwatch::report::plan_csv(&plan(&sites, &targets, &opts), &sites, &targets);
+        prop_assert_eq!(a, b);
+    }
+}
