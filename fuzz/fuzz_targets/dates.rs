@@ -1,0 +1,22 @@
+//! Fuzz the date path: text -> a "night of" date (as the command line parses it) -> local noon in several
+//! zones -> back to the "night of" date, which must round-trip for every date dipwatch accepts (1972-2200).
+#![no_main]
+use libfuzzer_sys::fuzz_target;
+
+fuzz_target!(|data: &[u8]| {
+    let text = String::from_utf8_lossy(data);
+    let Ok(date) = text.trim().parse::<chrono::NaiveDate>() else { return };
+    let lo = chrono::NaiveDate::from_ymd_opt(1972, 1, 1).unwrap();
+    let hi = chrono::NaiveDate::from_ymd_opt(2200, 1, 1).unwrap();
+    if date < lo || date > hi {
+        return;
+    }
+    for zone in ["Europe/London", "America/Santiago", "Pacific/Chatham", "Asia/Kathmandu", "Etc/GMT+12"] {
+        let tz: chrono_tz::Tz = zone.parse().unwrap();
+        let noon = dipwatch::civil::local_noon_jd(date, tz);
+        assert_eq!(dipwatch::civil::night_of(noon + 0.25, tz), date, "{zone} {date}");
+        let mut s = String::new();
+        dipwatch::civil::push_rfc3339_utc(noon, &mut s);
+        assert_eq!(s, dipwatch::civil::rfc3339_utc(noon));
+    }
+});
