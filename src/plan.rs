@@ -656,6 +656,8 @@ pub struct Planner<'a> {
     targets: &'a [Target],
     opts: &'a PlanOptions,
     tables: Option<SkyTables>,
+    /// Per target: (epoch, geocentric UTC JD of mid-transit) over the whole range, computed once for all sites.
+    mids: Vec<Vec<(i64, f64)>>,
 }
 
 impl<'a> Planner<'a> {
@@ -671,11 +673,34 @@ impl<'a> Planner<'a> {
                 Some(acc.map_or((a, b), |(x, y)| (x.min(a), y.max(b))))
             });
         let tables = span.map(|(a, b)| SkyTables::new(a - 1.0, b + 1.0));
+        let mids = match (&tables, span) {
+            (Some(tables), Some((a, b))) => targets
+                .par_iter()
+                .map(|t| {
+                    let icrs = unit_from_radec(t.ra_deg.to_radians(), t.dec_deg.to_radians());
+                    let eph = &t.ephemeris;
+                    // Light time and TT-UTC are < 0.01 d: widen the range by 0.02 d in the target's system.
+                    eph.epochs_between(a - 0.02, b + 0.02)
+                        .map(|n| {
+                            (
+                                n,
+                                tables
+                                    .earth
+                                    .utc_from_system(eph.system, eph.mid_time(n), &icrs, None)
+                                    .0,
+                            )
+                        })
+                        .collect()
+                })
+                .collect(),
+            _ => Vec::new(),
+        };
         Planner {
             sites,
             targets,
             opts,
             tables,
+            mids,
         }
     }
 
@@ -709,7 +734,17 @@ impl<'a> Planner<'a> {
             .par_iter()
             .enumerate()
             .map(|(ti, target)| {
-                events_of_target(ti, target, si, site, &nights, &range, self.opts, tables)
+                events_of_target(
+                    ti,
+                    target,
+                    &self.mids[ti],
+                    si,
+                    site,
+                    &nights,
+                    &range,
+                    self.opts,
+                    tables,
+                )
             })
             .collect();
         let mut events = Vec::new();
@@ -743,6 +778,7 @@ impl<'a> Planner<'a> {
 fn events_of_target(
     ti: usize,
     target: &Target,
+    mids: &[(i64, f64)],
     si: usize,
     site: &Site,
     nights: &[Night],
@@ -755,12 +791,16 @@ fn events_of_target(
     let half = target.t14_hours / 48.0;
     let mut events = Vec::new();
     let mut lost_sigma = None;
-    // Light time and TT-UTC are < 0.01 d: widen the range by 0.02 d in the target's time system.
-    for n in eph.epochs_between(range.start - 0.02, range.end + 0.02) {
-        let mid = tables
-            .earth
-            .utc_from_system(eph.system, eph.mid_time(n), &icrs, Some(&site.observer))
-            .0;
+    let first = mids.partition_point(|&(_, t)| t < range.start - 0.001);
+    for &(n, geo) in mids[first..]
+        .iter()
+        .take_while(|&&(_, t)| t < range.end + 0.001)
+    {
+        let mid = if eph.system == crate::astro::barycentric::TimeSystem::JdUtc {
+            geo
+        } else {
+            geo - crate::astro::barycentric::observer_delay_days(JdUtc(geo), &icrs, &site.observer)
+        };
         // The night whose noon-to-noon window holds the mid-transit.
         let k = nights.partition_point(|nt| nt.window.start <= mid);
         if k == 0 || mid >= nights[k - 1].window.end {

@@ -234,6 +234,13 @@ pub fn lagrange4(x: f64, len: usize) -> Option<(usize, [f64; 4], [f64; 4])> {
     Some((i as usize, w, dw))
 }
 
+/// Light-time of the observer's geocentric position along `target`, days (at most 21 ms): the amount by which
+/// a site sees a transit earlier than the geocentre.
+pub fn observer_delay_days(jd_utc: JdUtc, target: &Vec3, observer: &Observer) -> f64 {
+    let o = observer_icrs_au(jd_utc, Some(observer));
+    (o[0] * target[0] + o[1] * target[1] + o[2] * target[2]) * AU_LIGHT_TIME_S / SECONDS_PER_DAY
+}
+
 /// The observer's geocentric position in the ICRS frame, au (zero for `None`).
 fn observer_icrs_au(jd_utc: JdUtc, observer: Option<&Observer>) -> Vec3 {
     let Some(obs) = observer else {

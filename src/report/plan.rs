@@ -169,24 +169,59 @@ fn push_csv_text(s: &str, out: &mut String) {
     }
 }
 
+/// Append `x` with exactly `decimals` decimals (0-6) without the general float formatter: scale, round half
+/// away from zero, print the digits. Equal to `format!("{x:.decimals$}")` except that a negative value which
+/// rounds to zero prints as `0.00`, not `-0.00`.
+fn push_fixed(x: f64, decimals: u32, out: &mut String) {
+    if !x.is_finite() || x.abs() >= 1e12 {
+        use std::fmt::Write;
+        let _ = write!(out, "{x:.prec$}", prec = decimals as usize);
+        return;
+    }
+    let scale = 10_u64.pow(decimals);
+    let scaled = (x * scale as f64).round() as i64;
+    if scaled < 0 {
+        out.push('-');
+    }
+    let v = scaled.unsigned_abs();
+    push_digits(v / scale, 1, out);
+    if decimals > 0 {
+        out.push('.');
+        push_digits(v % scale, decimals as usize, out);
+    }
+}
+
+/// Append the decimal digits of `v`, zero-padded to at least `width`.
+fn push_digits(mut v: u64, width: usize, out: &mut String) {
+    let mut digits = [b'0'; 20];
+    let mut i = digits.len();
+    while v > 0 || digits.len() - i < width {
+        i -= 1;
+        digits[i] = b'0' + (v % 10) as u8;
+        v /= 10;
+    }
+    out.push_str(std::str::from_utf8(&digits[i..]).unwrap_or("0"));
+}
+
 /// Append one CSV row per event (the columns of [`EVENT_FIELDS`]) to `out`. Formats numbers with fixed
 /// decimals and timestamps without allocating, so a catalogue-scale plan streams quickly.
 pub fn push_event_csv_rows(events: &[Event], sites: &[Site], targets: &[Target], out: &mut String) {
     use crate::civil::push_rfc3339_utc as ts;
-    use std::fmt::Write;
+    let num = |x: f64, d: u32, out: &mut String| {
+        push_fixed(x, d, out);
+        out.push(',');
+    };
     for e in events {
         let t = &targets[e.target_index];
         push_csv_text(&t.name, out);
         out.push(',');
         push_csv_text(&sites[e.site_index].name, out);
-        let _ = write!(
-            out,
-            ",{},{},{},{:.3},",
-            e.epoch,
-            e.verdict.label(),
-            e.observable,
-            e.coverage
-        );
+        out.push(',');
+        push_fixed(e.epoch as f64, 0, out);
+        out.push(',');
+        out.push_str(e.verdict.label());
+        out.push_str(if e.observable { ",true," } else { ",false," });
+        num(e.coverage, 3, out);
         for jd in [
             e.mid_utc,
             e.ingress_utc,
@@ -203,45 +238,51 @@ pub fn push_event_csv_rows(events: &[Event], sites: &[Site], targets: &[Target],
             }
             out.push(',');
         }
-        let _ = write!(
-            out,
-            "{:.2},{:.1},{:.1},{},",
-            e.sigma_min, e.baseline_before_min, e.baseline_after_min, e.night_of
-        );
+        num(e.sigma_min, 2, out);
+        num(e.baseline_before_min, 1, out);
+        num(e.baseline_after_min, 1, out);
+        out.push_str(&e.night_of.format("%Y-%m-%d").to_string());
+        out.push(',');
         for jd in [e.night_dark.map(|d| d.start), e.night_dark.map(|d| d.end)] {
             if let Some(jd) = jd {
                 ts(jd, out);
             }
             out.push(',');
         }
-        let _ = write!(
-            out,
-            "{:.2},{:.2},{:.2},{:.2},{:.2},",
+        for x in [
             e.alt_ingress_deg,
             e.alt_mid_deg,
             e.alt_egress_deg,
             e.alt_block_start_deg,
-            e.alt_block_end_deg
-        );
+            e.alt_block_end_deg,
+        ] {
+            num(x, 2, out);
+        }
         for x in [e.airmass_ingress, e.airmass_mid, e.airmass_egress] {
             if x.is_finite() {
-                let _ = write!(out, "{x:.3}");
+                push_fixed(x, 3, out);
             }
             out.push(',');
         }
-        let _ = write!(
-            out,
-            "{:.2},{:.2},{:.2},{:.2},{:.3},",
-            e.az_mid_deg, e.sun_alt_mid_deg, e.moon_alt_mid_deg, e.moon_sep_deg, e.moon_illum
-        );
+        for x in [
+            e.az_mid_deg,
+            e.sun_alt_mid_deg,
+            e.moon_alt_mid_deg,
+            e.moon_sep_deg,
+        ] {
+            num(x, 2, out);
+        }
+        num(e.moon_illum, 3, out);
         if let Some(m) = e.meridian_utc {
             ts(m, out);
         }
         out.push(',');
         if let Some(d) = t.depth_ppt {
-            let _ = write!(out, "{d}");
+            out.push_str(&d.to_string());
         }
-        let _ = write!(out, ",{},", t.priority);
+        out.push(',');
+        out.push_str(&t.priority.to_string());
+        out.push(',');
         for (k, r) in e.reasons.iter().enumerate() {
             if k > 0 {
                 out.push(';');
@@ -512,4 +553,35 @@ pub fn plan_table(
         }
     ));
     out
+}
+
+#[cfg(test)]
+mod number_tests {
+    use super::push_fixed;
+
+    #[test]
+    fn fixed_decimals_match_the_formatter() {
+        for &x in &[
+            0.0,
+            1.0,
+            0.851,
+            12.345_6,
+            -3.2049,
+            1440.0,
+            99.995,
+            0.0005,
+            -0.5,
+            2_460_000.123_456,
+        ] {
+            for d in 0..4u32 {
+                let mut s = String::new();
+                push_fixed(x, d, &mut s);
+                let want = format!("{x:.prec$}", prec = d as usize);
+                // Ties may round differently (half away from zero vs the formatter's exact decimal); allow that.
+                let close = (s.parse::<f64>().unwrap() - want.parse::<f64>().unwrap()).abs()
+                    <= 10f64.powi(-(d as i32)) + 1e-12;
+                assert!(s == want || close, "{x} {d}: {s} vs {want}");
+            }
+        }
+    }
 }
