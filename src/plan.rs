@@ -934,3 +934,46 @@ pub fn brute_force_site(
     }
     out
 }
+
+/// Test support: a plain event to modify in unit tests of the output modules.
+#[cfg(test)]
+pub(crate) mod tests_support {
+    use super::*;
+
+    pub(crate) fn sample_event() -> Event {
+        Event {
+            target_index: 0,
+            site_index: 0,
+            epoch: 1,
+            verdict: Verdict::Whole,
+            observable: true,
+            coverage: 1.0,
+            mid_utc: 2_461_000.6,
+            ingress_utc: 2_461_000.55,
+            egress_utc: 2_461_000.65,
+            block_start_utc: 2_461_000.5,
+            block_end_utc: 2_461_000.7,
+            usable: None,
+            sigma_min: 1.0,
+            baseline_before_min: 30.0,
+            baseline_after_min: 30.0,
+            night_of: NaiveDate::from_ymd_opt(2025, 1, 1).expect("date"),
+            night_dark: None,
+            alt_ingress_deg: 40.0,
+            alt_mid_deg: 45.0,
+            alt_egress_deg: 50.0,
+            alt_block_start_deg: 38.0,
+            alt_block_end_deg: 52.0,
+            airmass_ingress: 1.5,
+            airmass_mid: 1.4,
+            airmass_egress: 1.3,
+            az_mid_deg: 180.0,
+            sun_alt_mid_deg: -30.0,
+            moon_alt_mid_deg: -10.0,
+            moon_sep_deg: 90.0,
+            moon_illum: 0.5,
+            meridian_utc: None,
+            reasons: Vec::new(),
+        }
+    }
+}

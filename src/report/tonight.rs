@@ -291,3 +291,23 @@ pub fn tonight_json(
     s.push('\n');
     s
 }
+
+#[cfg(test)]
+mod tests {
+    use super::countdown;
+
+    #[test]
+    fn countdown_reads_naturally() {
+        let mut e = crate::plan::tests_support::sample_event();
+        e.block_start_utc = 2_461_000.5;
+        e.block_end_utc = 2_461_000.7;
+        let min = 1.0 / 1440.0;
+        assert_eq!(
+            countdown(&e, 2_461_000.5 - 192.0 * min),
+            "starts in 3 h 12 min"
+        );
+        assert_eq!(countdown(&e, 2_461_000.5 - 25.0 * min), "starts in 25 min");
+        assert_eq!(countdown(&e, 2_461_000.6), "in progress, 2 h 24 min left");
+        assert_eq!(countdown(&e, 2_461_000.8), "over");
+    }
+}
