@@ -12,32 +12,7 @@ use dipwatch::inputs::targets::{parse_targets, ColumnMap};
 use dipwatch::plan::{brute_force_site, plan, PlanOptions};
 use std::hint::black_box;
 
-const SITES: &str = r#"
-[[site]]
-name = "North Bench"
-latitude_deg = 40.1
-longitude_deg = -3.5
-elevation_m = 800
-timezone = "Europe/Madrid"
-min_alt_deg = 30
-
-[[site]]
-name = "West Bench"
-latitude_deg = 31.9
-longitude_deg = -111.6
-elevation_m = 2000
-timezone = "America/Phoenix"
-max_airmass = 2.0
-darkness = "astronomical"
-
-[[site]]
-name = "South Bench"
-latitude_deg = -31.3
-longitude_deg = 149.0
-elevation_m = 1100
-timezone = "Australia/Sydney"
-min_alt_deg = 30
-"#;
+const SITES: &str = include_str!("sites.bench.toml");
 
 fn options(nights: i64) -> PlanOptions {
     let first = NaiveDate::from_ymd_opt(2027, 3, 1).expect("date");

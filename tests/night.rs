@@ -1,19 +1,12 @@
 //! `nights` against ERFA Sun-crossing fixtures, and `tonight` against `plan` for the same event.
 
+mod common;
+use common::fixture;
+
 use chrono::NaiveDate;
 use dipwatch::almanac::night_almanac;
 use dipwatch::inputs::sites::parse_sites;
 use std::process::Command;
-
-fn fixture(name: &str) -> Vec<Vec<String>> {
-    let path = format!("{}/tests/data/reference/{name}", env!("CARGO_MANIFEST_DIR"));
-    let text = std::fs::read_to_string(&path).unwrap_or_else(|e| panic!("{path}: {e}"));
-    text.lines()
-        .filter(|l| !l.starts_with('#'))
-        .skip(1)
-        .map(|l| l.split(',').map(str::to_string).collect())
-        .collect()
-}
 
 #[test]
 fn nights_match_erfa_sun_crossings_north_south_arctic() {

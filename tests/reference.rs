@@ -4,6 +4,9 @@
 //! pyerfa (ERFA 2.0.1, derived from IAU SOFA) through tools/make_reference_fixtures.py; see that script for
 //! how to rebuild them. Failures print want/got and the case.
 
+mod common;
+use common::fixture;
+
 use dipwatch::astro::atmosphere::{airmass_kasten_young, refraction_deg};
 use dipwatch::astro::barycentric::{EarthTable, TimeSystem};
 use dipwatch::astro::crossings::{sun_crossings, SunCrossing};
@@ -17,17 +20,6 @@ use dipwatch::astro::sky::{
 use dipwatch::astro::time::{
     calendar_from_jd, jd_from_calendar, jd_tt_from_utc, tai_minus_utc_s, tdb_minus_tt_s, JdUtc,
 };
-
-/// Rows of a fixture CSV (comment lines starting with '#' and the header skipped), as strings.
-fn fixture(name: &str) -> Vec<Vec<String>> {
-    let path = format!("{}/tests/data/reference/{name}", env!("CARGO_MANIFEST_DIR"));
-    let text = std::fs::read_to_string(&path).unwrap_or_else(|e| panic!("{path}: {e}"));
-    text.lines()
-        .filter(|l| !l.starts_with('#'))
-        .skip(1)
-        .map(|l| l.split(',').map(str::to_string).collect())
-        .collect()
-}
 
 fn num(s: &str) -> f64 {
     s.parse().unwrap_or_else(|_| panic!("not a number: {s:?}"))

@@ -1,17 +1,10 @@
 //! Ephemeris refinement against numpy's weighted polynomial fit, a hand-solved example, and the command.
 
+mod common;
+use common::fixture;
+
 use dipwatch::refine::{fit_linear_ephemeris, FitError, TimingPoint};
 use std::process::Command;
-
-fn fixture(name: &str) -> Vec<Vec<String>> {
-    let path = format!("{}/tests/data/reference/{name}", env!("CARGO_MANIFEST_DIR"));
-    let text = std::fs::read_to_string(&path).unwrap_or_else(|e| panic!("{path}: {e}"));
-    text.lines()
-        .filter(|l| !l.starts_with('#'))
-        .skip(1)
-        .map(|l| l.split(',').map(str::to_string).collect())
-        .collect()
-}
 
 fn pt(epoch: i64, t: f64, s: f64) -> TimingPoint {
     TimingPoint {

@@ -10,32 +10,7 @@ work=$(mktemp -d)
 trap 'rm -rf "$work"' EXIT
 ./target/release/examples/synthetic_catalogue 10000 2027 > "$work/cat10k.csv"
 ./target/release/examples/synthetic_catalogue 100 2027 > "$work/cat100.csv"
-cat > "$work/sites.toml" <<'TOML'
-[[site]]
-name = "North Bench"
-latitude_deg = 40.1
-longitude_deg = -3.5
-elevation_m = 800
-timezone = "Europe/Madrid"
-min_alt_deg = 30
-
-[[site]]
-name = "West Bench"
-latitude_deg = 31.9
-longitude_deg = -111.6
-elevation_m = 2000
-timezone = "America/Phoenix"
-max_airmass = 2.0
-darkness = "astronomical"
-
-[[site]]
-name = "South Bench"
-latitude_deg = -31.3
-longitude_deg = 149.0
-elevation_m = 1100
-timezone = "Australia/Sydney"
-min_alt_deg = 30
-TOML
+cp benches/sites.bench.toml "$work/sites.toml"
 run5() { # label, command...
   local label=$1; shift
   local times=() mem=0

@@ -127,3 +127,52 @@ pub(crate) fn parse_finite(text: &str, expected: &str) -> Result<f64, String> {
         Err(_) => Err(format!("found {t:?}, expected {expected}")),
     }
 }
+
+/// A CSV input opened for reading: the reader positioned after the header, the header names trimmed and
+/// lower-cased, and the header's line number.
+pub(crate) struct CsvInput<'t> {
+    pub(crate) reader: csv::Reader<&'t [u8]>,
+    pub(crate) headers: Vec<String>,
+    pub(crate) header_line: usize,
+}
+
+/// Open CSV text the way every dipwatch CSV input is read: a UTF-8 byte-order mark dropped, `#` comment lines,
+/// the delimiter detected from the header (comma, semicolon or tab), rows of any length. An empty file is an
+/// error saying `empty_expected`.
+pub(crate) fn open_csv<'t>(
+    file: &str,
+    text: &'t str,
+    empty_expected: &str,
+) -> Result<CsvInput<'t>, InputError> {
+    let text = text.strip_prefix('\u{feff}').unwrap_or(text);
+    let is_blank = |l: &str| l.trim().is_empty() || l.trim_start().starts_with('#');
+    let Some(header_index) = text.lines().position(|l| !is_blank(l)) else {
+        return Err(InputError::single(
+            file,
+            None,
+            None,
+            format!("the file is empty; expected {empty_expected}"),
+        ));
+    };
+    let mut reader = csv::ReaderBuilder::new()
+        .delimiter(targets::detect_delimiter(text))
+        .comment(Some(b'#'))
+        .flexible(true)
+        .from_reader(text.as_bytes());
+    let headers = match reader.headers() {
+        Ok(h) => h.iter().map(|x| x.trim().to_lowercase()).collect(),
+        Err(e) => {
+            return Err(InputError::single(
+                file,
+                Some(header_index + 1),
+                None,
+                format!("unreadable header: {e}"),
+            ))
+        }
+    };
+    Ok(CsvInput {
+        reader,
+        headers,
+        header_line: header_index + 1,
+    })
+}

@@ -2,8 +2,7 @@
 //! The same reading rules as the targets file: case-insensitive headers, detected delimiter, BOM, CRLF, `#`
 //! comments.
 
-use super::targets::detect_delimiter;
-use super::{parse_finite, InputError, Problems};
+use super::{open_csv, parse_finite, CsvInput, InputError, Problems};
 use crate::astro::barycentric::TimeSystem;
 use std::collections::HashMap;
 
@@ -28,38 +27,15 @@ const REQUIRED: [&str; 3] = ["target", "tc", "tc_sigma_days"];
 
 /// Parse and validate an observed-times file.
 pub fn parse_observed(file: &str, text: &str) -> Result<Vec<Observation>, InputError> {
-    let text = text.strip_prefix('\u{feff}').unwrap_or(text);
-    if text
-        .lines()
-        .all(|l| l.trim().is_empty() || l.trim_start().starts_with('#'))
-    {
-        return Err(InputError::single(
-            file,
-            None,
-            None,
-            "the file is empty; expected a header (target,tc,tc_sigma_days,...) and one row per observed transit".into(),
-        ));
-    }
-    let mut reader = csv::ReaderBuilder::new()
-        .delimiter(detect_delimiter(text))
-        .comment(Some(b'#'))
-        .flexible(true)
-        .from_reader(text.as_bytes());
-    let headers: Vec<String> = match reader.headers() {
-        Ok(h) => h.iter().map(|x| x.trim().to_lowercase()).collect(),
-        Err(e) => {
-            return Err(InputError::single(
-                file,
-                Some(1),
-                None,
-                format!("unreadable header: {e}"),
-            ))
-        }
-    };
-    let header_line = text
-        .lines()
-        .position(|l| !l.trim().is_empty() && !l.trim_start().starts_with('#'))
-        .map_or(1, |i| i + 1);
+    let CsvInput {
+        mut reader,
+        headers,
+        header_line,
+    } = open_csv(
+        file,
+        text,
+        "a header (target,tc,tc_sigma_days,...) and one row per observed transit",
+    )?;
     let index: HashMap<&str, usize> = ["target", "tc", "tc_sigma_days", "time_system", "source"]
         .into_iter()
         .filter_map(|name| headers.iter().position(|h| h == name).map(|i| (name, i)))

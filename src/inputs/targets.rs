@@ -6,7 +6,7 @@
 //! ends are accepted; lines starting with `#` are comments.
 
 use super::angles::{parse_dec_deg, parse_ra_deg};
-use super::{parse_finite, InputError, Problems};
+use super::{open_csv, parse_finite, CsvInput, InputError, Problems};
 use crate::astro::barycentric::TimeSystem;
 use crate::ephemeris::Ephemeris;
 use std::collections::HashMap;
@@ -173,39 +173,15 @@ pub(crate) fn detect_delimiter(text: &str) -> u8 {
 /// Given: `file` label for messages, `text` the file's content, `map` column renames. Returns targets in
 /// file order, or every problem found (up to the cap).
 pub fn parse_targets(file: &str, text: &str, map: &ColumnMap) -> Result<Vec<Target>, InputError> {
-    let text = text.strip_prefix('\u{feff}').unwrap_or(text);
-    if text
-        .lines()
-        .all(|l| l.trim().is_empty() || l.trim_start().starts_with('#'))
-    {
-        return Err(InputError::single(
-            file,
-            None,
-            None,
-            "the file is empty; expected a header line and one row per target (see targets.example.csv)".into(),
-        ));
-    }
-    let mut reader = csv::ReaderBuilder::new()
-        .delimiter(detect_delimiter(text))
-        .comment(Some(b'#'))
-        .flexible(true)
-        .from_reader(text.as_bytes());
-    let headers = match reader.headers() {
-        Ok(h) => h.clone(),
-        Err(e) => {
-            return Err(InputError::single(
-                file,
-                Some(1),
-                None,
-                format!("unreadable header: {e}"),
-            ))
-        }
-    };
-    let header_line = text
-        .lines()
-        .position(|l| !l.trim().is_empty() && !l.trim_start().starts_with('#'))
-        .map_or(1, |i| i + 1);
-    let lowered: Vec<String> = headers.iter().map(|h| h.trim().to_lowercase()).collect();
+    let CsvInput {
+        mut reader,
+        headers: lowered,
+        header_line,
+    } = open_csv(
+        file,
+        text,
+        "a header line and one row per target (see targets.example.csv)",
+    )?;
     let mut index = HashMap::new();
     let mut problems = Problems::default();
     for spec in COLUMNS {

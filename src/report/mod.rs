@@ -48,6 +48,40 @@ fn zone_label(jd: f64, site: &Site, utc: bool) -> String {
     }
 }
 
+/// "UTC", or the zone abbreviations in force over the night windows, in order (`GMT then BST`), with the IANA
+/// name: how the tables say which clock their times are on.
+fn clock_label(
+    windows: impl Iterator<Item = crate::astro::crossings::Interval>,
+    site: &Site,
+    utc: bool,
+) -> String {
+    if utc {
+        return "UTC".into();
+    }
+    let mut zones: Vec<String> = windows
+        .flat_map(|w| [zone_label(w.start, site, utc), zone_label(w.end, site, utc)])
+        .collect();
+    zones.dedup();
+    format!("{} ({})", zones.join(" then "), site.tz.name())
+}
+
+/// The table style of every terminal table: a rule under the header and column separators, no outer frame
+/// (comfy-table preset string), columns padded by one space on the right.
+fn styled_table(
+    header: Vec<&str>,
+    arrangement: comfy_table::ContentArrangement,
+) -> comfy_table::Table {
+    let mut table = comfy_table::Table::new();
+    table
+        .load_preset("     ─┼ │          ")
+        .set_content_arrangement(arrangement)
+        .set_header(header);
+    for col in table.column_iter_mut() {
+        col.set_padding((0, 1));
+    }
+    table
+}
+
 /// Write CSV rows from serializable records whose JSON form has scalar or list values: null -> empty, lists
 /// joined with `;`. The header is `fields`.
 fn csv_from_records<T: serde::Serialize>(fields: &[&str], records: &[T]) -> String {

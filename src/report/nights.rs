@@ -1,10 +1,10 @@
 //! `nights` outputs: one row per night with the Sun's and Moon's events.
 
-use super::{hhmm, round, zone_label};
+use super::{hhmm, round};
 use crate::almanac::NightAlmanac;
 use crate::civil::rfc3339_utc;
 use crate::inputs::sites::Site;
-use comfy_table::{Cell, CellAlignment, ContentArrangement, Table};
+use comfy_table::{Cell, CellAlignment, ContentArrangement};
 use serde::Serialize;
 
 /// One night as written to CSV and JSON. Field names are documented in the README.
@@ -101,42 +101,21 @@ pub fn nights_json(site: &Site, nights: &[NightAlmanac]) -> String {
 /// (the notes under the table say why).
 pub fn nights_table(site: &Site, nights: &[NightAlmanac], utc: bool) -> String {
     let mut out = String::new();
-    let zones: Vec<String> = {
-        let mut z: Vec<String> = nights
-            .iter()
-            .flat_map(|n| {
-                [
-                    zone_label(n.window.start, site, utc),
-                    zone_label(n.window.end, site, utc),
-                ]
-            })
-            .collect();
-        z.dedup();
-        z
-    };
     out.push_str(&format!(
         "{}  {:+.3} {:+.3}  times {}; darkness: Sun below {} deg\n",
         site.name,
         site.lat_deg,
         site.lon_deg,
-        if utc {
-            "UTC".to_string()
-        } else {
-            format!("{} ({})", zones.join(" then "), site.tz.name())
-        },
+        super::clock_label(nights.iter().map(|n| n.window), site, utc),
         site.darkness_alt_deg
     ));
-    let mut table = Table::new();
-    table
-        .load_preset("     ─┼ │          ")
-        .set_content_arrangement(ContentArrangement::Disabled)
-        .set_header(vec![
+    let mut table = super::styled_table(
+        vec![
             "Night", "Sunset", "Civil", "Naut", "Astro", "Astro", "Naut", "Civil", "Sunrise",
             "Dark h", "Moonrise", "Moonset", "Moon",
-        ]);
-    for col in table.column_iter_mut() {
-        col.set_padding((0, 1));
-    }
+        ],
+        ContentArrangement::Disabled,
+    );
     let t = |x: Option<f64>| x.map(|v| hhmm(v, site, utc)).unwrap_or_else(|| "--".into());
     for a in nights {
         table.add_row(vec![

@@ -1,11 +1,11 @@
 //! `plan` outputs: the terminal table, CSV and JSON.
 
-use super::{finite, hhmm, round, zone_label};
+use super::{finite, hhmm, round};
 use crate::civil::rfc3339_utc;
 use crate::inputs::sites::Site;
 use crate::inputs::targets::Target;
 use crate::plan::{Event, Plan, PlanOptions, Reason, Verdict};
-use comfy_table::{Cell, CellAlignment, ContentArrangement, Table};
+use comfy_table::{Cell, CellAlignment, ContentArrangement};
 use serde::Serialize;
 
 /// One event as written to CSV and JSON. Field names and units are documented in the README.
@@ -358,9 +358,6 @@ fn reason_note(r: Reason) -> &'static str {
     }
 }
 
-/// Table style: a rule under the header and nothing else (comfy-table preset string, see its docs).
-const TABLE_STYLE: &str = "     ─┼ │          ";
-
 const LEGEND: &str = "\
 Notes: flip HH:MM = meridian crossing inside the block (equatorial mounts flip). Limits that cut the block:
   sun = twilight or daylight, low = below the altitude limit, horizon = behind the horizon profile,
@@ -389,36 +386,18 @@ pub fn plan_table(
     ));
     for sp in &plan.sites {
         let site = &sites[sp.site_index];
-        let zones: Vec<String> = {
-            let mut z: Vec<String> = sp
-                .nights
-                .iter()
-                .flat_map(|n| {
-                    [
-                        zone_label(n.window.start, site, utc),
-                        zone_label(n.window.end, site, utc),
-                    ]
-                })
-                .collect();
-            z.dedup();
-            z
-        };
         out.push_str(&format!(
             "\n{}  {:+.3} {:+.3}  times {}\n  dark when the Sun is below {} deg; target above {:.1} deg\n",
             site.name,
             site.lat_deg,
             site.lon_deg,
-            if utc { "UTC".to_string() } else { format!("{} ({})", zones.join(" then "), site.tz.name()) },
+            super::clock_label(sp.nights.iter().map(|n| n.window), site, utc),
             site.darkness_alt_deg,
             site.min_alt_deg,
         ));
         if !sp.events.is_empty() {
-            let mut table = Table::new();
-            table
-                .load_preset(TABLE_STYLE)
-                .set_content_arrangement(ContentArrangement::Dynamic)
-                .set_width(120)
-                .set_header(vec![
+            let mut table = super::styled_table(
+                vec![
                     "Night",
                     "Target",
                     "Verdict",
@@ -429,7 +408,11 @@ pub fn plan_table(
                     "Alt i/m/e",
                     "Moon",
                     "Notes",
-                ]);
+                ],
+                ContentArrangement::Dynamic,
+            );
+            table.set_width(120);
+            // The widest table of all: no padding, the column rules separate.
             for col in table.column_iter_mut() {
                 col.set_padding((0, 0));
             }

@@ -4,7 +4,7 @@ use super::round;
 use crate::ephemeris::Ephemeris;
 use crate::inputs::targets::{detect_delimiter, ColumnMap, Target};
 use crate::refine::{Staleness, TargetRefinement};
-use comfy_table::{Cell, CellAlignment, ContentArrangement, Table};
+use comfy_table::{Cell, CellAlignment, ContentArrangement};
 use serde_json::json;
 
 /// One target's staleness at the chosen date, with the ephemeris it was computed from.
@@ -28,15 +28,6 @@ pub fn stale_status(s: &Staleness, fraction: f64) -> &'static str {
         "refresh soon"
     } else {
         "fresh"
-    }
-}
-
-fn style(table: &mut Table) {
-    table
-        .load_preset("     ─┼ │          ")
-        .set_content_arrangement(ContentArrangement::Disabled);
-    for col in table.column_iter_mut() {
-        col.set_padding((0, 1));
     }
 }
 
@@ -101,17 +92,18 @@ pub fn refine_text(
         } else {
             out.push_str("  two points for two parameters: the line passes through both, no chi-square test possible\n");
         }
-        let mut table = Table::new();
-        style(&mut table);
-        table.set_header(vec![
-            "Epoch",
-            "BJD_TDB",
-            "O-C min",
-            "+-sig min",
-            "O-C/sig",
-            "Flag",
-            "Source",
-        ]);
+        let mut table = super::styled_table(
+            vec![
+                "Epoch",
+                "BJD_TDB",
+                "O-C min",
+                "+-sig min",
+                "O-C/sig",
+                "Flag",
+                "Source",
+            ],
+            ContentArrangement::Disabled,
+        );
         for row in &r.rows {
             table.add_row(vec![
                 Cell::new(row.epoch).set_alignment(CellAlignment::Right),
@@ -139,17 +131,18 @@ pub fn refine_text(
             "Ephemeris age on {stale_at}: timing 1-sigma at the nearest transit, against the duration T14 (refresh first above {:.0}% of T14)\n",
             fraction * 100.0
         ));
-        let mut table = Table::new();
-        style(&mut table);
-        table.set_header(vec![
-            "Target",
-            "Ephemeris",
-            "Epoch",
-            "sigma min",
-            "T14 h",
-            "sigma/T14",
-            "Status",
-        ]);
+        let mut table = super::styled_table(
+            vec![
+                "Target",
+                "Ephemeris",
+                "Epoch",
+                "sigma min",
+                "T14 h",
+                "sigma/T14",
+                "Status",
+            ],
+            ContentArrangement::Disabled,
+        );
         for s in stale {
             let t = &targets[s.target_index];
             table.add_row(vec![

@@ -4,7 +4,7 @@ use super::{hhmm, round, EventRecord, EVENT_FIELDS};
 use crate::inputs::sites::Site;
 use crate::inputs::targets::Target;
 use crate::schedule::{Chosen, TelescopeEvents};
-use comfy_table::{Cell, CellAlignment, ContentArrangement, Table};
+use comfy_table::{Cell, CellAlignment, ContentArrangement};
 
 /// Extra fields of a scheduled event, after the plan's event fields.
 pub const SCHEDULE_FIELDS: &[&str] = &["telescope", "score", "paired_with", "combined_coverage"];
@@ -104,24 +104,20 @@ pub fn schedule_table(
         if rows.is_empty() {
             continue;
         }
-        let mut table = Table::new();
-        table
-            .load_preset("     ─┼ │          ")
-            .set_content_arrangement(ContentArrangement::Dynamic)
-            .set_width(120);
-        table.set_header(vec![
-            "Night",
-            "Target",
-            "Verdict",
-            "Cover",
-            "Block",
-            "Ingr  Mid   Egr",
-            "Score",
-            "Notes",
-        ]);
-        for col in table.column_iter_mut() {
-            col.set_padding((0, 1));
-        }
+        let mut table = super::styled_table(
+            vec![
+                "Night",
+                "Target",
+                "Verdict",
+                "Cover",
+                "Block",
+                "Ingr  Mid   Egr",
+                "Score",
+                "Notes",
+            ],
+            ContentArrangement::Dynamic,
+        );
+        table.set_width(120);
         let mut prev = None;
         for c in rows {
             let e = &c.event;
