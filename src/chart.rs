@@ -571,6 +571,18 @@ pub fn season_svg(
     targets: &[Target],
     moon_illum: &[(chrono::NaiveDate, f64)],
 ) -> String {
+    season_svg_linked(plan, sites, targets, moon_illum, None)
+}
+
+/// [`season_svg`] with each event's glyph a link to `link(event)` (the HTML page uses it to reach the night
+/// charts).
+pub fn season_svg_linked(
+    plan: &Plan,
+    sites: &[Site],
+    targets: &[Target],
+    moon_illum: &[(chrono::NaiveDate, f64)],
+    link: Option<&dyn Fn(&Event) -> String>,
+) -> String {
     let cell = 14.0;
     let label_w = 170.0;
     let nights: Vec<chrono::NaiveDate> = moon_illum.iter().map(|(d, _)| *d).collect();
@@ -669,6 +681,9 @@ pub fn season_svg(
                         e.verdict.label(),
                         e.coverage * 100.0
                     );
+                    if let Some(link) = link {
+                        svg.raw(&format!(r##"<a href="{}">"##, esc(&link(e))));
+                    }
                     glyph(
                         &mut svg,
                         e.verdict,
@@ -677,6 +692,9 @@ pub fn season_svg(
                         s,
                         &tip,
                     );
+                    if link.is_some() {
+                        svg.raw("</a>");
+                    }
                 }
             }
         }
@@ -704,6 +722,66 @@ pub fn season_svg(
         lx += 16.0 + 7.0 * v.label().len() as f64 + 16.0;
     }
     svg.finish()
+}
+
+/// File name of an event's night chart inside the HTML bundle: `<site>-<target>-<night>.svg`, slugged.
+pub fn night_chart_file(e: &Event, sites: &[Site], targets: &[Target]) -> String {
+    let slug = |t: &str| -> String {
+        let s: String = t
+            .chars()
+            .map(|c| {
+                if c.is_ascii_alphanumeric() {
+                    c.to_ascii_lowercase()
+                } else {
+                    '-'
+                }
+            })
+            .collect();
+        s.split('-')
+            .filter(|p| !p.is_empty())
+            .collect::<Vec<_>>()
+            .join("-")
+    };
+    format!(
+        "{}-{}-{}.svg",
+        slug(&sites[e.site_index].name),
+        slug(&targets[e.target_index].name),
+        e.night_of
+    )
+}
+
+/// The HTML page bundling the season grid (inline, its glyphs linking to the night charts in `nights/`) with
+/// a list of every event by site and night. Well-formed XHTML, so any XML parser can read it.
+pub fn season_html(
+    plan: &Plan,
+    sites: &[Site],
+    targets: &[Target],
+    moon_illum: &[(chrono::NaiveDate, f64)],
+) -> String {
+    let link = |e: &Event| format!("nights/{}", night_chart_file(e, sites, targets));
+    let grid = season_svg_linked(plan, sites, targets, moon_illum, Some(&link));
+    let mut html = String::from(
+        "<!DOCTYPE html>\n<html xmlns=\"http://www.w3.org/1999/xhtml\" lang=\"en\"><head><meta charset=\"utf-8\"/><title>dipwatch season</title><style>body{font-family:sans-serif;color:#1d2433;margin:1.5em}li{margin:0.15em 0}</style></head><body>\n<h1>Transits by night</h1>\n<p>Click a glyph, or an entry below, for the night chart.</p>\n",
+    );
+    html.push_str(&grid);
+    for sp in &plan.sites {
+        let site = &sites[sp.site_index];
+        let _ = write!(html, "<h2>{}</h2>\n<ul>\n", esc(&site.name));
+        for e in &sp.events {
+            let _ = writeln!(
+                html,
+                r##"<li><a href="{}">{} {}, {} ({:.0}%)</a></li>"##,
+                esc(&link(e)),
+                e.night_of,
+                esc(&targets[e.target_index].name),
+                e.verdict.label(),
+                e.coverage * 100.0
+            );
+        }
+        html.push_str("</ul>\n");
+    }
+    html.push_str("</body></html>\n");
+    html
 }
 
 /// The O-C chart of a refinement: observed minus computed (minutes) against epoch with 1-sigma error bars;

@@ -1178,6 +1178,9 @@ struct ChartSeasonArgs {
     /// SVG file to write
     #[arg(long, value_name = "FILE.svg")]
     out: PathBuf,
+    /// Also write an HTML page in this folder: the grid linked to a night chart per event (nights/*.svg)
+    #[arg(long, value_name = "DIR")]
+    html: Option<PathBuf>,
 }
 
 fn run_chart_season(args: ChartSeasonArgs) -> Result<()> {
@@ -1208,5 +1211,46 @@ fn run_chart_season(args: ChartSeasonArgs) -> Result<()> {
     let svg = dipwatch::chart::season_svg(&result, &sites, &targets, &moon);
     write_atomically(&args.out, svg.as_bytes())?;
     eprintln!("dipwatch: wrote {}", args.out.display());
+    if let Some(dir) = &args.html {
+        let nights_dir = dir.join("nights");
+        std::fs::create_dir_all(&nights_dir)
+            .with_context(|| format!("cannot create {}", nights_dir.display()))?;
+        let mut all = opts.clone();
+        all.include_unobservable = true;
+        for sp in &result.sites {
+            let site = &sites[sp.site_index];
+            let mut done = std::collections::HashSet::new();
+            for e in &sp.events {
+                let file = dipwatch::chart::night_chart_file(e, &sites, &targets);
+                if !done.insert(file.clone()) {
+                    continue;
+                }
+                // Every event of that target on that night, as plan sees them.
+                all.first_night = e.night_of;
+                all.last_night = e.night_of;
+                let one = std::slice::from_ref(&targets[e.target_index]);
+                let p = plan(std::slice::from_ref(site), one, &all);
+                let alm = dipwatch::almanac::night_almanac(site, e.night_of);
+                let chart = dipwatch::chart::night_chart_svg(
+                    site,
+                    &one[0],
+                    &alm,
+                    &p.sites[0].events,
+                    opts.sigma_k,
+                );
+                write_atomically(&nights_dir.join(&file), chart.as_bytes())?;
+            }
+        }
+        let page = dir.join("index.html");
+        write_atomically(
+            &page,
+            dipwatch::chart::season_html(&result, &sites, &targets, &moon).as_bytes(),
+        )?;
+        eprintln!(
+            "dipwatch: wrote {} with the night charts in {}",
+            page.display(),
+            nights_dir.display()
+        );
+    }
     Ok(())
 }

@@ -165,3 +165,63 @@ fn oc_chart_marks_every_point() {
     assert_eq!(count_class(&doc, "point"), 4);
     assert_eq!(count_class(&doc, "errorbar"), 4);
 }
+
+#[test]
+fn season_html_links_every_event_to_its_night_chart() {
+    let d = temp("html");
+    let (s, t) = (repo("sites.example.toml"), repo("targets.example.csv"));
+    run(&[
+        "chart",
+        "season",
+        "--sites",
+        &s,
+        "--targets",
+        &t,
+        "--site",
+        "Quebrada Lenta",
+        "--from",
+        "2027-03-01",
+        "--to",
+        "2027-03-10",
+        "--out",
+        d.join("s.svg").to_str().unwrap(),
+        "--html",
+        d.join("page").to_str().unwrap(),
+    ]);
+    let html = std::fs::read_to_string(d.join("page/index.html")).unwrap();
+    let doc = roxmltree::Document::parse_with_options(
+        &html,
+        roxmltree::ParsingOptions {
+            allow_dtd: true,
+            ..Default::default()
+        },
+    )
+    .expect("the page is well-formed XHTML");
+    let p = plan_json(&[
+        "plan",
+        "--sites",
+        &s,
+        "--targets",
+        &t,
+        "--site",
+        "Quebrada Lenta",
+        "--from",
+        "2027-03-01",
+        "--to",
+        "2027-03-10",
+        "--format",
+        "json",
+    ]);
+    let n = p["events"].as_array().unwrap().len();
+    // One link per glyph in the grid and one per list entry, each to a night chart that exists and parses.
+    let links: Vec<&str> = doc
+        .descendants()
+        .filter_map(|x| x.attribute("href"))
+        .collect();
+    assert_eq!(links.len(), 2 * n);
+    for l in links {
+        let chart =
+            std::fs::read_to_string(d.join("page").join(l)).unwrap_or_else(|e| panic!("{l}: {e}"));
+        roxmltree::Document::parse(&chart).unwrap();
+    }
+}
