@@ -502,7 +502,7 @@ fn evaluate(
     night: &Night,
     opts: &PlanOptions,
     tables: &SkyTables,
-) -> Event {
+) -> Option<Event> {
     let half = target.t14_hours / 48.0;
     let ingress = mid_utc - half;
     let egress = mid_utc + half;
@@ -574,6 +574,10 @@ fn evaluate(
     }
     reasons.sort();
     reasons.dedup();
+    if !observable && !opts.include_unobservable {
+        // Not listed: skip the geometry.
+        return None;
+    }
 
     let alt_in = track.alt_deg(ingress);
     let (alt_mid, az_mid) = track.alt_az_deg(mid_utc);
@@ -586,7 +590,7 @@ fn evaluate(
         moon_topo.dec_rad,
     )
     .to_degrees();
-    Event {
+    Some(Event {
         target_index,
         site_index,
         epoch,
@@ -619,7 +623,7 @@ fn evaluate(
         moon_illum,
         meridian_utc: upper.first().copied(),
         reasons,
-    }
+    })
 }
 
 /// Plan every transit of `targets` at `sites` over the nights in `opts`.
@@ -747,7 +751,8 @@ impl<'a> Planner<'a> {
                 )
             })
             .collect();
-        let mut events = Vec::new();
+        let total: usize = per_target.iter().map(|(e, _)| e.len()).sum();
+        let mut events = Vec::with_capacity(total);
         let mut lost = Vec::new();
         for (ti, (evs, lost_sigma)) in per_target.into_iter().enumerate() {
             if let Some(sigma) = lost_sigma {
@@ -755,10 +760,12 @@ impl<'a> Planner<'a> {
             }
             events.extend(evs);
         }
-        events.par_sort_by(|a, b| {
+        // (block start, target, epoch) is unique, so the unstable sort is deterministic.
+        events.par_sort_unstable_by(|a, b| {
             a.block_start_utc
                 .total_cmp(&b.block_start_utc)
                 .then(a.target_index.cmp(&b.target_index))
+                .then(a.epoch.cmp(&b.epoch))
         });
         (
             SitePlan {
@@ -824,8 +831,7 @@ fn events_of_target(
                 continue;
             }
         }
-        let ev = evaluate(ti, target, si, site, n, mid, sigma, night, opts, tables);
-        if ev.observable || opts.include_unobservable {
+        if let Some(ev) = evaluate(ti, target, si, site, n, mid, sigma, night, opts, tables) {
             events.push(ev);
         }
     }

@@ -79,7 +79,13 @@ impl EarthTable {
     pub fn new(from_jd_tdb: f64, to_jd_tdb: f64) -> EarthTable {
         let first = from_jd_tdb.floor() - 3.0;
         let n = ((to_jd_tdb.max(from_jd_tdb) - first).ceil() as usize) + 4;
-        let (bary_au, helio_au) = (0..n).map(|i| earth_positions_au(first + i as f64)).unzip();
+        let (bary_au, helio_au): (Vec<Vec3>, Vec<Vec3>) = {
+            use rayon::prelude::*;
+            (0..n)
+                .into_par_iter()
+                .map(|i| earth_positions_au(first + i as f64))
+                .unzip()
+        };
         EarthTable {
             first_jd_tdb: first,
             bary_au,

@@ -45,7 +45,9 @@ impl SkyTables {
     pub fn new(start_utc: f64, end_utc: f64) -> SkyTables {
         let first_day_utc = start_utc.floor() - 2.0;
         let n_days = ((end_utc - first_day_utc).ceil() as usize) + 3;
+        use rayon::prelude::*;
         let frames = (0..n_days)
+            .into_par_iter()
             .map(|i| {
                 let eo = EarthOrientation::at(JdUtc(first_day_utc + i as f64));
                 Frame {
@@ -58,6 +60,7 @@ impl SkyTables {
         let moon_first_utc = first_day_utc;
         let n_moon = ((end_utc + 2.0 - moon_first_utc) / MOON_STEP_DAYS).ceil() as usize + 4;
         let moon_km = (0..n_moon)
+            .into_par_iter()
             .map(|i| {
                 let t = moon_first_utc + i as f64 * MOON_STEP_DAYS;
                 let eo = EarthOrientation::at(JdUtc(t));
