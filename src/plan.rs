@@ -517,6 +517,20 @@ fn evaluate(
         site,
         tables,
     );
+    if !opts.include_unobservable {
+        // Quick rejection: no in-transit dark time with the target above the altitude limit means no event to
+        // list, whatever the other constraints say.
+        let transit_dark = night.dark.and_then(|d| {
+            d.intersect(&Interval {
+                start: ingress,
+                end: egress,
+            })
+        });
+        match transit_dark {
+            Some(w) if !alt_intervals(&track, site.min_alt_deg, &w).is_empty() => {}
+            _ => return None,
+        }
+    }
     let (usable, mut reasons) = usable_intervals_on_track(&track, site, night, &block, tables);
     let upper = track.culminations(block.start, block.end).0;
     let lost = sigma_days > LOST_SIGMA_FRACTION_OF_PERIOD * target.ephemeris.period_days;
