@@ -50,7 +50,7 @@ struct InputArgs {
     /// Targets file (CSV). Default: ./targets.csv
     #[arg(long, value_name = "FILE")]
     targets: Option<PathBuf>,
-    /// Read differently named target columns: ours=theirs,... (e.g. period_days=pl_orbper,t0=pl_tranmid)
+    /// Read differently named target columns: ours=theirs,... (e.g. period_days=orb_period,t0=mid_time)
     #[arg(long, value_name = "MAP")]
     columns: Option<String>,
     /// Only this site (repeatable; case-insensitive)

@@ -129,7 +129,7 @@ impl ColumnMap {
         for part in spec.split(',').map(str::trim).filter(|p| !p.is_empty()) {
             let Some((ours, theirs)) = part.split_once('=') else {
                 return Err(format!(
-                    "found {part:?}, expected ours=theirs (for example period_days=pl_orbper)"
+                    "found {part:?}, expected ours=theirs (for example period_days=orb_period)"
                 ));
             };
             let ours = ours.trim().to_ascii_lowercase();
@@ -443,8 +443,8 @@ mod tests {
     #[test]
     fn column_map_renames() {
         let text =
-            "pl_name,ra,dec,tmid,tmid_err,per,per_err,dur\nB,1,2,2460000.5,0.001,3.5,0.00001,2\n";
-        let map = ColumnMap::parse("name=pl_name,t0=tmid,t0_sigma_days=tmid_err,period_days=per,period_sigma_days=per_err,t14_hours=dur").unwrap();
+            "object,ra,dec,tmid,tmid_err,per,per_err,dur\nB,1,2,2460000.5,0.001,3.5,0.00001,2\n";
+        let map = ColumnMap::parse("name=object,t0=tmid,t0_sigma_days=tmid_err,period_days=per,period_sigma_days=per_err,t14_hours=dur").unwrap();
         assert_eq!(parse_targets("t.csv", text, &map).unwrap()[0].name, "B");
         assert!(ColumnMap::parse("periodd=x").is_err());
     }
