@@ -426,7 +426,7 @@ fn per_site_files_and_alarm() {
         &out,
         &["--per-site", "--alarm-minutes", "45"],
     );
-    for site in ["kestrel-moor", "pinyon-flat-station", "quebrada-lenta"] {
+    for site in ["kestrel-moor", "juniper-draw-station", "quebrada-lenta"] {
         let raw = std::fs::read_to_string(d.join(format!("team-{site}.ics"))).unwrap();
         // RFC 5545 3.6.6 and 3.8.6.3: a display alarm 45 minutes before the start.
         assert!(raw.contains("BEGIN:VALARM\r\nACTION:DISPLAY\r\n"));

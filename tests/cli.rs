@@ -64,7 +64,7 @@ fn readme_example_table() {
     let o = run(&args.iter().map(String::as_str).collect::<Vec<_>>());
     assert!(o.status.success(), "{}", stderr(&o));
     let out = stdout(&o);
-    for site in ["Kestrel Moor", "Pinyon Flat Station", "Quebrada Lenta"] {
+    for site in ["Kestrel Moor", "Juniper Draw Station", "Quebrada Lenta"] {
         assert!(out.contains(site), "{site} missing");
     }
     assert!(out.contains("whole"), "{out}");

@@ -206,7 +206,7 @@ fn schedule_command_and_calendar_of_the_schedule() {
     let v: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
     let chosen = v["scheduled"].as_array().unwrap();
     assert!(!chosen.is_empty());
-    // Two telescopes at Pinyon Flat Station appear by name.
+    // Two telescopes at Juniper Draw Station appear by name.
     assert!(
         chosen.iter().any(|c| c["telescope"] == "0.4 m")
             || chosen.iter().any(|c| c["telescope"] == "0.6 m")
