@@ -14,7 +14,7 @@
 use crate::almanac::NightAlmanac;
 use crate::astro::atmosphere::alt_deg_for_airmass;
 use crate::astro::barycentric::EarthTable;
-use crate::astro::frames::{unit_from_radec, wrap_pi, EarthOrientation};
+use crate::astro::frames::{wrap_pi, EarthOrientation};
 use crate::astro::sky::{sun_alt_deg, target_alt_az_deg};
 use crate::astro::time::{jd_tdb_from_utc, JdUtc};
 use crate::civil::{datetime_from_jd, local_hhmm, zone_abbreviation};
@@ -188,7 +188,7 @@ pub fn night_chart_svg(
         .map(|i| range.start + (range.end - range.start) * i as f64 / n as f64)
         .collect();
     let earth = EarthTable::new(range.start - 1.0, range.end + 1.0);
-    let icrs = unit_from_radec(target.ra_deg.to_radians(), target.dec_deg.to_radians());
+    let icrs = target.icrs_at(range.start);
     let sun: Vec<f64> = ts
         .iter()
         .map(|&t| sun_alt_deg(JdUtc(t), &site.observer))

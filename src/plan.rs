@@ -12,7 +12,7 @@ use crate::astro::crossings::{
     intervals_where_nonnegative, sun_crossings_with, Interval, SunCrossing, DEFAULT_STEP_DAYS,
 };
 use crate::astro::frames::{
-    alt_az_from_hadec, gmst_rad, separation_rad, unit_from_radec, wrap_pi, EarthOrientation, Vec3,
+    alt_az_from_hadec, gmst_rad, separation_rad, wrap_pi, EarthOrientation, Vec3,
 };
 use crate::astro::sky::sun_moon_at;
 use crate::astro::tables::SkyTables;
@@ -424,12 +424,7 @@ pub fn usable_intervals(
     let mid = 0.5 * (block.start + block.end);
     let _ = earth;
     let tables = SkyTables::new(block.start - 1.0, block.end + 1.0);
-    let track = Track::new(
-        &unit_from_radec(target.ra_deg.to_radians(), target.dec_deg.to_radians()),
-        mid,
-        site,
-        &tables,
-    );
+    let track = Track::new(&target.icrs_at(mid), mid, site, &tables);
     usable_intervals_on_track(&track, site, night, block, &tables)
 }
 
@@ -511,12 +506,7 @@ fn evaluate(
         start: ingress - margin - opts.baseline_before_min / 1440.0,
         end: egress + margin + opts.baseline_after_min / 1440.0,
     };
-    let track = Track::new(
-        &unit_from_radec(target.ra_deg.to_radians(), target.dec_deg.to_radians()),
-        mid_utc,
-        site,
-        tables,
-    );
+    let track = Track::new(&target.icrs_at(mid_utc), mid_utc, site, tables);
     if !opts.include_unobservable {
         // Quick rejection: no in-transit dark time with the target above the altitude limit means no event to
         // list, whatever the other constraints say.
@@ -695,7 +685,7 @@ impl<'a> Planner<'a> {
             (Some(tables), Some((a, b))) => targets
                 .par_iter()
                 .map(|t| {
-                    let icrs = unit_from_radec(t.ra_deg.to_radians(), t.dec_deg.to_radians());
+                    let icrs = t.icrs_at(0.5 * (a + b));
                     let eph = &t.ephemeris;
                     // Light time and TT-UTC are < 0.01 d: widen the range by 0.02 d in the target's system.
                     eph.epochs_between(a - 0.02, b + 0.02)
@@ -807,7 +797,7 @@ fn events_of_target(
     opts: &PlanOptions,
     tables: &SkyTables,
 ) -> (Vec<Event>, Option<f64>) {
-    let icrs = unit_from_radec(target.ra_deg.to_radians(), target.dec_deg.to_radians());
+    let icrs = target.icrs_at(range.start);
     let eph = &target.ephemeris;
     let half = target.t14_hours / 48.0;
     let mut events = Vec::new();
@@ -856,7 +846,7 @@ fn events_of_target(
 pub fn next_mid_after(target: &Target, site: &Site, jd_utc: f64) -> f64 {
     let eph = &target.ephemeris;
     let earth = EarthTable::new(jd_utc - 1.0, jd_utc + eph.period_days + 1.0);
-    let icrs = unit_from_radec(target.ra_deg.to_radians(), target.dec_deg.to_radians());
+    let icrs = target.icrs_at(jd_utc);
     let mut n = ((jd_utc - 0.02 - eph.t0) / eph.period_days).floor() as i64;
     loop {
         let t = earth
@@ -879,7 +869,7 @@ pub fn usable_minutes_oracle(
     end: f64,
     earth: &EarthTable,
 ) -> Vec<bool> {
-    let icrs = unit_from_radec(target.ra_deg.to_radians(), target.dec_deg.to_radians());
+    let icrs = target.icrs_at(0.5 * (start + end));
     let n = ((end - start) * 1440.0).round() as usize;
     (0..=n)
         .map(|i| {
@@ -925,7 +915,7 @@ pub fn brute_force_site(
     let earth = EarthTable::new(first.window.start - 1.0, last.window.end + 1.0);
     let mut out = Vec::new();
     for (ti, t) in targets.iter().enumerate() {
-        let icrs = unit_from_radec(t.ra_deg.to_radians(), t.dec_deg.to_radians());
+        let icrs = t.icrs_at(first.window.start);
         let eph = &t.ephemeris;
         for n in eph.epochs_between(first.window.start - 0.02, last.window.end + 0.02) {
             let mid = earth

@@ -225,7 +225,6 @@ mod tests {
 }
 
 use crate::astro::barycentric::{EarthTable, TimeSystem};
-use crate::astro::frames::unit_from_radec;
 use crate::inputs::observed::Observation;
 use crate::inputs::targets::Target;
 
@@ -308,7 +307,7 @@ pub fn to_bjd_tdb(system: TimeSystem, value: f64, target: &Target) -> f64 {
     if system == TimeSystem::BjdTdb {
         return value;
     }
-    let icrs = unit_from_radec(target.ra_deg.to_radians(), target.dec_deg.to_radians());
+    let icrs = target.icrs_at(value);
     let table = EarthTable::new(value - 1.0, value + 1.0);
     let utc = table.utc_from_system(system, value, &icrs, None);
     table.time_in_system(TimeSystem::BjdTdb, utc, &icrs, None)

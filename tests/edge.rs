@@ -51,6 +51,9 @@ fn target(ra: f64, dec: f64, t0: f64, period: f64, system: TimeSystem) -> Target
         mag: None,
         priority: 1.0,
         notes: String::new(),
+        pm_ra_cosdec_mas_per_yr: 0.0,
+        pm_dec_mas_per_yr: 0.0,
+        coord_epoch_jyear: 2000.0,
     }
 }
 

@@ -44,6 +44,9 @@ prop_compose! {
             mag: None,
             priority: 1.0,
             notes: String::new(),
+            pm_ra_cosdec_mas_per_yr: 0.0,
+            pm_dec_mas_per_yr: 0.0,
+            coord_epoch_jyear: 2000.0,
         }
     }
 }

@@ -62,6 +62,9 @@ fn target_at(name: &str, s: &Site, jd_utc: f64, dec_deg: f64, t14_hours: f64) ->
         mag: None,
         priority: 1.0,
         notes: String::new(),
+        pm_ra_cosdec_mas_per_yr: 0.0,
+        pm_dec_mas_per_yr: 0.0,
+        coord_epoch_jyear: 2000.0,
     }
 }
 
@@ -351,6 +354,9 @@ fn check_against_oracle(
         mag: None,
         priority: 1.0,
         notes: String::new(),
+        pm_ra_cosdec_mas_per_yr: 0.0,
+        pm_dec_mas_per_yr: 0.0,
+        coord_epoch_jyear: 2000.0,
     };
     let (fast, _) = usable_intervals(&s, &t, &night, &block, &earth);
     let slow = usable_minutes_oracle(&s, &t, &night, block.start, block.end, &earth);

@@ -32,6 +32,33 @@ pub struct Target {
     pub priority: f64,
     /// Free-text notes.
     pub notes: String,
+    /// Proper motion in right ascension, mu_alpha* = mu_alpha cos(dec), mas/yr (0 if not given).
+    pub pm_ra_cosdec_mas_per_yr: f64,
+    /// Proper motion in declination, mas/yr (0 if not given).
+    pub pm_dec_mas_per_yr: f64,
+    /// Epoch of the coordinates, Julian year (2000.0 if not given; 2016.0 for Gaia DR3 positions).
+    pub coord_epoch_jyear: f64,
+}
+
+impl Target {
+    /// ICRS unit vector of the target at `jd` (any time scale: a day changes nothing), with its proper motion
+    /// applied from the coordinate epoch ([`crate::astro::frames::apply_proper_motion`]).
+    pub fn icrs_at(&self, jd: f64) -> crate::astro::frames::Vec3 {
+        let (ra, dec) = if self.pm_ra_cosdec_mas_per_yr == 0.0 && self.pm_dec_mas_per_yr == 0.0 {
+            (self.ra_deg, self.dec_deg)
+        } else {
+            let epoch_jd = crate::constants::J2000_JD + (self.coord_epoch_jyear - 2000.0) * 365.25;
+            crate::astro::frames::apply_proper_motion(
+                self.ra_deg,
+                self.dec_deg,
+                self.pm_ra_cosdec_mas_per_yr,
+                self.pm_dec_mas_per_yr,
+                epoch_jd,
+                jd,
+            )
+        };
+        crate::astro::frames::unit_from_radec(ra.to_radians(), dec.to_radians())
+    }
 }
 
 /// One column dipwatch reads: its canonical name, whether it is required, and what it holds.
@@ -115,6 +142,21 @@ pub const COLUMNS: &[ColumnSpec] = &[
         name: "notes",
         required: false,
         meaning: "free text",
+    },
+    ColumnSpec {
+        name: "pm_ra_mas_per_yr",
+        required: false,
+        meaning: "proper motion in RA times cos(dec), mas/yr (default 0)",
+    },
+    ColumnSpec {
+        name: "pm_dec_mas_per_yr",
+        required: false,
+        meaning: "proper motion in Dec, mas/yr (default 0)",
+    },
+    ColumnSpec {
+        name: "coord_epoch",
+        required: false,
+        meaning: "epoch of ra/dec, Julian year (default 2000.0)",
     },
 ];
 
@@ -320,6 +362,27 @@ pub fn parse_targets(file: &str, text: &str, map: &ColumnMap) -> Result<Vec<Targ
             1e9,
             &mut problems,
         );
+        let pm_ra = optional(
+            "pm_ra_mas_per_yr",
+            "a proper motion within +-20000 mas/yr",
+            -2e4,
+            2e4,
+            &mut problems,
+        );
+        let pm_dec = optional(
+            "pm_dec_mas_per_yr",
+            "a proper motion within +-20000 mas/yr",
+            -2e4,
+            2e4,
+            &mut problems,
+        );
+        let coord_epoch = optional(
+            "coord_epoch",
+            "a Julian year within 1900..2100",
+            1900.0,
+            2100.0,
+            &mut problems,
+        );
         if name.is_empty() {
             problems.push(line, "name", "found an empty name; expected text".into());
             ok = false;
@@ -397,6 +460,9 @@ pub fn parse_targets(file: &str, text: &str, map: &ColumnMap) -> Result<Vec<Targ
             mag,
             priority: priority.unwrap_or(1.0),
             notes: cell("notes").to_string(),
+            pm_ra_cosdec_mas_per_yr: pm_ra.unwrap_or(0.0),
+            pm_dec_mas_per_yr: pm_dec.unwrap_or(0.0),
+            coord_epoch_jyear: coord_epoch.unwrap_or(2000.0),
         });
     }
     if targets.is_empty() && problems.list_is_empty() {
@@ -424,6 +490,27 @@ mod tests {
         assert_eq!(t.dec_deg, -20.5);
         assert_eq!(t.ephemeris.system, TimeSystem::BjdTdb);
         assert_eq!(t.priority, 1.0);
+    }
+
+    #[test]
+    fn proper_motion_moves_the_target_from_its_coordinate_epoch() {
+        let text = format!(
+            "{},pm_ra_mas_per_yr,pm_dec_mas_per_yr,coord_epoch\nFast,150,20,2460000.5,0.001,3.5,0.00001,2.5,8,0,10000,2016.0\n",
+            HEADER.trim_end()
+        );
+        let t = &parse_targets("t.csv", &text, &ColumnMap::default()).unwrap()[0];
+        assert_eq!(
+            (t.pm_dec_mas_per_yr, t.coord_epoch_jyear),
+            (10_000.0, 2016.0)
+        );
+        // 11 Julian years after 2016.0 the declination has grown by 110": linear motion (Meeus 1998 ch. 21).
+        let jd_2027 = crate::constants::J2000_JD + 27.0 * 365.25;
+        let (_, dec) = crate::astro::frames::radec_from_vec(&t.icrs_at(jd_2027));
+        assert!(
+            ((dec.to_degrees() - 20.0) * 3600.0 - 110.0).abs() < 1e-6,
+            "{}",
+            (dec.to_degrees() - 20.0) * 3600.0
+        );
     }
 
     #[test]
