@@ -73,7 +73,8 @@ pub fn push_rfc3339_utc(jd_utc: f64, out: &mut String) {
     buf[19] = b'.';
     put(&mut buf, 20, milli, 3);
     buf[23] = b'Z';
-    out.push_str(std::str::from_utf8(&buf).unwrap_or("0000-00-00T00:00:00.000Z"));
+    // ASCII digits and separators: each byte is one char.
+    out.extend(buf.iter().map(|&b| char::from(b)));
 }
 
 /// UTC Julian Date of local noon on `date` in `tz`.

@@ -807,6 +807,21 @@ fn events_of_target(
         .iter()
         .take_while(|&&(_, t)| t < range.end + 0.001)
     {
+        if !opts.include_unobservable {
+            // Cheap first look with the geocentric time (the site term is <= 21 ms; 1 s of margin): skip
+            // transits whose in-transit part misses the dark time of the neighbouring nights.
+            let k = nights.partition_point(|nt| nt.window.start <= geo);
+            let m = 1.0 / 86_400.0;
+            let near_dark = nights[k.saturating_sub(2)..(k + 1).min(nights.len())]
+                .iter()
+                .any(|nt| {
+                    nt.dark
+                        .is_some_and(|d| geo + half + m > d.start && geo - half - m < d.end)
+                });
+            if !near_dark {
+                continue;
+            }
+        }
         let mid = if eph.system == crate::astro::barycentric::TimeSystem::JdUtc {
             geo
         } else {

@@ -200,7 +200,9 @@ fn push_digits(mut v: u64, width: usize, out: &mut String) {
         digits[i] = b'0' + (v % 10) as u8;
         v /= 10;
     }
-    out.push_str(std::str::from_utf8(&digits[i..]).unwrap_or("0"));
+    for &b in &digits[i..] {
+        out.push(char::from(b));
+    }
 }
 
 /// Append one CSV row per event (the columns of [`EVENT_FIELDS`]) to `out`. Formats numbers with fixed
