@@ -79,17 +79,9 @@ fn fnv1a64(bytes: &[u8]) -> u64 {
     h
 }
 
-/// Lower-case ASCII letters and digits, other runs turned into single hyphens.
+/// A name's slug, at most 40 characters, for UIDs.
 fn slug(text: &str) -> String {
-    let mut out = String::new();
-    for c in text.chars() {
-        if c.is_ascii_alphanumeric() {
-            out.push(c.to_ascii_lowercase());
-        } else if !out.ends_with('-') && !out.is_empty() {
-            out.push('-');
-        }
-    }
-    out.trim_end_matches('-').chars().take(40).collect()
+    crate::names::slug(text).chars().take(40).collect()
 }
 
 /// The UID of the event of `target` at `epoch` at `site`: readable slugs plus a hash of the exact names

@@ -726,22 +726,7 @@ pub fn season_svg_linked(
 
 /// File name of an event's night chart inside the HTML bundle: `<site>-<target>-<night>.svg`, slugged.
 pub fn night_chart_file(e: &Event, sites: &[Site], targets: &[Target]) -> String {
-    let slug = |t: &str| -> String {
-        let s: String = t
-            .chars()
-            .map(|c| {
-                if c.is_ascii_alphanumeric() {
-                    c.to_ascii_lowercase()
-                } else {
-                    '-'
-                }
-            })
-            .collect();
-        s.split('-')
-            .filter(|p| !p.is_empty())
-            .collect::<Vec<_>>()
-            .join("-")
-    };
+    let slug = crate::names::slug;
     format!(
         "{}-{}-{}.svg",
         slug(&sites[e.site_index].name),

@@ -44,6 +44,19 @@ enum Command {
 /// Where the sites and targets come from, and which of them to use.
 #[derive(Args, Debug)]
 struct InputArgs {
+    #[command(flatten)]
+    files: FileArgs,
+    /// Only this site (repeatable; case-insensitive)
+    #[arg(long = "site", value_name = "NAME")]
+    site_names: Vec<String>,
+    /// Only this target (repeatable; case-insensitive)
+    #[arg(long = "target", value_name = "NAME")]
+    target_names: Vec<String>,
+}
+
+/// The sites and targets files.
+#[derive(Args, Debug)]
+struct FileArgs {
     /// Sites file (TOML). Default: ./sites.toml
     #[arg(long, value_name = "FILE")]
     sites: Option<PathBuf>,
@@ -53,12 +66,6 @@ struct InputArgs {
     /// Read differently named target columns: ours=theirs,... (e.g. period_days=orb_period,t0=mid_time)
     #[arg(long, value_name = "MAP")]
     columns: Option<String>,
-    /// Only this site (repeatable; case-insensitive)
-    #[arg(long = "site", value_name = "NAME")]
-    site_names: Vec<String>,
-    /// Only this target (repeatable; case-insensitive)
-    #[arg(long = "target", value_name = "NAME")]
-    target_names: Vec<String>,
 }
 
 /// A range of "night of" dates.
@@ -251,8 +258,12 @@ fn load_targets(
 
 /// Load, parse and select sites and targets.
 fn load(input: &InputArgs) -> Result<(Vec<Site>, Vec<Target>)> {
-    let sites = load_sites(&input.sites, &input.site_names)?;
-    let targets = load_targets(&input.targets, &input.columns, &input.target_names)?;
+    let sites = load_sites(&input.files.sites, &input.site_names)?;
+    let targets = load_targets(
+        &input.files.targets,
+        &input.files.columns,
+        &input.target_names,
+    )?;
     Ok((sites, targets))
 }
 
@@ -491,15 +502,8 @@ struct TonightArgs {
     /// The local date on which the night begins. Default: the current or coming night at the site
     #[arg(long, value_name = "YYYY-MM-DD")]
     date: Option<NaiveDate>,
-    /// Sites file (TOML). Default: ./sites.toml
-    #[arg(long, value_name = "FILE")]
-    sites: Option<PathBuf>,
-    /// Targets file (CSV). Default: ./targets.csv
-    #[arg(long, value_name = "FILE")]
-    targets: Option<PathBuf>,
-    /// Read differently named target columns: ours=theirs,...
-    #[arg(long, value_name = "MAP")]
-    columns: Option<String>,
+    #[command(flatten)]
+    files: FileArgs,
     #[command(flatten)]
     block: BlockArgs,
     /// Output format
@@ -511,8 +515,8 @@ struct TonightArgs {
 }
 
 fn run_tonight(args: TonightArgs) -> Result<()> {
-    let site = one_site(&args.sites, &args.site)?;
-    let targets = load_targets(&args.targets, &args.columns, &args.target_names)?;
+    let site = one_site(&args.files.sites, &args.site)?;
+    let targets = load_targets(&args.files.targets, &args.files.columns, &args.target_names)?;
     let now_jd = dipwatch::civil::jd_from_datetime(&chrono::Utc::now());
     let current_night = dipwatch::civil::night_of(now_jd, site.tz);
     let date = args.date.unwrap_or(current_night);
@@ -642,20 +646,7 @@ fn site_file_name(out: &Path, site: &str) -> PathBuf {
         .file_stem()
         .map(|s| s.to_string_lossy().to_string())
         .unwrap_or_else(|| "calendar".into());
-    let slug: String = site
-        .chars()
-        .map(|c| {
-            if c.is_ascii_alphanumeric() {
-                c.to_ascii_lowercase()
-            } else {
-                '-'
-            }
-        })
-        .collect::<String>()
-        .split('-')
-        .filter(|p| !p.is_empty())
-        .collect::<Vec<_>>()
-        .join("-");
+    let slug = dipwatch::names::slug(site);
     out.with_file_name(format!("{stem}-{slug}.ics"))
 }
 
@@ -1115,15 +1106,8 @@ enum ChartCommand {
 
 #[derive(Args, Debug)]
 struct ChartNightArgs {
-    /// Sites file (TOML). Default: ./sites.toml
-    #[arg(long, value_name = "FILE")]
-    sites: Option<PathBuf>,
-    /// Targets file (CSV). Default: ./targets.csv
-    #[arg(long, value_name = "FILE")]
-    targets: Option<PathBuf>,
-    /// Read differently named target columns: ours=theirs,...
-    #[arg(long, value_name = "MAP")]
-    columns: Option<String>,
+    #[command(flatten)]
+    files: FileArgs,
     /// The site
     #[arg(long, value_name = "NAME")]
     site: String,
@@ -1141,10 +1125,10 @@ struct ChartNightArgs {
 }
 
 fn run_chart_night(args: ChartNightArgs) -> Result<()> {
-    let site = one_site(&args.sites, &args.site)?;
+    let site = one_site(&args.files.sites, &args.site)?;
     let targets = load_targets(
-        &args.targets,
-        &args.columns,
+        &args.files.targets,
+        &args.files.columns,
         std::slice::from_ref(&args.target),
     )?;
     let opts = args.block.options(args.date, args.date, true)?;

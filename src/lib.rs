@@ -12,6 +12,7 @@ pub mod civil;
 pub mod constants;
 pub mod ephemeris;
 pub mod inputs;
+pub mod names;
 pub mod plan;
 pub mod refine;
 pub mod report;
