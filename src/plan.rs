@@ -411,7 +411,7 @@ fn covers(list: &[Interval], whole: &Interval) -> bool {
 
 /// The usable parts of `block` for a target at a site on a night, and the reasons for any cut.
 ///
-/// Given: the target, site and night; `block` (UTC JD) inside or around that night; `earth` covering it.
+/// Given: the target, site and night; `block` (UTC JD) inside or around that night (tables are built for it).
 /// Returns sorted disjoint intervals (edges to 0.5 s) where every constraint holds, and the constraints that
 /// cut something. This is the root-finding path that [`usable_minutes_oracle`] checks.
 pub fn usable_intervals(
@@ -419,10 +419,8 @@ pub fn usable_intervals(
     target: &Target,
     night: &Night,
     block: &Interval,
-    earth: &EarthTable,
 ) -> (Vec<Interval>, Vec<Reason>) {
     let mid = 0.5 * (block.start + block.end);
-    let _ = earth;
     let tables = SkyTables::new(block.start - 1.0, block.end + 1.0);
     let track = Track::new(&target.icrs_at(mid), mid, site, &tables);
     usable_intervals_on_track(&track, site, night, block, &tables)

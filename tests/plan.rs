@@ -358,7 +358,7 @@ fn check_against_oracle(
         pm_dec_mas_per_yr: 0.0,
         coord_epoch_jyear: 2000.0,
     };
-    let (fast, _) = usable_intervals(&s, &t, &night, &block, &earth);
+    let (fast, _) = usable_intervals(&s, &t, &night, &block);
     let slow = usable_minutes_oracle(&s, &t, &night, block.start, block.end, &earth);
     for (i, ok) in slow.iter().enumerate() {
         let tm = block.start + i as f64 / 1440.0;
