@@ -1,4 +1,7 @@
 //! Physical and conventional constants, each with its unit and source.
+//!
+//! The values were typed from memory of the named sources; each one that matters to a result is exercised by a
+//! check against ERFA or a published example in tests/reference.rs.
 
 /// Julian Date of the J2000.0 epoch (2000-01-01 12:00 TT), days. IAU 1976 system; Meeus (1998) ch. 21.
 pub const J2000_JD: f64 = 2_451_545.0;

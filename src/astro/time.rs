@@ -58,8 +58,8 @@ pub fn calendar_from_jd(jd: f64) -> (i32, u32, f64) {
 }
 
 /// Start of each TAI - UTC step since 1972 as (MJD of 0h UTC, TAI - UTC in s).
-/// Source: IERS Bulletin C (the leap-second history it lists; latest step 2017-01-01, still current in
-/// Bulletin C 70, 2025). Before 1972 UTC ran at a different rate from TAI; dipwatch rejects such dates.
+/// Source: IERS Bulletin C (the leap-second history it lists; latest step 2017-01-01), table typed from memory
+/// and checked against erfa.dat for every date 1972-2030 (tests/reference.rs). Before 1972 UTC ran at a different rate from TAI; dipwatch rejects such dates.
 pub const LEAP_SECONDS: [(f64, f64); 28] = [
     (41_317.0, 10.0), // 1972-01-01
     (41_499.0, 11.0), // 1972-07-01
