@@ -68,6 +68,20 @@ struct FileArgs {
     columns: Option<String>,
 }
 
+/// Where and how a command writes its result.
+#[derive(Args, Debug)]
+struct OutputArgs {
+    /// Output format
+    #[arg(long, value_enum, default_value_t = Format::Table)]
+    format: Format,
+    /// Show UTC instead of site local time in the table
+    #[arg(long)]
+    utc: bool,
+    /// Write to this file (atomically) instead of standard output
+    #[arg(long, value_name = "FILE")]
+    out: Option<PathBuf>,
+}
+
 /// A range of "night of" dates.
 #[derive(Args, Debug)]
 struct RangeArgs {
@@ -157,18 +171,11 @@ struct PlanArgs {
     range: RangeArgs,
     #[command(flatten)]
     block: BlockArgs,
-    /// Output format
-    #[arg(long, value_enum, default_value_t = Format::Table)]
-    format: Format,
-    /// Show UTC instead of site local time in the table
-    #[arg(long)]
-    utc: bool,
     /// Also list transits that cannot be observed, with the reasons
     #[arg(long)]
     include_unobservable: bool,
-    /// Write to this file (atomically) instead of standard output
-    #[arg(long, value_name = "FILE")]
-    out: Option<PathBuf>,
+    #[command(flatten)]
+    output: OutputArgs,
 }
 
 /// Render an error chain for the user: input errors list every problem; others show their causes.
@@ -338,16 +345,16 @@ fn run_plan(args: PlanArgs) -> Result<()> {
         .block
         .options(first_night, last_night, args.include_unobservable)?;
     let (sites, targets) = load(&args.input)?;
-    if args.format == Format::Csv {
-        return stream_plan_csv(&sites, &targets, &opts, args.out.as_deref());
+    if args.output.format == Format::Csv {
+        return stream_plan_csv(&sites, &targets, &opts, args.output.out.as_deref());
     }
     let result = plan(&sites, &targets, &opts);
-    let text = match args.format {
-        Format::Table => report::plan_table(&result, &sites, &targets, &opts, args.utc),
+    let text = match args.output.format {
+        Format::Table => report::plan_table(&result, &sites, &targets, &opts, args.output.utc),
         Format::Csv => report::plan_csv(&result, &sites, &targets),
         Format::Json => report::plan_json(&result, &sites, &targets, &opts),
     };
-    emit(&text, args.out.as_deref())
+    emit(&text, args.output.out.as_deref())
 }
 
 /// Nights planned at a time when streaming CSV: bounds memory at catalogue scale.
@@ -569,15 +576,8 @@ struct NightsArgs {
     /// Number of nights
     #[arg(long, value_name = "N", default_value_t = 14)]
     days: u32,
-    /// Output format
-    #[arg(long, value_enum, default_value_t = Format::Table)]
-    format: Format,
-    /// Show UTC instead of site local time in the table
-    #[arg(long)]
-    utc: bool,
-    /// Write to this file (atomically) instead of standard output
-    #[arg(long, value_name = "FILE")]
-    out: Option<PathBuf>,
+    #[command(flatten)]
+    output: OutputArgs,
 }
 
 fn run_nights(args: NightsArgs) -> Result<()> {
@@ -592,12 +592,12 @@ fn run_nights(args: NightsArgs) -> Result<()> {
         .take_while(|d| *d <= last)
         .map(|d| dipwatch::almanac::night_almanac(&site, d))
         .collect();
-    let text = match args.format {
-        Format::Table => report::nights_table(&site, &nights, args.utc),
+    let text = match args.output.format {
+        Format::Table => report::nights_table(&site, &nights, args.output.utc),
         Format::Csv => report::nights_csv(&nights),
         Format::Json => report::nights_json(&site, &nights),
     };
-    emit(&text, args.out.as_deref())
+    emit(&text, args.output.out.as_deref())
 }
 
 #[derive(Args, Debug)]
@@ -991,6 +991,18 @@ struct ChoiceArgs {
     allow_repeats: bool,
 }
 
+impl ChoiceArgs {
+    fn weights(&self) -> dipwatch::schedule::ScoreWeights {
+        dipwatch::schedule::ScoreWeights {
+            coverage: self.weight_coverage,
+            verdict: self.weight_verdict,
+            airmass: self.weight_airmass,
+            moon: self.weight_moon,
+            sigma: self.weight_sigma,
+        }
+    }
+}
+
 #[derive(Args, Debug)]
 struct ScheduleArgs {
     #[command(flatten)]
@@ -1001,15 +1013,8 @@ struct ScheduleArgs {
     block: BlockArgs,
     #[command(flatten)]
     choice: ChoiceArgs,
-    /// Output format
-    #[arg(long, value_enum, default_value_t = Format::Table)]
-    format: Format,
-    /// Show UTC instead of site local time in the table
-    #[arg(long)]
-    utc: bool,
-    /// Write to this file (atomically) instead of standard output
-    #[arg(long, value_name = "FILE")]
-    out: Option<PathBuf>,
+    #[command(flatten)]
+    output: OutputArgs,
 }
 
 /// Plan per telescope (each with its own altitude limit) and choose the blocks.
@@ -1032,13 +1037,7 @@ fn make_schedule(
     ] {
         check_finite(name, w, 0.0, 1000.0)?;
     }
-    let weights = dipwatch::schedule::ScoreWeights {
-        coverage: c.weight_coverage,
-        verdict: c.weight_verdict,
-        airmass: c.weight_airmass,
-        moon: c.weight_moon,
-        sigma: c.weight_sigma,
-    };
+    let weights = c.weights();
     let mut tels = Vec::new();
     for (si, site) in sites.iter().enumerate() {
         // Telescopes sharing an altitude limit share one plan.
@@ -1074,15 +1073,9 @@ fn run_schedule(args: ScheduleArgs) -> Result<()> {
     let opts = args.block.options(first_night, last_night, false)?;
     let (sites, targets) = load(&args.input)?;
     let (tels, chosen) = make_schedule(&sites, &targets, &opts, &args.choice)?;
-    let weights = dipwatch::schedule::ScoreWeights {
-        coverage: args.choice.weight_coverage,
-        verdict: args.choice.weight_verdict,
-        airmass: args.choice.weight_airmass,
-        moon: args.choice.weight_moon,
-        sigma: args.choice.weight_sigma,
-    };
-    let text = match args.format {
-        Format::Table => report::schedule_table(&chosen, &tels, &sites, &targets, args.utc),
+    let weights = args.choice.weights();
+    let text = match args.output.format {
+        Format::Table => report::schedule_table(&chosen, &tels, &sites, &targets, args.output.utc),
         Format::Csv => report::schedule_csv(&chosen, &tels, &sites, &targets),
         Format::Json => report::schedule_json(
             &chosen,
@@ -1093,7 +1086,7 @@ fn run_schedule(args: ScheduleArgs) -> Result<()> {
             args.choice.changeover,
         ),
     };
-    emit(&text, args.out.as_deref())
+    emit(&text, args.output.out.as_deref())
 }
 
 #[derive(Subcommand, Debug)]

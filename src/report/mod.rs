@@ -82,6 +82,35 @@ fn styled_table(
     table
 }
 
+/// The first cells of a table row about an event: night (as given), target, verdict, coverage, block, and the
+/// ingress, mid-transit and egress times; shared by the plan and schedule tables.
+fn event_cells(
+    night: String,
+    target: &str,
+    e: &crate::plan::Event,
+    site: &Site,
+    utc: bool,
+) -> Vec<comfy_table::Cell> {
+    use comfy_table::{Cell, CellAlignment};
+    vec![
+        Cell::new(night),
+        Cell::new(target),
+        Cell::new(e.verdict.label()),
+        Cell::new(format!("{:.0}%", e.coverage * 100.0)).set_alignment(CellAlignment::Right),
+        Cell::new(format!(
+            "{}-{}",
+            hhmm(e.block_start_utc, site, utc),
+            hhmm(e.block_end_utc, site, utc)
+        )),
+        Cell::new(format!(
+            "{} {} {}",
+            hhmm(e.ingress_utc, site, utc),
+            hhmm(e.mid_utc, site, utc),
+            hhmm(e.egress_utc, site, utc)
+        )),
+    ]
+}
+
 /// Write CSV rows from serializable records whose JSON form has scalar or list values: null -> empty, lists
 /// joined with `;`. The header is `fields`.
 fn csv_from_records<T: serde::Serialize>(fields: &[&str], records: &[T]) -> String {

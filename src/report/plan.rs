@@ -438,23 +438,8 @@ pub fn plan_table(
                 if !limits.is_empty() {
                     notes.push(limits.join(", "));
                 }
-                table.add_row(vec![
-                    Cell::new(night_cell),
-                    Cell::new(&t.name),
-                    Cell::new(e.verdict.label()),
-                    Cell::new(format!("{:.0}%", e.coverage * 100.0))
-                        .set_alignment(CellAlignment::Right),
-                    Cell::new(format!(
-                        "{}-{}",
-                        hhmm(e.block_start_utc, site, utc),
-                        hhmm(e.block_end_utc, site, utc)
-                    )),
-                    Cell::new(format!(
-                        "{} {} {}",
-                        hhmm(e.ingress_utc, site, utc),
-                        hhmm(e.mid_utc, site, utc),
-                        hhmm(e.egress_utc, site, utc)
-                    )),
+                let mut cells = super::event_cells(night_cell, &t.name, e, site, utc);
+                cells.extend([
                     Cell::new(format!("{:.1}m", e.sigma_min)).set_alignment(CellAlignment::Right),
                     Cell::new(format!(
                         "{:.0}/{:.0}/{:.0}",
@@ -467,6 +452,7 @@ pub fn plan_table(
                     )),
                     Cell::new(notes.join(" ")),
                 ]);
+                table.add_row(cells);
             }
             let last = table.column_count() - 1;
             for (i, col) in table.column_iter_mut().enumerate() {

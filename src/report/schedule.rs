@@ -1,6 +1,6 @@
 //! `schedule` outputs: the chosen blocks per telescope and night.
 
-use super::{hhmm, round, EventRecord, EVENT_FIELDS};
+use super::{round, EventRecord, EVENT_FIELDS};
 use crate::inputs::sites::Site;
 use crate::inputs::targets::Target;
 use crate::schedule::{Chosen, TelescopeEvents};
@@ -135,26 +135,10 @@ pub fn schedule_table(
                 ),
                 None => String::new(),
             };
-            table.add_row(vec![
-                Cell::new(night),
-                Cell::new(&targets[e.target_index].name),
-                Cell::new(e.verdict.label()),
-                Cell::new(format!("{:.0}%", e.coverage * 100.0))
-                    .set_alignment(CellAlignment::Right),
-                Cell::new(format!(
-                    "{}-{}",
-                    hhmm(e.block_start_utc, site, utc),
-                    hhmm(e.block_end_utc, site, utc)
-                )),
-                Cell::new(format!(
-                    "{} {} {}",
-                    hhmm(e.ingress_utc, site, utc),
-                    hhmm(e.mid_utc, site, utc),
-                    hhmm(e.egress_utc, site, utc)
-                )),
-                Cell::new(format!("{:.2}", c.score)).set_alignment(CellAlignment::Right),
-                Cell::new(note),
-            ]);
+            let mut cells = super::event_cells(night, &targets[e.target_index].name, e, site, utc);
+            cells.push(Cell::new(format!("{:.2}", c.score)).set_alignment(CellAlignment::Right));
+            cells.push(Cell::new(note));
+            table.add_row(cells);
         }
         out.push_str(&table.to_string());
         out.push('\n');
