@@ -23,6 +23,7 @@ fn options(nights: i64) -> PlanOptions {
         baseline_before_min: 30.0,
         baseline_after_min: 30.0,
         min_coverage: 0.0,
+        min_in_transit_min: 0.0,
         include_unobservable: false,
     }
 }

@@ -8,7 +8,7 @@ use crate::astro::frames::EarthOrientation;
 use crate::astro::sky::{alt_az, moon_apparent, topocentric};
 use crate::astro::tables::SkyTables;
 use crate::astro::time::JdUtc;
-use crate::civil::local_noon_jd;
+use crate::civil::night_start_jd;
 use crate::constants::{
     ASTRONOMICAL_TWILIGHT_ALT_DEG, CIVIL_TWILIGHT_ALT_DEG, NAUTICAL_TWILIGHT_ALT_DEG,
     SUNRISE_ALT_DEG,
@@ -39,7 +39,7 @@ pub struct LevelCrossings {
 pub struct NightAlmanac {
     /// Local date on which the night begins.
     pub night_of: NaiveDate,
-    /// Local noon to the next local noon.
+    /// Local mean solar noon to the next one (see [`night_window`]).
     pub window: Interval,
     /// Sunset and sunrise (Sun centre at -0.833 deg).
     pub sun: LevelCrossings,
@@ -92,12 +92,26 @@ pub fn moon_alt_deg(jd_utc: f64, site: &Site) -> f64 {
     alt_az(&topo, &site.observer, last).0.to_degrees()
 }
 
+/// The window of the night of `date` at `site`: from the local mean solar noon that opens it to the next one,
+/// UTC JD (see [`crate::civil::night_start_jd`]). The solar night always lies inside one such window.
+pub fn night_window(site: &Site, date: NaiveDate) -> Interval {
+    Interval {
+        start: night_start_jd(date, site.lon_deg, site.tz),
+        end: night_start_jd(date.succ_opt().unwrap_or(date), site.lon_deg, site.tz),
+    }
+}
+
+/// The dark interval of a night: the run of `window` with the Sun below the site's darkness level throughout
+/// (the longest, should the Sun graze the level near a window edge), `None` if it never gets that dark.
+pub fn dark_interval(site: &Site, window: &Interval, tables: &SkyTables) -> Option<Interval> {
+    level(site, site.darkness_alt_deg, window, tables)
+        .state
+        .below_interval(window)
+}
+
 /// The almanac for the night that begins on `night_of` at `site`.
 pub fn night_almanac(site: &Site, night_of: NaiveDate) -> NightAlmanac {
-    let window = Interval {
-        start: local_noon_jd(night_of, site.tz),
-        end: local_noon_jd(night_of.succ_opt().unwrap_or(night_of), site.tz),
-    };
+    let window = night_window(site, night_of);
     let tables = SkyTables::new(window.start - 0.5, window.end + 0.5);
     let sun = level(site, SUNRISE_ALT_DEG, &window, &tables);
     let civil = level(site, CIVIL_TWILIGHT_ALT_DEG, &window, &tables);
@@ -108,14 +122,7 @@ pub fn night_almanac(site: &Site, night_of: NaiveDate) -> NightAlmanac {
         .find(|l| l.alt_deg == site.darkness_alt_deg)
         .copied()
         .unwrap_or_else(|| level(site, site.darkness_alt_deg, &window, &tables));
-    let dark = match site_level.state {
-        SunCrossing::AlwaysAbove => None,
-        SunCrossing::AlwaysBelow => Some(window),
-        SunCrossing::Crosses { down, up } => Some(Interval {
-            start: down.unwrap_or(window.start),
-            end: up.unwrap_or(window.end),
-        }),
-    };
+    let dark = site_level.state.below_interval(&window);
     let mut notes = Vec::new();
     for (name, l) in [
         ("sunset/sunrise", &sun),

@@ -139,11 +139,11 @@ pub fn description(e: &Event, site: &Site, target: &Target) -> String {
     let sig = format!("+-{:.1} min", e.sigma_min);
     let mut lines = vec![
         format!(
-            "{} epoch {}: {}, {:.0}% of the transit in usable time",
+            "{} epoch {}: {}, {} of the transit in usable time",
             target.name,
             e.epoch,
             e.verdict.label(),
-            e.coverage * 100.0
+            crate::report::percent_floor(e.coverage)
         ),
         format!("Night of {} at {}", e.night_of, site.name),
         format!(

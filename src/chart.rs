@@ -133,8 +133,8 @@ pub fn night_range(almanac: &NightAlmanac, events: &[Event]) -> NightChartRange 
     let mut start = almanac.sun.dusk.map(|t| t - 1.0 / 24.0).unwrap_or(w.start);
     let mut end = almanac.sun.dawn.map(|t| t + 1.0 / 24.0).unwrap_or(w.end);
     for e in events {
-        start = start.min(e.block_start_utc - 0.25 / 24.0);
-        end = end.max(e.block_end_utc + 0.25 / 24.0);
+        start = start.min(e.full_block_start_utc - 0.25 / 24.0);
+        end = end.max(e.full_block_end_utc + 0.25 / 24.0);
     }
     NightChartRange {
         start: start.max(w.start),
@@ -171,9 +171,9 @@ pub fn night_chart_svg(
     );
     let sub = match events.iter().find(|e| e.observable) {
         Some(e) => format!(
-            "{}: {:.0}% of the transit usable; epoch {}, timing 1-sigma {:.1} min",
+            "{}: {} of the transit usable; epoch {}, timing 1-sigma {:.1} min",
             e.verdict.label(),
-            e.coverage * 100.0,
+            crate::report::percent_floor(e.coverage),
             e.epoch,
             e.sigma_min
         ),
@@ -246,9 +246,24 @@ pub fn night_chart_svg(
         i = j + 1;
     }
 
-    // Blocks: baselines dotted, in-transit window hatched, sigma bands, contact lines.
+    // Blocks: the observable block dotted (the planned block dashed where a limit clips it), in-transit window
+    // hatched, sigma bands, contact lines.
     for e in events {
         let margin = sigma_k * e.sigma_min / 1440.0;
+        if e.block_start_utc > e.full_block_start_utc || e.block_end_utc < e.full_block_end_utc {
+            let (fs, fe) = (
+                e.full_block_start_utc.max(range.start),
+                e.full_block_end_utc.min(range.end),
+            );
+            svg.rect(
+                xs(fs),
+                y0,
+                xs(fe) - xs(fs),
+                y1 - y0,
+                r##"fill="none" stroke="#b9771e" stroke-width="1" stroke-dasharray="4 3""##,
+                "planned block (clipped by a limit)",
+            );
+        }
         let (bs, be) = (
             e.block_start_utc.max(range.start),
             e.block_end_utc.min(range.end),
@@ -674,12 +689,12 @@ pub fn season_svg_linked(
                     let s = (cell - 3.0) / m as f64;
                     let x = label_w + ci as f64 * cell + 1.5 + j as f64 * s;
                     let tip = format!(
-                        "{} epoch {} on {}: {} {:.0}%",
+                        "{} epoch {} on {}: {} {}",
                         targets[ti].name,
                         e.epoch,
                         d,
                         e.verdict.label(),
-                        e.coverage * 100.0
+                        crate::report::percent_floor(e.coverage)
                     );
                     if let Some(link) = link {
                         svg.raw(&format!(r##"<a href="{}">"##, esc(&link(e))));
@@ -755,12 +770,12 @@ pub fn season_html(
         for e in &sp.events {
             let _ = writeln!(
                 html,
-                r##"<li><a href="{}">{} {}, {} ({:.0}%)</a></li>"##,
+                r##"<li><a href="{}">{} {}, {} ({})</a></li>"##,
                 esc(&link(e)),
                 e.night_of,
                 esc(&targets[e.target_index].name),
                 e.verdict.label(),
-                e.coverage * 100.0
+                crate::report::percent_floor(e.coverage)
             );
         }
         html.push_str("</ul>\n");

@@ -1,12 +1,14 @@
 //! Civil time: UTC Julian Dates <-> calendar instants, site-local dates and the "night of" convention.
 //!
-//! A night belongs to the local date on which it begins ("night of"); its window runs from local noon of that
-//! date to local noon of the next. Local times come from the IANA database through `chrono-tz`; a local noon
-//! always exists (no zone moves its clocks at noon), and instants are converted from UTC, never from
-//! ambiguous local wall times.
+//! A night runs from the site's local mean solar noon (from its longitude alone) to the next one, so the
+//! whole solar night lies inside it whatever zone the site keeps: a site far from its zone's meridian (or a
+//! longitude with the wrong sign) cannot split a night across two windows. It is labelled with the civil date,
+//! in the site's zone, on which it begins ("night of"): the night of date D opens at the mean solar noon nearest
+//! to civil noon of D in the zone's standard time. Local times come from the IANA database through `chrono-tz`,
+//! and instants are converted from UTC, never from ambiguous local wall times.
 
-use chrono::{DateTime, Duration, NaiveDate, NaiveTime, TimeZone, Utc};
-use chrono_tz::Tz;
+use chrono::{DateTime, NaiveDate, NaiveTime, TimeZone, Utc};
+use chrono_tz::{OffsetComponents, Tz};
 
 /// Julian Date of the Unix epoch 1970-01-01T00:00:00Z.
 const UNIX_EPOCH_JD: f64 = 2_440_587.5;
@@ -88,10 +90,50 @@ pub fn local_noon_jd(date: NaiveDate, tz: Tz) -> f64 {
     jd_from_datetime(&local.with_timezone(&Utc))
 }
 
-/// The "night of" date of an instant: the local date of the preceding local noon.
-pub fn night_of(jd_utc: f64, tz: Tz) -> NaiveDate {
-    let local = datetime_from_jd(jd_utc).with_timezone(&tz);
-    (local.naive_local() - Duration::hours(12)).date()
+/// Julian Date of 1970-01-01T12:00:00Z: JD day numbers start at noon UT.
+const UNIX_NOON_JD: f64 = 2_440_588.0;
+
+/// The zone's standard (no daylight saving) offset from UTC on `date`, hours east +.
+pub fn standard_offset_hours(date: NaiveDate, tz: Tz) -> f64 {
+    let noon = date.and_time(NaiveTime::from_hms_opt(12, 0, 0).expect("valid time"));
+    let offset = tz.offset_from_utc_datetime(&noon);
+    offset.base_utc_offset().num_seconds() as f64 / 3600.0
+}
+
+/// Hours from the zone's standard time to the site's mean solar time (longitude / 15), wrapped to -12..12:
+/// positive when the Sun culminates before 12:00 standard time. A few tens of minutes is normal; several hours
+/// means a distant zone or a longitude with the wrong sign.
+pub fn solar_minus_zone_hours(lon_deg: f64, date: NaiveDate, tz: Tz) -> f64 {
+    let d = lon_deg / 15.0 - standard_offset_hours(date, tz);
+    (d + 12.0).rem_euclid(24.0) - 12.0
+}
+
+/// UTC Julian Date of the local mean solar noon that opens the night of `date` at longitude `lon_deg`
+/// (east +) in zone `tz`: the mean solar noon (12 h - longitude / 15 h UT) nearest to civil noon of `date` in
+/// the zone's standard time. Consecutive dates give consecutive solar noons, exactly one mean solar day apart
+/// (unless the zone's standard offset itself changes by law).
+pub fn night_start_jd(date: NaiveDate, lon_deg: f64, tz: Tz) -> f64 {
+    let day = date.signed_duration_since(NaiveDate::default()).num_days() as f64;
+    let shift = (lon_deg / 360.0 - standard_offset_hours(date, tz) / 24.0).round();
+    UNIX_NOON_JD + day + shift - lon_deg / 360.0
+}
+
+/// The "night of" date of an instant at longitude `lon_deg` in zone `tz`: the date whose night (see
+/// [`night_start_jd`]) holds the instant.
+pub fn night_of(jd_utc: f64, lon_deg: f64, tz: Tz) -> NaiveDate {
+    let guess = datetime_from_jd(jd_utc + lon_deg / 360.0 - 0.5).date_naive();
+    let mut d = guess;
+    // The standard-offset shift moves the label by at most a day either way.
+    for _ in 0..3 {
+        if night_start_jd(d, lon_deg, tz) > jd_utc {
+            d = d.pred_opt().unwrap_or(d);
+        } else if night_start_jd(d.succ_opt().unwrap_or(d), lon_deg, tz) <= jd_utc {
+            d = d.succ_opt().unwrap_or(d);
+        } else {
+            break;
+        }
+    }
+    d
 }
 
 /// Local wall time of an instant as `HH:MM` in `tz`; inside the hour that a clock change repeats, the zone
@@ -147,9 +189,60 @@ mod tests {
     fn night_of_uses_the_evening_date() {
         let tz: Tz = "America/Santiago".parse().unwrap();
         let d = NaiveDate::from_ymd_opt(2027, 3, 10).unwrap();
-        let noon = local_noon_jd(d, tz);
-        assert_eq!(night_of(noon + 0.3, tz), d);
-        assert_eq!(night_of(noon + 0.99, tz), d);
-        assert_eq!(night_of(noon + 1.01, tz), d.succ_opt().unwrap());
+        let start = night_start_jd(d, -70.4, tz);
+        // Mean solar noon at 70.4 W: 12:00 + 4 h 41.6 min UT (longitude / 15).
+        assert!(
+            (start - (2_461_475.0 + 70.4 / 360.0)).abs() < 1e-9,
+            "{start}"
+        );
+        assert_eq!(night_of(start + 0.3, -70.4, tz), d);
+        assert_eq!(night_of(start + 0.99, -70.4, tz), d);
+        assert_eq!(night_of(start + 1.01, -70.4, tz), d.succ_opt().unwrap());
+    }
+
+    #[test]
+    fn nights_tile_time_for_any_zone_and_longitude() {
+        // Every instant belongs to exactly one night, consecutive nights are one mean solar day apart, and the
+        // label is the civil date at which the night opens (within a day for far zones).
+        let zones = [
+            "America/Santiago",
+            "Asia/Shanghai",
+            "Pacific/Kiritimati",
+            "Europe/Madrid",
+            "Etc/GMT+12",
+        ];
+        for zone in zones {
+            let tz: Tz = zone.parse().unwrap();
+            for lon in [-179.0, -120.5, -70.4, 0.0, 8.6, 70.4, 87.6, 150.0, 179.9] {
+                let mut d = NaiveDate::from_ymd_opt(2027, 1, 1).unwrap();
+                for _ in 0..400 {
+                    let a = night_start_jd(d, lon, tz);
+                    let next = d.succ_opt().unwrap();
+                    let b = night_start_jd(next, lon, tz);
+                    assert!((b - a - 1.0).abs() < 1e-9, "{zone} {lon} {d}: {a} {b}");
+                    assert_eq!(night_of(a + 1e-6, lon, tz), d, "{zone} {lon}");
+                    assert_eq!(night_of(b - 1e-6, lon, tz), d, "{zone} {lon}");
+                    d = next;
+                }
+            }
+        }
+    }
+
+    #[test]
+    fn solar_offset_of_real_and_flipped_sites() {
+        let date = NaiveDate::from_ymd_opt(2027, 6, 1).unwrap();
+        let santiago: Tz = "America/Santiago".parse().unwrap();
+        // 70.4 W on UTC-4: mean solar time 4.69 h behind UTC, 0.69 h behind the zone.
+        assert!((solar_minus_zone_hours(-70.4, date, santiago) + 0.693).abs() < 1e-3);
+        // The sign flipped: 70.4 E is 9.4 h ahead of the zone.
+        assert!((solar_minus_zone_hours(70.4, date, santiago) - 8.693).abs() < 1e-3);
+        // 87.6 E on UTC+8: 2.16 h behind; 8.6 W on CET: 1.57 h behind; 179 E on UTC-11 is 22.93 h ahead, which wraps to
+        // 1.07 h behind.
+        let shanghai: Tz = "Asia/Shanghai".parse().unwrap();
+        assert!((solar_minus_zone_hours(87.6, date, shanghai) + 2.16).abs() < 1e-3);
+        let madrid: Tz = "Europe/Madrid".parse().unwrap();
+        assert!((solar_minus_zone_hours(-8.6, date, madrid) + 1.5733).abs() < 1e-3);
+        let samoa: Tz = "Pacific/Pago_Pago".parse().unwrap();
+        assert!((solar_minus_zone_hours(179.0, date, samoa) + 1.0667).abs() < 1e-3);
     }
 }

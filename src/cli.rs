@@ -114,6 +114,14 @@ struct BlockArgs {
         allow_negative_numbers = true
     )]
     min_coverage: f64,
+    /// Smallest usable in-transit time to list an event, minutes (at most the transit's duration)
+    #[arg(
+        long,
+        value_name = "MIN",
+        default_value_t = dipwatch::plan::DEFAULT_MIN_IN_TRANSIT_MIN,
+        allow_negative_numbers = true
+    )]
+    min_in_transit: f64,
     /// Timing margin around ingress and egress, in units of the epoch's sigma
     #[arg(
         long,
@@ -148,6 +156,7 @@ impl BlockArgs {
         include_unobservable: bool,
     ) -> Result<PlanOptions> {
         check_finite("min-coverage", self.min_coverage, 0.0, 1.0)?;
+        check_finite("min-in-transit", self.min_in_transit, 0.0, 1440.0)?;
         check_finite("sigma", self.sigma, 0.0, 10.0)?;
         check_finite("baseline-before", self.baseline_before, 0.0, 720.0)?;
         check_finite("baseline-after", self.baseline_after, 0.0, 720.0)?;
@@ -158,6 +167,7 @@ impl BlockArgs {
             baseline_before_min: self.baseline_before,
             baseline_after_min: self.baseline_after,
             min_coverage: self.min_coverage,
+            min_in_transit_min: self.min_in_transit,
             include_unobservable,
         })
     }
@@ -525,7 +535,7 @@ fn run_tonight(args: TonightArgs) -> Result<()> {
     let site = one_site(&args.files.sites, &args.site)?;
     let targets = load_targets(&args.files.targets, &args.files.columns, &args.target_names)?;
     let now_jd = dipwatch::civil::jd_from_datetime(&chrono::Utc::now());
-    let current_night = dipwatch::civil::night_of(now_jd, site.tz);
+    let current_night = dipwatch::civil::night_of(now_jd, site.lon_deg, site.tz);
     let date = args.date.unwrap_or(current_night);
     let opts = args.block.options(date, date, true)?;
     // The countdown only makes sense for the night in progress or about to begin.
@@ -1169,12 +1179,12 @@ fn run_chart_season(args: ChartSeasonArgs) -> Result<()> {
     let opts = args.block.options(first, last, false)?;
     let (sites, targets) = load(&args.input)?;
     let result = plan(&sites, &targets, &opts);
-    // Moon illuminated fraction at local midnight of the first site.
+    // Moon illuminated fraction at local mean solar midnight of the first site.
     let moon: Vec<(NaiveDate, f64)> = first
         .iter_days()
         .take_while(|d| *d <= last)
         .map(|d| {
-            let mid = dipwatch::civil::local_noon_jd(d, sites[0].tz) + 0.5;
+            let mid = dipwatch::almanac::night_window(&sites[0], d).start + 0.5;
             (
                 d,
                 dipwatch::astro::sky::sun_moon_at(

@@ -6,18 +6,16 @@
 //! the sub-intervals where it holds, found by root finding ([`crate::astro::crossings`]); their intersection is
 //! the usable time. The verdict comes from the usable run that overlaps the transit most.
 
+use crate::almanac::{dark_interval, night_window};
 use crate::astro::atmosphere::airmass_kasten_young;
 use crate::astro::barycentric::EarthTable;
-use crate::astro::crossings::{
-    intervals_where_nonnegative, sun_crossings_with, Interval, SunCrossing, DEFAULT_STEP_DAYS,
-};
+use crate::astro::crossings::{intervals_where_nonnegative, Interval, DEFAULT_STEP_DAYS};
 use crate::astro::frames::{
     alt_az_from_hadec, gmst_rad, separation_rad, wrap_pi, EarthOrientation, Vec3,
 };
 use crate::astro::sky::sun_moon_at;
 use crate::astro::tables::SkyTables;
 use crate::astro::time::{jd_tdb_from_utc, JdUtc};
-use crate::civil::local_noon_jd;
 use crate::inputs::sites::Site;
 use crate::inputs::targets::Target;
 use chrono::NaiveDate;
@@ -30,6 +28,11 @@ const SIDEREAL_RATE: f64 = 1.002_737_811_911_354_5;
 const EDGE_SLACK_DAYS: f64 = 1.0 / 86_400.0;
 /// An ephemeris whose timing sigma exceeds this fraction of the period no longer tells which transit is which.
 pub const LOST_SIGMA_FRACTION_OF_PERIOD: f64 = 0.125;
+
+/// Default smallest usable in-transit time, minutes. Common practice, no source: a partial transit is worth a
+/// night only with enough in-transit points to measure the depth and time a contact, which for ingress and
+/// egress durations of 10-30 min and cadences of 1-2 min takes about half an hour of in-transit data.
+pub const DEFAULT_MIN_IN_TRANSIT_MIN: f64 = 30.0;
 
 /// Options of a planning run.
 #[derive(Debug, Clone, PartialEq, serde::Serialize)]
@@ -46,6 +49,9 @@ pub struct PlanOptions {
     pub baseline_after_min: f64,
     /// Smallest in-transit coverage (0-1) for an event to count as observable.
     pub min_coverage: f64,
+    /// Smallest usable in-transit time for an event to count as observable, minutes (capped at the transit's
+    /// duration, so a whole short transit still counts). See [`DEFAULT_MIN_IN_TRANSIT_MIN`].
+    pub min_in_transit_min: f64,
     /// Also list events that cannot be observed, with their reasons.
     pub include_unobservable: bool,
 }
@@ -98,6 +104,8 @@ pub enum Reason {
     MoonTooClose,
     /// Some transit is usable, but less than the requested minimum coverage.
     CoverageBelowMinimum,
+    /// Some transit is usable, but less in-transit time than the run's minimum (`--min-in-transit`).
+    InTransitBelowMinimum,
     /// The timing sigma exceeds 1/8 of the period: the ephemeris is lost.
     EphemerisLost,
 }
@@ -112,6 +120,7 @@ impl Reason {
             Reason::HourAngleLimit => "hour-angle-limit",
             Reason::MoonTooClose => "moon-too-close",
             Reason::CoverageBelowMinimum => "coverage-below-minimum",
+            Reason::InTransitBelowMinimum => "in-transit-below-minimum",
             Reason::EphemerisLost => "ephemeris-lost",
         }
     }
@@ -122,7 +131,7 @@ impl Reason {
 pub struct Night {
     /// Local date on which the night begins.
     pub night_of: NaiveDate,
-    /// Local noon to the next local noon, UTC JD.
+    /// Local mean solar noon to the next, UTC JD.
     pub window: Interval,
     /// Time with the Sun below the site's darkness level, UTC JD; `None` if the Sun stays above it.
     pub dark: Option<Interval>,
@@ -149,10 +158,16 @@ pub struct Event {
     pub ingress_utc: f64,
     /// Egress (fourth contact), UTC JD.
     pub egress_utc: f64,
-    /// Block start, UTC JD.
+    /// Start of the block as it can be observed: the theoretical block clipped to the usable run (the run
+    /// itself for an observable event; the theoretical block when nothing is usable), UTC JD. What a person or
+    /// program acts on.
     pub block_start_utc: f64,
-    /// Block end, UTC JD.
+    /// End of the block as it can be observed, UTC JD.
     pub block_end_utc: f64,
+    /// Theoretical block start: ingress - k sigma - the baseline wanted before, UTC JD.
+    pub full_block_start_utc: f64,
+    /// Theoretical block end: egress + k sigma + the baseline wanted after, UTC JD.
+    pub full_block_end_utc: f64,
     /// The usable run chosen for the verdict, UTC JD, if any.
     pub usable: Option<Interval>,
     /// Timing 1-sigma, minutes.
@@ -171,7 +186,7 @@ pub struct Event {
     pub alt_mid_deg: f64,
     /// Altitude at egress, deg.
     pub alt_egress_deg: f64,
-    /// Altitude at block start, deg.
+    /// Altitude at the (clipped) block start, deg.
     pub alt_block_start_deg: f64,
     /// Altitude at block end, deg.
     pub alt_block_end_deg: f64,
@@ -226,16 +241,12 @@ pub struct Plan {
     pub lost: Vec<LostEphemeris>,
 }
 
-/// The local-noon-to-noon windows of the nights `first..=last` at a site, UTC JD.
+/// The windows (local mean solar noon to the next) of the nights `first..=last` at a site, UTC JD.
 pub fn night_windows(site: &Site, first: NaiveDate, last: NaiveDate) -> Vec<(NaiveDate, Interval)> {
     first
         .iter_days()
         .take_while(|d| *d <= last)
-        .map(|d| {
-            let start = local_noon_jd(d, site.tz);
-            let end = local_noon_jd(d.succ_opt().unwrap_or(d), site.tz);
-            (d, Interval { start, end })
-        })
+        .map(|d| (d, night_window(site, d)))
         .collect()
 }
 
@@ -255,30 +266,12 @@ pub fn nights_with(
     windows: &[(NaiveDate, Interval)],
     tables: &SkyTables,
 ) -> Vec<Night> {
-    let obs = site.observer;
     windows
         .par_iter()
-        .map(|&(d, window)| {
-            let crossing = sun_crossings_with(
-                &|t| tables.sun_alt_deg(t, &obs),
-                &|t| tables.sun_hour_angle_rad(t, &obs),
-                site.darkness_alt_deg,
-                window.start,
-                window.end,
-            );
-            let dark = match crossing {
-                SunCrossing::AlwaysAbove => None,
-                SunCrossing::AlwaysBelow => Some(window),
-                SunCrossing::Crosses { down, up } => Some(Interval {
-                    start: down.unwrap_or(window.start),
-                    end: up.unwrap_or(window.end),
-                }),
-            };
-            Night {
-                night_of: d,
-                window,
-                dark,
-            }
+        .map(|&(d, window)| Night {
+            night_of: d,
+            window,
+            dark: dark_interval(site, &window, tables),
         })
         .collect()
 }
@@ -550,8 +543,11 @@ fn evaluate(
         Some(run) => {
             let lo = ingress - margin;
             let hi = egress + margin;
-            let ingress_seen = run.start <= lo + EDGE_SLACK_DAYS;
-            let egress_seen = run.end >= hi - EDGE_SLACK_DAYS;
+            // A contact is seen when the run holds it with its timing margin on both sides.
+            let ingress_seen =
+                run.start <= lo + EDGE_SLACK_DAYS && run.end >= ingress + margin - EDGE_SLACK_DAYS;
+            let egress_seen =
+                run.end >= hi - EDGE_SLACK_DAYS && run.start <= egress - margin + EDGE_SLACK_DAYS;
             let before = ((lo - run.start) * 1440.0).max(0.0);
             let after = ((run.end - hi) * 1440.0).max(0.0);
             let full_base = before >= opts.baseline_before_min - 1.0 / 60.0
@@ -574,6 +570,12 @@ fn evaluate(
         reasons.push(Reason::CoverageBelowMinimum);
         observable = false;
     }
+    let in_transit_min = coverage * target.t14_hours * 60.0;
+    let needed_min = opts.min_in_transit_min.min(target.t14_hours * 60.0);
+    if observable && in_transit_min < needed_min - EDGE_SLACK_DAYS * 1440.0 {
+        reasons.push(Reason::InTransitBelowMinimum);
+        observable = false;
+    }
     reasons.sort();
     reasons.dedup();
     if !observable && !opts.include_unobservable {
@@ -581,6 +583,8 @@ fn evaluate(
         return None;
     }
 
+    // What can be acted on: the block clipped to the usable run.
+    let acted = run.unwrap_or(block);
     let alt_in = track.alt_deg(ingress);
     let (alt_mid, az_mid) = track.alt_az_deg(mid_utc);
     let alt_eg = track.alt_deg(egress);
@@ -602,8 +606,10 @@ fn evaluate(
         mid_utc,
         ingress_utc: ingress,
         egress_utc: egress,
-        block_start_utc: block.start,
-        block_end_utc: block.end,
+        block_start_utc: acted.start,
+        block_end_utc: acted.end,
+        full_block_start_utc: block.start,
+        full_block_end_utc: block.end,
         usable: run,
         sigma_min: sigma_days * 1440.0,
         baseline_before_min: before_min,
@@ -613,8 +619,8 @@ fn evaluate(
         alt_ingress_deg: alt_in,
         alt_mid_deg: alt_mid,
         alt_egress_deg: alt_eg,
-        alt_block_start_deg: track.alt_deg(block.start),
-        alt_block_end_deg: track.alt_deg(block.end),
+        alt_block_start_deg: track.alt_deg(acted.start),
+        alt_block_end_deg: track.alt_deg(acted.end),
         airmass_ingress: airmass_kasten_young(alt_in),
         airmass_mid: airmass_kasten_young(alt_mid),
         airmass_egress: airmass_kasten_young(alt_eg),
@@ -825,7 +831,7 @@ fn events_of_target(
         } else {
             geo - crate::astro::barycentric::observer_delay_days(JdUtc(geo), &icrs, &site.observer)
         };
-        // The night whose noon-to-noon window holds the mid-transit.
+        // The night whose solar-noon-to-noon window holds the mid-transit.
         let k = nights.partition_point(|nt| nt.window.start <= mid);
         if k == 0 || mid >= nights[k - 1].window.end {
             continue;
@@ -976,6 +982,8 @@ pub(crate) mod tests_support {
             egress_utc: 2_461_000.65,
             block_start_utc: 2_461_000.5,
             block_end_utc: 2_461_000.7,
+            full_block_start_utc: 2_461_000.5,
+            full_block_end_utc: 2_461_000.7,
             usable: None,
             sigma_min: 1.0,
             baseline_before_min: 30.0,

@@ -65,6 +65,7 @@ fn opts(first: &str, last: &str, all: bool) -> PlanOptions {
         baseline_before_min: 30.0,
         baseline_after_min: 30.0,
         min_coverage: 0.0,
+        min_in_transit_min: 0.0,
         include_unobservable: all,
     }
 }
@@ -96,8 +97,8 @@ fn sites_next_to_the_date_line_have_nights_around_local_midnight() {
                 (mid - 24.0).abs() < 0.5,
                 "lon {lon}: dark midpoint at {mid} h local"
             );
-            assert_eq!(night_of(d.start, s.tz), n.night_of);
-            assert_eq!(night_of(d.end, s.tz), n.night_of);
+            assert_eq!(night_of(d.start, s.lon_deg, s.tz), n.night_of);
+            assert_eq!(night_of(d.end, s.lon_deg, s.tz), n.night_of);
         }
     }
 }

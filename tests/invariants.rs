@@ -1,5 +1,5 @@
 //! Invariants over random targets (proptest): ingress < mid < egress inside the block; coverage in [0, 1];
-//! every event's night inside the requested range and its mid-transit inside that night's window; the usable
+//! the acted-on block equal to the usable run inside the planned block; every event's night inside the requested range and its mid-transit inside that night's window; the usable
 //! run inside the block; and the same inputs give byte-identical CSV.
 
 use dipwatch::astro::barycentric::TimeSystem;
@@ -64,13 +64,21 @@ proptest! {
             baseline_before_min: 30.0,
             baseline_after_min: 30.0,
             min_coverage: 0.0,
+            min_in_transit_min: 0.0,
             include_unobservable: all,
         };
         let p = plan(&sites, &targets, &opts);
         for sp in &p.sites {
             for e in &sp.events {
-                prop_assert!(e.block_start_utc < e.ingress_utc && e.ingress_utc < e.mid_utc);
-                prop_assert!(e.mid_utc < e.egress_utc && e.egress_utc < e.block_end_utc);
+                prop_assert!(e.full_block_start_utc < e.ingress_utc && e.ingress_utc < e.mid_utc);
+                prop_assert!(e.mid_utc < e.egress_utc && e.egress_utc < e.full_block_end_utc);
+                // The block acted on is the planned block clipped to what can be observed.
+                prop_assert!(e.block_start_utc >= e.full_block_start_utc - 1e-9);
+                prop_assert!(e.block_end_utc <= e.full_block_end_utc + 1e-9);
+                prop_assert!(e.block_start_utc < e.block_end_utc);
+                if let Some(u) = e.usable {
+                    prop_assert!((u.start - e.block_start_utc).abs() < 1e-9 && (u.end - e.block_end_utc).abs() < 1e-9);
+                }
                 prop_assert!((0.0..=1.0).contains(&e.coverage));
                 prop_assert!(e.night_of >= opts.first_night && e.night_of <= opts.last_night);
                 let night = sp.nights.iter().find(|n| n.night_of == e.night_of).unwrap();

@@ -76,6 +76,7 @@ fn opts(first: NaiveDate, last: NaiveDate) -> PlanOptions {
         baseline_before_min: 30.0,
         baseline_after_min: 30.0,
         min_coverage: 0.0,
+        min_in_transit_min: 0.0,
         include_unobservable: true,
     }
 }
@@ -248,10 +249,14 @@ fn clock_change_inside_the_range_gives_right_local_times_and_nights() {
     let s = site("Clock Test", 51.0, -1.0, "Europe/London");
     let (first, last) = (date(2027, 3, 25), date(2027, 3, 31));
     let nights = nights_at(&s, first, last);
-    // Local noon is 12:00 UTC before the change and 11:00 UTC after it.
+    // Nights run from local mean solar noon (12:04 UTC at 1.0 W: 12 h + 1 deg x 4 min/deg), which the clock
+    // change does not move, so both sides of the change keep 24 h nights.
     let frac = |jd: f64| ((jd + 0.5).fract() * 24.0 * 60.0).round() / 60.0;
-    assert_eq!(frac(nights[0].window.start), 12.0);
-    assert_eq!(frac(nights[4].window.start), 11.0);
+    assert_eq!(frac(nights[0].window.start), 12.0 + 4.0 / 60.0);
+    assert_eq!(frac(nights[4].window.start), 12.0 + 4.0 / 60.0);
+    assert!(nights
+        .windows(2)
+        .all(|w| (w[1].window.start - w[0].window.start - 1.0).abs() < 1e-9));
     let d = nights[5].night_of; // 2027-03-30, in BST
     let dark = nights[5].dark.unwrap();
     let mid = 0.5 * (dark.start + dark.end);
@@ -266,7 +271,7 @@ fn clock_change_inside_the_range_gives_right_local_times_and_nights() {
         .iter()
         .find(|e| e.night_of == d)
         .expect("event on the BST night");
-    assert_eq!(night_of(e.mid_utc, s.tz), d);
+    assert_eq!(night_of(e.mid_utc, s.lon_deg, s.tz), d);
     let utc = dipwatch::civil::datetime_from_jd(e.mid_utc);
     let local = dipwatch::civil::local_hhmm(e.mid_utc, s.tz);
     let want = (utc + chrono::Duration::hours(1))

@@ -120,7 +120,7 @@ pub enum SunCrossing {
 /// The Sun's crossings of `alt_deg` in the window `[start, end]` (UTC JD), normally local noon to the next
 /// local noon, with the direct (unpropagated) Sun of [`crate::astro::sky`].
 ///
-/// Returns the first descending and the last ascending crossing, or the polar cases explicitly. Accuracy:
+/// Returns the edges of the longest run with the Sun below the level, or the polar cases explicitly. Accuracy:
 /// 0.5 s of root finding on top of the Sun's altitude error (about 1", i.e. < 1 s of time away from the poles).
 pub fn sun_crossings(observer: &Observer, alt_deg: f64, start: f64, end: f64) -> SunCrossing {
     use crate::astro::frames::{wrap_pi, EarthOrientation};
@@ -155,14 +155,35 @@ pub fn sun_crossings_with(
     if below.is_empty() {
         return SunCrossing::AlwaysAbove;
     }
-    let first = below[0];
-    let last = below[below.len() - 1];
-    if below.len() == 1 && first.start <= start && first.end >= end {
+    if below.len() == 1 && below[0].start <= start && below[0].end >= end {
         return SunCrossing::AlwaysBelow;
     }
+    // The longest run below the level (the earlier of equals). A window that does not hold the solar night in
+    // one piece has a run at each end; joining the first descent to the last ascent would call the day between
+    // them dark.
+    let run = below
+        .iter()
+        .copied()
+        .reduce(|a, b| if b.len_days() > a.len_days() { b } else { a })
+        .expect("not empty");
     SunCrossing::Crosses {
-        down: (first.start > start).then_some(first.start),
-        up: (last.end < end).then_some(last.end),
+        down: (run.start > start).then_some(run.start),
+        up: (run.end < end).then_some(run.end),
+    }
+}
+
+impl SunCrossing {
+    /// The span of `window` with the Sun below the level throughout: the run between `down` and `up` (the
+    /// window's edge where one is missing), the whole window for polar night, `None` for polar day.
+    pub fn below_interval(&self, window: &Interval) -> Option<Interval> {
+        match *self {
+            SunCrossing::AlwaysAbove => None,
+            SunCrossing::AlwaysBelow => Some(*window),
+            SunCrossing::Crosses { down, up } => Some(Interval {
+                start: down.unwrap_or(window.start),
+                end: up.unwrap_or(window.end),
+            }),
+        }
     }
 }
 

@@ -82,6 +82,53 @@ struct RawSite {
     hour_angle_limits_h: Option<Spanned<Vec<f64>>>,
     horizon: Option<Spanned<Vec<Vec<f64>>>>,
     telescopes: Option<Spanned<toml::Value>>,
+    allow_far_zone: Option<Spanned<bool>>,
+}
+
+/// Largest accepted gap between a site's mean solar time and its zone's standard time without
+/// `allow_far_zone`, hours. Real stations reach about 2.5 h (western China on UTC+8, Galicia on CET).
+pub const FAR_ZONE_HOURS: f64 = 3.0;
+
+/// The date whose standard offset is compared with the longitude (zones rarely change their standard time).
+fn zone_check_date() -> chrono::NaiveDate {
+    chrono::NaiveDate::from_ymd_opt(2027, 1, 1).expect("valid date")
+}
+
+/// `+4:42` style text for hours east of UTC.
+fn utc_offset_text(hours: f64) -> String {
+    let minutes = (hours * 60.0).round() as i64;
+    let sign = if minutes < 0 { '-' } else { '+' };
+    format!("UTC{sign}{}:{:02}", minutes.abs() / 60, minutes.abs() % 60)
+}
+
+/// The problem with a longitude whose mean solar time is far from the zone's standard time, if any.
+fn far_zone_problem(lon_deg: f64, tz: chrono_tz::Tz) -> Option<String> {
+    let date = zone_check_date();
+    let gap_h = crate::civil::solar_minus_zone_hours(lon_deg, date, tz);
+    if gap_h.abs() <= FAR_ZONE_HOURS {
+        return None;
+    }
+    let std_h = crate::civil::standard_offset_hours(date, tz);
+    let side = if lon_deg >= 0.0 { "E" } else { "W" };
+    let flipped = crate::civil::solar_minus_zone_hours(-lon_deg, date, tz);
+    let hint = if flipped.abs() <= FAR_ZONE_HOURS {
+        format!(
+            "likely cause: the longitude's sign (east is positive; {:.3} puts the site {:.1} h from its zone)",
+            -lon_deg,
+            flipped.abs()
+        )
+    } else {
+        "likely cause: a wrong longitude or time zone (east is positive)".to_string()
+    };
+    Some(format!(
+        "found {lon_deg} ({:.3} {side}, mean solar time {}), but timezone {} keeps standard time {}, {:.1} h apart; \
+         expected within {FAR_ZONE_HOURS} h; {hint}; if the site really keeps this zone, add allow_far_zone = true",
+        lon_deg.abs(),
+        utc_offset_text(lon_deg / 15.0),
+        tz.name(),
+        utc_offset_text(std_h),
+        gap_h.abs()
+    ))
 }
 
 fn line_of(text: &str, offset: usize) -> usize {
@@ -314,9 +361,17 @@ pub fn parse_sites(file: &str, text: &str) -> Result<Vec<Site>, InputError> {
         if !ok || tz.is_none() {
             continue;
         }
+        let lon_span = lon.unwrap().span();
         let (lat, mut lon) = (*lat.unwrap().get_ref(), *lon.unwrap().get_ref());
         if lon > 180.0 {
             lon -= 360.0;
+        }
+        let allow_far_zone = r.allow_far_zone.as_ref().is_some_and(|v| *v.get_ref());
+        if !allow_far_zone {
+            if let Some(msg) = far_zone_problem(lon, tz.unwrap()) {
+                problems.push(at(&lon_span), "longitude_deg", msg);
+                continue;
+            }
         }
         let elevation_m = r.elevation_m.as_ref().map(|v| *v.get_ref()).unwrap_or(0.0);
         let from_alt = r.min_alt_deg.as_ref().map(|v| *v.get_ref());

@@ -24,6 +24,43 @@ fn round(x: f64, decimals: i32) -> f64 {
     (x * k).round() / k
 }
 
+/// `x` rounded down to `decimals` places: for fractions a person acts on (coverage), never shown higher than
+/// they are. The 1e-9 guard only absorbs binary noise (0.29 * 100 = 28.999999999999996).
+pub fn floor_to(x: f64, decimals: i32) -> f64 {
+    let k = 10f64.powi(decimals);
+    ((x * k) + 1e-9).floor() / k
+}
+
+/// A fraction 0-1 as a whole percentage rounded down: `99%` for 0.995, `100%` only for the whole.
+pub fn percent_floor(frac: f64) -> String {
+    format!("{:.0}%", floor_to(frac * 100.0, 0))
+}
+
+/// Mark for a block edge clipped to the usable run (twilight, altitude or another limit cuts the theoretical
+/// block there).
+pub const CLIPPED_EDGE_MARK: &str = "~";
+
+/// The block as it can be observed, `HH:MM-HH:MM`, with [`CLIPPED_EDGE_MARK`] beside an edge that the
+/// usable run clipped.
+fn block_text(e: &crate::plan::Event, site: &Site, utc: bool) -> String {
+    let slack = 1.0 / 86_400.0;
+    let start_mark = if e.block_start_utc > e.full_block_start_utc + slack {
+        CLIPPED_EDGE_MARK
+    } else {
+        ""
+    };
+    let end_mark = if e.block_end_utc < e.full_block_end_utc - slack {
+        CLIPPED_EDGE_MARK
+    } else {
+        ""
+    };
+    format!(
+        "{start_mark}{}-{}{end_mark}",
+        hhmm(e.block_start_utc, site, utc),
+        hhmm(e.block_end_utc, site, utc)
+    )
+}
+
 fn finite(x: f64, decimals: i32) -> Option<f64> {
     x.is_finite().then(|| round(x, decimals))
 }
@@ -96,12 +133,8 @@ fn event_cells(
         Cell::new(night),
         Cell::new(target),
         Cell::new(e.verdict.label()),
-        Cell::new(format!("{:.0}%", e.coverage * 100.0)).set_alignment(CellAlignment::Right),
-        Cell::new(format!(
-            "{}-{}",
-            hhmm(e.block_start_utc, site, utc),
-            hhmm(e.block_end_utc, site, utc)
-        )),
+        Cell::new(percent_floor(e.coverage)).set_alignment(CellAlignment::Right),
+        Cell::new(block_text(e, site, utc)),
         Cell::new(format!(
             "{} {} {}",
             hhmm(e.ingress_utc, site, utc),

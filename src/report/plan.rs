@@ -1,6 +1,6 @@
 //! `plan` outputs: the terminal table, CSV and JSON.
 
-use super::{finite, hhmm, round};
+use super::{finite, floor_to, hhmm, round};
 use crate::civil::rfc3339_utc;
 use crate::inputs::sites::Site;
 use crate::inputs::targets::Target;
@@ -22,6 +22,8 @@ pub struct EventRecord {
     pub egress_utc: String,
     pub block_start_utc: String,
     pub block_end_utc: String,
+    pub full_block_start_utc: String,
+    pub full_block_end_utc: String,
     pub usable_start_utc: Option<String>,
     pub usable_end_utc: Option<String>,
     pub sigma_min: f64,
@@ -62,6 +64,8 @@ pub const EVENT_FIELDS: &[&str] = &[
     "egress_utc",
     "block_start_utc",
     "block_end_utc",
+    "full_block_start_utc",
+    "full_block_end_utc",
     "usable_start_utc",
     "usable_end_utc",
     "sigma_min",
@@ -99,12 +103,14 @@ impl EventRecord {
             epoch: e.epoch,
             verdict: e.verdict.label(),
             observable: e.observable,
-            coverage: round(e.coverage, 3),
+            coverage: floor_to(e.coverage, 3),
             mid_utc: rfc3339_utc(e.mid_utc),
             ingress_utc: rfc3339_utc(e.ingress_utc),
             egress_utc: rfc3339_utc(e.egress_utc),
             block_start_utc: rfc3339_utc(e.block_start_utc),
             block_end_utc: rfc3339_utc(e.block_end_utc),
+            full_block_start_utc: rfc3339_utc(e.full_block_start_utc),
+            full_block_end_utc: rfc3339_utc(e.full_block_end_utc),
             usable_start_utc: e.usable.map(|u| rfc3339_utc(u.start)),
             usable_end_utc: e.usable.map(|u| rfc3339_utc(u.end)),
             sigma_min: round(e.sigma_min, 2),
@@ -223,13 +229,15 @@ pub fn push_event_csv_rows(events: &[Event], sites: &[Site], targets: &[Target],
         out.push(',');
         out.push_str(e.verdict.label());
         out.push_str(if e.observable { ",true," } else { ",false," });
-        num(e.coverage, 3, out);
+        num(floor_to(e.coverage, 3), 3, out);
         for jd in [
             e.mid_utc,
             e.ingress_utc,
             e.egress_utc,
             e.block_start_utc,
             e.block_end_utc,
+            e.full_block_start_utc,
+            e.full_block_end_utc,
         ] {
             ts(jd, out);
             out.push(',');
@@ -356,6 +364,7 @@ fn reason_note(r: Reason) -> &'static str {
         Reason::HourAngleLimit => "HA",
         Reason::MoonTooClose => "moon",
         Reason::CoverageBelowMinimum => "cov",
+        Reason::InTransitBelowMinimum => "short",
         Reason::EphemerisLost => "lost",
     }
 }
@@ -364,7 +373,9 @@ const LEGEND: &str = "\
 Notes: flip HH:MM = meridian crossing inside the block (equatorial mounts flip). Limits that cut the block:
   sun = twilight or daylight, low = below the altitude limit, horizon = behind the horizon profile,
   HA = outside the hour-angle limits, moon = too close to the Moon, cov = under the minimum coverage,
-  lost = ephemeris lost.";
+  short = less in-transit time than the minimum, lost = ephemeris lost.
+  Block = the time that can be observed; ~ beside an edge: a limit clips the planned block there.
+  Coverage is rounded down.";
 
 /// The terminal table: one table per site, rows grouped by night, site local time (or UTC), fits 120
 /// columns.
@@ -378,13 +389,14 @@ pub fn plan_table(
     let mut out = String::new();
     let n_events: usize = plan.sites.iter().map(|s| s.events.len()).sum();
     out.push_str(&format!(
-        "Transits for the nights of {} to {}; margin {} sigma; baselines {}/{} min before/after{}\n",
+        "Transits for the nights of {} to {}\n  margin {} sigma; baselines {}/{} min before/after{}{}\n",
         opts.first_night,
         opts.last_night,
         opts.sigma_k,
         opts.baseline_before_min,
         opts.baseline_after_min,
-        if opts.min_coverage > 0.0 { format!("; coverage >= {}", opts.min_coverage) } else { String::new() }
+        if opts.min_coverage > 0.0 { format!("; coverage >= {}", opts.min_coverage) } else { String::new() },
+        if opts.min_in_transit_min > 0.0 { format!("; in transit >= {} min", opts.min_in_transit_min) } else { String::new() }
     ));
     for sp in &plan.sites {
         let site = &sites[sp.site_index];

@@ -134,11 +134,11 @@ pub fn tonight_text(
         let t = &targets[e.target_index];
         let sig = format!("+-{:.1} min", e.sigma_min);
         out.push_str(&format!(
-            "\n{}  epoch {}  {}, {:.0}% of the transit{}{}\n",
+            "\n{}  epoch {}  {}, {} of the transit{}{}\n",
             t.name,
             e.epoch,
             e.verdict.label(),
-            e.coverage * 100.0,
+            crate::report::percent_floor(e.coverage),
             t.depth_ppt
                 .map(|d| format!(", depth {d} ppt"))
                 .unwrap_or_default(),
