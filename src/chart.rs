@@ -250,7 +250,7 @@ pub fn night_chart_svg(
     // hatched, sigma bands, contact lines.
     for e in events {
         let margin = sigma_k * e.sigma_min / 1440.0;
-        if e.block_start_utc > e.full_block_start_utc || e.block_end_utc < e.full_block_end_utc {
+        if e.start_clipped() || e.end_clipped() {
             let (fs, fe) = (
                 e.full_block_start_utc.max(range.start),
                 e.full_block_end_utc.min(range.end),

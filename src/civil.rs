@@ -10,8 +10,8 @@
 use chrono::{DateTime, NaiveDate, NaiveTime, TimeZone, Utc};
 use chrono_tz::{OffsetComponents, Tz};
 
-/// Julian Date of the Unix epoch 1970-01-01T00:00:00Z.
-const UNIX_EPOCH_JD: f64 = 2_440_587.5;
+/// Julian Date of the Unix epoch, 1970-01-01T00:00:00 UTC (common practice, no source).
+pub const UNIX_EPOCH_JD: f64 = 2_440_587.5;
 
 /// The UTC instant of a UTC Julian Date, rounded to the millisecond.
 pub fn datetime_from_jd(jd_utc: f64) -> DateTime<Utc> {

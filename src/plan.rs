@@ -159,8 +159,8 @@ pub struct Event {
     /// Egress (fourth contact), UTC JD.
     pub egress_utc: f64,
     /// Start of the block as it can be observed: the theoretical block clipped to the usable run (the run
-    /// itself for an observable event; the theoretical block when nothing is usable), UTC JD. What a person or
-    /// program acts on.
+    /// itself for an observable event; the theoretical block when nothing is usable), moved inward to a whole
+    /// UTC minute, UTC JD. What a person or program acts on.
     pub block_start_utc: f64,
     /// End of the block as it can be observed, UTC JD.
     pub block_end_utc: f64,
@@ -210,6 +210,20 @@ pub struct Event {
     pub meridian_utc: Option<f64>,
     /// Why (part of) the block is unusable.
     pub reasons: Vec<Reason>,
+}
+
+impl Event {
+    /// True when the usable run cuts the theoretical block's start (twilight, altitude or another limit).
+    pub fn start_clipped(&self) -> bool {
+        self.usable
+            .is_some_and(|u| u.start > self.full_block_start_utc + 1.0 / 86_400.0)
+    }
+
+    /// True when the usable run cuts the theoretical block's end.
+    pub fn end_clipped(&self) -> bool {
+        self.usable
+            .is_some_and(|u| u.end < self.full_block_end_utc - 1.0 / 86_400.0)
+    }
 }
 
 /// Targets whose ephemeris is lost over the run, with the timing sigma at the first epoch in range.
@@ -583,8 +597,9 @@ fn evaluate(
         return None;
     }
 
-    // What can be acted on: the block clipped to the usable run.
-    let acted = run.unwrap_or(block);
+    // What can be acted on: the block clipped to the usable run, its edges moved inward to whole minutes so
+    // that no printed start or end (HH:MM, calendar seconds, countdown) lies outside what is possible.
+    let acted = inward_to_minutes(run.unwrap_or(block));
     let alt_in = track.alt_deg(ingress);
     let (alt_mid, az_mid) = track.alt_az_deg(mid_utc);
     let alt_eg = track.alt_deg(egress);
@@ -965,6 +980,21 @@ pub fn brute_force_site(
 }
 
 /// Test support: a plain event to modify in unit tests of the output modules.
+/// `iv` with its start rounded up and its end rounded down to whole UTC minutes (unchanged if that would
+/// empty it). Printed times truncate to the minute, so an edge on a whole minute prints exactly.
+pub fn inward_to_minutes(iv: Interval) -> Interval {
+    const PER_DAY: f64 = 1440.0;
+    let rel = |jd: f64| (jd - crate::civil::UNIX_EPOCH_JD) * PER_DAY;
+    // 1e-6 min (60 us) absorbs binary noise so an edge already on a minute stays there.
+    let start = (rel(iv.start) - 1e-6).ceil() / PER_DAY + crate::civil::UNIX_EPOCH_JD;
+    let end = (rel(iv.end) + 1e-6).floor() / PER_DAY + crate::civil::UNIX_EPOCH_JD;
+    if start < end {
+        Interval { start, end }
+    } else {
+        iv
+    }
+}
+
 #[cfg(test)]
 pub(crate) mod tests_support {
     use super::*;

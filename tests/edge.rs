@@ -122,7 +122,8 @@ fn clock_changes_give_real_local_times_and_mark_the_repeated_hour() {
     assert_eq!(local_hhmm(jd(2027, 10, 31.0 + 150.0 / 1440.0), tz), "03:30");
     // A block that starts in the skipped hour's neighbourhood: the plan table prints the real local times.
     let s = site(52.5, 13.4, "Europe/Berlin", 10.0);
-    // JD_UTC mid-transit at 01:40 UTC = 03:40 CEST; block starts 01:40 - 1 h - 0.7 min - 30 min = 00:09 UTC = 01:09 CET.
+    // JD_UTC mid-transit at 01:40 UTC = 03:40 CEST; block starts 01:40 - 1 h - 0.7 min - 30 min = 00:09:18 UTC,
+    // rounded up to the whole minute that can be acted on: 00:10 UTC = 01:10 CET.
     let t = target(
         90.0,
         60.0,
@@ -134,11 +135,11 @@ fn clock_changes_give_real_local_times_and_mark_the_repeated_hour() {
     let p = plan(std::slice::from_ref(&s), std::slice::from_ref(&t), &o);
     let e = &p.sites[0].events[0];
     assert_eq!(local_hhmm(e.mid_utc, s.tz), "03:40");
-    assert_eq!(local_hhmm(e.block_start_utc, s.tz), "01:09");
+    assert_eq!(local_hhmm(e.block_start_utc, s.tz), "01:10");
     let table = dipwatch::report::plan_table(&p, &[s], &[t], &o, false);
-    // Block 00:09-04:10 UTC; ingress, mid, egress 00:40, 01:40, 02:40 UTC: the wall clock skips 02:00-03:00.
+    // Block 00:10-04:10 UTC; ingress, mid, egress 00:40, 01:40, 02:40 UTC: the wall clock skips 02:00-03:00.
     assert!(
-        table.contains("01:09-05:10") && table.contains("01:40 03:40 04:40"),
+        table.contains("01:10-05:10") && table.contains("01:40 03:40 04:40"),
         "{table}"
     );
     assert!(table.contains("times CET then CEST"), "{table}");

@@ -77,14 +77,21 @@ proptest! {
                 prop_assert!(e.block_end_utc <= e.full_block_end_utc + 1e-9);
                 prop_assert!(e.block_start_utc < e.block_end_utc);
                 if let Some(u) = e.usable {
-                    prop_assert!((u.start - e.block_start_utc).abs() < 1e-9 && (u.end - e.block_end_utc).abs() < 1e-9);
+                    // Inside the run, on whole minutes, less than a minute in from each edge.
+                    let min = 1.0 / 1440.0;
+                    prop_assert!(e.block_start_utc >= u.start - 1e-9 && e.block_start_utc - u.start < min + 1e-9);
+                    prop_assert!(e.block_end_utc <= u.end + 1e-9 && u.end - e.block_end_utc < min + 1e-9);
+                    let on_minute = |jd: f64| { let m = (jd - 2_440_587.5) * 1440.0; (m - m.round()).abs() < 1e-4 };
+                    if u.end - u.start >= 2.0 * min {
+                        prop_assert!(on_minute(e.block_start_utc) && on_minute(e.block_end_utc));
+                    }
                 }
                 prop_assert!((0.0..=1.0).contains(&e.coverage));
                 prop_assert!(e.night_of >= opts.first_night && e.night_of <= opts.last_night);
                 let night = sp.nights.iter().find(|n| n.night_of == e.night_of).unwrap();
                 prop_assert!(e.mid_utc >= night.window.start && e.mid_utc < night.window.end);
                 if let Some(u) = e.usable {
-                    prop_assert!(u.start >= e.block_start_utc - 1e-9 && u.end <= e.block_end_utc + 1e-9);
+                    prop_assert!(u.start >= e.full_block_start_utc - 1e-9 && u.end <= e.full_block_end_utc + 1e-9);
                 }
                 prop_assert!(!e.observable || e.coverage > 0.0);
             }

@@ -4,86 +4,17 @@ use chrono::NaiveDate;
 use dipwatch::astro::atmosphere::HorizonProfile;
 use dipwatch::astro::barycentric::{EarthTable, TimeSystem};
 use dipwatch::astro::crossings::Interval;
-use dipwatch::astro::frames::{unit_from_radec, Observer};
 use dipwatch::astro::sky::sun_moon_at;
 use dipwatch::astro::time::JdUtc;
 use dipwatch::civil::{local_noon_jd, night_of};
 use dipwatch::ephemeris::Ephemeris;
 use dipwatch::inputs::sites::Site;
 use dipwatch::inputs::targets::Target;
-use dipwatch::plan::{
-    nights_at, plan, usable_intervals, usable_minutes_oracle, PlanOptions, Reason, Verdict,
-};
+use dipwatch::plan::{nights_at, plan, usable_intervals, usable_minutes_oracle, Reason, Verdict};
 use proptest::prelude::*;
 
-fn site(name: &str, lat: f64, lon: f64, tz: &str) -> Site {
-    Site {
-        name: name.into(),
-        observer: Observer::from_deg(lat, lon, 500.0),
-        lat_deg: lat,
-        lon_deg: lon,
-        elevation_m: 500.0,
-        tz: tz.parse().unwrap(),
-        min_alt_deg: 30.0,
-        darkness_alt_deg: -12.0,
-        darkness_label: "nautical".into(),
-        horizon: HorizonProfile::default(),
-        hour_angle_limits_h: None,
-        min_moon_sep_deg: None,
-        telescopes: vec![dipwatch::inputs::sites::Telescope {
-            name: "main".into(),
-            min_alt_deg: None,
-        }],
-    }
-}
-
-/// A target that transits the site's meridian (RA = local sidereal time) at `jd_utc`, with mid-transit
-/// exactly then (T0 in BJD_TDB computed through the core).
-fn target_at(name: &str, s: &Site, jd_utc: f64, dec_deg: f64, t14_hours: f64) -> Target {
-    let eo = dipwatch::astro::frames::EarthOrientation::at(JdUtc(jd_utc));
-    let ra_deg = eo.last_rad(s.observer.lon_rad).to_degrees();
-    let icrs = unit_from_radec(ra_deg.to_radians(), dec_deg.to_radians());
-    let table = EarthTable::new(jd_utc - 2.0, jd_utc + 2.0);
-    let t0 = table.time_in_system(TimeSystem::BjdTdb, JdUtc(jd_utc), &icrs, Some(&s.observer));
-    Target {
-        name: name.into(),
-        ra_deg,
-        dec_deg,
-        ephemeris: Ephemeris {
-            t0,
-            t0_sigma_days: 0.0005,
-            period_days: 13.7,
-            period_sigma_days: 0.0,
-            cov_t0_period_days2: 0.0,
-            system: TimeSystem::BjdTdb,
-        },
-        t14_hours,
-        depth_ppt: Some(10.0),
-        mag: None,
-        priority: 1.0,
-        notes: String::new(),
-        pm_ra_cosdec_mas_per_yr: 0.0,
-        pm_dec_mas_per_yr: 0.0,
-        coord_epoch_jyear: 2000.0,
-    }
-}
-
-fn opts(first: NaiveDate, last: NaiveDate) -> PlanOptions {
-    PlanOptions {
-        first_night: first,
-        last_night: last,
-        sigma_k: 1.0,
-        baseline_before_min: 30.0,
-        baseline_after_min: 30.0,
-        min_coverage: 0.0,
-        min_in_transit_min: 0.0,
-        include_unobservable: true,
-    }
-}
-
-fn date(y: i32, m: u32, d: u32) -> NaiveDate {
-    NaiveDate::from_ymd_opt(y, m, d).unwrap()
-}
+mod common;
+use common::{date, opts, site, target_at};
 
 /// Plan one site/target for the single night `d` and return its one event.
 fn single_event(s: &Site, t: &Target, d: NaiveDate) -> dipwatch::plan::Event {

@@ -43,13 +43,12 @@ pub const CLIPPED_EDGE_MARK: &str = "~";
 /// The block as it can be observed, `HH:MM-HH:MM`, with [`CLIPPED_EDGE_MARK`] beside an edge that the
 /// usable run clipped.
 fn block_text(e: &crate::plan::Event, site: &Site, utc: bool) -> String {
-    let slack = 1.0 / 86_400.0;
-    let start_mark = if e.block_start_utc > e.full_block_start_utc + slack {
+    let start_mark = if e.start_clipped() {
         CLIPPED_EDGE_MARK
     } else {
         ""
     };
-    let end_mark = if e.block_end_utc < e.full_block_end_utc - slack {
+    let end_mark = if e.end_clipped() {
         CLIPPED_EDGE_MARK
     } else {
         ""
