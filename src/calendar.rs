@@ -4,8 +4,9 @@
 //! (section 3.1) are done by the `icalendar` crate; dipwatch sets every property whose crate default would not
 //! be reproducible (DTSTAMP, UID).
 //!
-//! Identity and updates: the UID is derived from (target, epoch, site) only, so a re-export after an ephemeris
-//! update replaces the same events. SEQUENCE (section 3.8.7.4) is the number of minutes from 2024-01-01T00:00Z
+//! Identity and updates: the UID is derived from (target, site, night, slot within the night) only, never from
+//! the epoch count since T0, so a re-export after an ephemeris update (refined or re-referenced T0 and P)
+//! replaces the same events. SEQUENCE (section 3.8.7.4) is the number of minutes from 2024-01-01T00:00Z
 //! to the export time whenever an event is new or changed, and the previous value when it is unchanged, so it
 //! only ever grows. When the previous export is given, events that dropped out of the plan are written again
 //! with STATUS:CANCELLED (section 3.8.1.11) so that calendar programs remove them.
@@ -14,7 +15,7 @@ use crate::civil::{datetime_from_jd, jd_from_datetime, local_hhmm, zone_abbrevia
 use crate::inputs::sites::Site;
 use crate::inputs::targets::Target;
 use crate::plan::{Event, Plan};
-use chrono::{DateTime, TimeZone, Utc};
+use chrono::{DateTime, NaiveDate, TimeZone, Utc};
 use icalendar::{
     Alarm, Calendar, CalendarComponent, Component, Event as IcsEvent, EventLike, EventStatus,
     Trigger,
@@ -84,16 +85,29 @@ fn slug(text: &str) -> String {
     crate::names::slug(text).chars().take(40).collect()
 }
 
-/// The UID of the event of `target` at `epoch` at `site`: readable slugs plus a hash of the exact names
-/// (RFC 5545 section 3.8.4.7: globally unique and persistent).
-pub fn event_uid(target: &str, epoch: i64, site: &str) -> String {
-    let h = fnv1a64(format!("{target}\u{1f}{epoch}\u{1f}{site}").as_bytes());
+/// The UID of a transit of `target` at `site` on the night `night_of`, the `slot`-th period-long slot of that
+/// night (0 unless the period is shorter than a day): readable slugs plus a hash of the exact names (RFC 5545
+/// section 3.8.4.7: globally unique and persistent). Nothing here depends on the ephemeris' reference epoch, so
+/// re-referencing or refining T0 and P keeps the identity of every transit that stays on its night.
+pub fn event_uid(target: &str, night_of: NaiveDate, slot: i64, site: &str) -> String {
+    let h = fnv1a64(format!("{target}\u{1f}{night_of}\u{1f}{slot}\u{1f}{site}").as_bytes());
     format!(
-        "{}.e{epoch}.{}.{:016x}@dipwatch",
+        "{}.{}.{slot}.{}.{:016x}@dipwatch",
         slug(target),
+        night_of.format("%Y%m%d"),
         slug(site),
         h
     )
+}
+
+/// The UID of a planned event (see [`event_uid`]): the slot counts whole periods from the start of the night
+/// (local mean solar noon) to mid-transit.
+pub fn uid_of(e: &Event, site: &Site, target: &Target) -> String {
+    let night_start = crate::civil::night_start_jd(e.night_of, site.lon_deg, site.tz);
+    let slot = ((e.mid_utc - night_start) / target.ephemeris.period_days)
+        .floor()
+        .max(0.0) as i64;
+    event_uid(&target.name, e.night_of, slot, &site.name)
 }
 
 /// SEQUENCE for a new or changed event at `stamp`: minutes since 2024-01-01T00:00Z.
@@ -254,7 +268,7 @@ pub fn build_calendar(
         exported_sites.push(site.name.clone());
         for e in sp.events.iter().filter(|e| e.observable) {
             let target = &targets[e.target_index];
-            let uid = event_uid(&target.name, e.epoch, &site.name);
+            let uid = uid_of(e, site, target);
             let sum = summary(e, site, target);
             let desc = description(e, site, target);
             let start = datetime_from_jd(e.block_start_utc);
@@ -444,19 +458,25 @@ mod tests {
 
     #[test]
     fn uid_is_stable_and_distinguishes_names() {
+        let d = NaiveDate::from_ymd_opt(2027, 3, 1).unwrap();
+        let uid = |t: &str, d: NaiveDate, k: i64, s: &str| event_uid(t, d, k, s);
         assert_eq!(
-            event_uid("Amberfall b", 12, "Kestrel Moor"),
-            event_uid("Amberfall b", 12, "Kestrel Moor")
+            uid("Amberfall b", d, 0, "Kestrel Moor"),
+            uid("Amberfall b", d, 0, "Kestrel Moor")
         );
         assert_ne!(
-            event_uid("Amberfall b", 12, "Kestrel Moor"),
-            event_uid("Amberfall-b", 12, "Kestrel Moor")
+            uid("Amberfall b", d, 0, "Kestrel Moor"),
+            uid("Amberfall-b", d, 0, "Kestrel Moor")
         );
         assert_ne!(
-            event_uid("Amberfall b", 12, "Kestrel Moor"),
-            event_uid("Amberfall b", 13, "Kestrel Moor")
+            uid("Amberfall b", d, 0, "Kestrel Moor"),
+            uid("Amberfall b", d.succ_opt().unwrap(), 0, "Kestrel Moor")
         );
-        assert!(event_uid("A\nEND:VEVENT", 1, "S")
+        assert_ne!(
+            uid("Amberfall b", d, 0, "Kestrel Moor"),
+            uid("Amberfall b", d, 1, "Kestrel Moor")
+        );
+        assert!(uid("A\nEND:VEVENT", d, 0, "S")
             .chars()
             .all(|c| c.is_ascii_graphic()));
     }

@@ -5,7 +5,7 @@
 //! exactly after an RFC 5545 unfold and unescape written here, and `ical`'s values are checked against the same
 //! raw text with its documented trimming applied.
 
-use dipwatch::calendar::{description, event_uid, summary};
+use dipwatch::calendar::{description, summary, uid_of};
 use dipwatch::inputs::sites::parse_sites;
 use dipwatch::inputs::targets::{parse_targets, ColumnMap};
 use dipwatch::plan::{plan, PlanOptions};
@@ -220,7 +220,7 @@ fn every_event_round_trips_with_the_plans_times_and_text() {
     for e in planned {
         let site = &sites[e.site_index];
         let target = &targets[e.target_index];
-        let uid = event_uid(&target.name, e.epoch, &site.name);
+        let uid = uid_of(e, site, target);
         let ev = by_uid.get(&uid).unwrap_or_else(|| panic!("no event {uid}"));
         // Times to the second (RFC 5545 3.3.5, UTC form with Z).
         let fmt = |jd: f64| {
@@ -381,15 +381,62 @@ fn re_export_after_a_period_change_moves_events_keeps_uids_and_cancels_dropped_o
         assert!(e["SEQUENCE"].parse::<u32>().unwrap() >= old["SEQUENCE"].parse::<u32>().unwrap());
     }
     assert!(kept > 0, "no event kept its UID");
+    let err = String::from_utf8_lossy(&o.stderr);
+    assert!(err.contains(&format!("{kept} changed")), "{err}");
     let cancelled = after
         .iter()
         .filter(|e| e.get("STATUS").map(String::as_str) == Some("CANCELLED"))
         .count();
-    let err = String::from_utf8_lossy(&o.stderr);
     assert!(err.contains(&format!("{cancelled} cancelled")), "{err}");
     assert!(
         cancelled > 0,
         "expected the period change to drop some events: {err}"
+    );
+}
+
+#[test]
+fn re_referencing_t0_keeps_every_identity() {
+    // The same ephemeris with T0 moved 517 periods later (what `refine` does when it picks a new reference
+    // epoch): every transit is the same instant, so every UID must survive, nothing new, nothing cancelled.
+    let d = temp("reref");
+    let header = "name,ra,dec,t0,t0_sigma_days,period_days,period_sigma_days,t14_hours\n";
+    let (t0, p) = (2_460_655.92544_f64, 1.3390127_f64);
+    let row = |t0: f64| {
+        format!("{header}Moss Harbour b,10:12:40.9,+38:02:51,{t0:.7},0.00075,{p},0.0000018,1.74\n")
+    };
+    let t1 = d.join("t1.csv");
+    std::fs::write(&t1, row(t0)).unwrap();
+    let first = d.join("first.ics");
+    export(
+        &repo("sites.example.toml"),
+        t1.to_str().unwrap(),
+        &first,
+        &[],
+    );
+    let t2 = d.join("t2.csv");
+    std::fs::write(&t2, row(t0 + 517.0 * p)).unwrap();
+    let second = d.join("second.ics");
+    let o = export(
+        &repo("sites.example.toml"),
+        t2.to_str().unwrap(),
+        &second,
+        &["--previous", first.to_str().unwrap()],
+    );
+    let uids = |path: &Path| {
+        let mut v: Vec<String> = raw_events(&std::fs::read_to_string(path).unwrap())
+            .iter()
+            .map(|e| e["UID"].clone())
+            .collect();
+        v.sort();
+        v
+    };
+    let (a, b) = (uids(&first), uids(&second));
+    assert!(!a.is_empty());
+    assert_eq!(a, b);
+    let err = String::from_utf8_lossy(&o.stderr);
+    assert!(
+        err.contains("0 new,") && err.contains(" 0 cancelled"),
+        "{err}"
     );
 }
 
