@@ -400,7 +400,7 @@ fn re_referencing_t0_keeps_every_identity() {
     // epoch): every transit is the same instant, so every UID must survive, nothing new, nothing cancelled.
     let d = temp("reref");
     let header = "name,ra,dec,t0,t0_sigma_days,period_days,period_sigma_days,t14_hours\n";
-    let (t0, p) = (2_460_655.92544_f64, 1.3390127_f64);
+    let (t0, p) = (2_460_655.925_44_f64, 1.339_012_7_f64);
     let row = |t0: f64| {
         format!("{header}Moss Harbour b,10:12:40.9,+38:02:51,{t0:.7},0.00075,{p},0.0000018,1.74\n")
     };
