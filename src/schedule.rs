@@ -5,8 +5,9 @@
 //! changeover gap required between consecutive blocks. Across telescopes and sites each transit (target,
 //! epoch) is observed at most once: when several telescopes choose the same transit, the highest-scoring one
 //! keeps it and the others are solved again without it, until no transit is chosen twice. Complementary
-//! partial events (ingress at one site, egress at another) are the exception: both are kept and reported as a
-//! pair with their combined coverage. The cross-site step is a heuristic (the joint problem is a weighted
+//! partial events (ingress at one site, egress at another) are the exception: the best such pair among all the
+//! telescopes that chose the transit (any number per site) is kept and reported with its combined coverage when
+//! it covers more than any single choice; every other telescope is solved again without that transit. The cross-site step is a heuristic (the joint problem is a weighted
 //! multi-machine assignment); each telescope-night on its own is optimal.
 
 use crate::astro::crossings::Interval;
@@ -242,38 +243,14 @@ pub fn schedule(
             if idx.len() < 2 {
                 continue;
             }
-            if idx.len() == 2 {
-                let (a, b) = (&chosen[idx[0]], &chosen[idx[1]]);
-                let sites_differ = telescopes[a.telescope_index].site_index
-                    != telescopes[b.telescope_index].site_index;
-                let complementary = matches!(
-                    (a.event.verdict, b.event.verdict),
-                    (Verdict::IngressOnly, Verdict::EgressOnly)
-                        | (Verdict::EgressOnly, Verdict::IngressOnly)
-                );
-                if sites_differ && complementary {
-                    let c = combined_coverage(&a.event, &b.event);
-                    if c > a.event.coverage.max(b.event.coverage) + 1e-9 {
-                        let (ia, ib) = (idx[0], idx[1]);
-                        let (ta, tb) = (chosen[ia].telescope_index, chosen[ib].telescope_index);
-                        chosen[ia].pair = Some((tb, c));
-                        chosen[ib].pair = Some((ta, c));
-                        continue;
-                    }
-                }
+            let keep = keepers(&chosen, idx, telescopes);
+            if let Keep::Pair(ia, ib, c) = keep {
+                let (ta, tb) = (chosen[ia].telescope_index, chosen[ib].telescope_index);
+                chosen[ia].pair = Some((tb, c));
+                chosen[ib].pair = Some((ta, c));
             }
-            // Keep the best (ties: lower telescope index), exclude the transit elsewhere.
-            let best = *idx
-                .iter()
-                .max_by(|&&x, &&y| {
-                    chosen[x]
-                        .score
-                        .total_cmp(&chosen[y].score)
-                        .then(chosen[y].telescope_index.cmp(&chosen[x].telescope_index))
-                })
-                .expect("non-empty");
             for &i in idx {
-                if i != best {
+                if !keep.holds(i) {
                     excluded.insert((chosen[i].telescope_index, k));
                     new_exclusions = true;
                 }
@@ -282,6 +259,74 @@ pub fn schedule(
         if !new_exclusions {
             return finish(chosen);
         }
+    }
+}
+
+/// Which of several telescopes that chose the same transit keep it.
+#[derive(Debug, Clone, Copy, PartialEq)]
+enum Keep {
+    /// One telescope (index into the chosen list).
+    One(usize),
+    /// A complementary ingress/egress pair at two sites, with their combined coverage.
+    Pair(usize, usize, f64),
+}
+
+impl Keep {
+    fn holds(self, i: usize) -> bool {
+        match self {
+            Keep::One(a) => a == i,
+            Keep::Pair(a, b, _) => a == i || b == i,
+        }
+    }
+}
+
+/// Settle one transit chosen by the telescopes `idx` (any number, at any number of sites): the best
+/// complementary pair (an ingress-only and an egress-only at different sites) when together they cover more of
+/// the transit than any single choice; otherwise the best single choice (ties: lower telescope index).
+fn keepers(chosen: &[Chosen], idx: &[usize], telescopes: &[TelescopeEvents]) -> Keep {
+    let best = *idx
+        .iter()
+        .max_by(|&&x, &&y| {
+            chosen[x]
+                .score
+                .total_cmp(&chosen[y].score)
+                .then(chosen[y].telescope_index.cmp(&chosen[x].telescope_index))
+        })
+        .expect("non-empty");
+    let best_single_cov = idx
+        .iter()
+        .map(|&i| chosen[i].event.coverage)
+        .fold(0.0, f64::max);
+    let site = |i: usize| telescopes[chosen[i].telescope_index].site_index;
+    let mut pair: Option<(usize, usize, f64)> = None;
+    for &a in idx
+        .iter()
+        .filter(|&&i| chosen[i].event.verdict == Verdict::IngressOnly)
+    {
+        for &b in idx
+            .iter()
+            .filter(|&&i| chosen[i].event.verdict == Verdict::EgressOnly)
+        {
+            if site(a) == site(b) {
+                continue;
+            }
+            let c = combined_coverage(&chosen[a].event, &chosen[b].event);
+            let better = match pair {
+                None => true,
+                Some((pa, pb, pc)) => {
+                    let sum = chosen[a].score + chosen[b].score;
+                    let psum = chosen[pa].score + chosen[pb].score;
+                    c > pc + 1e-9 || ((c - pc).abs() <= 1e-9 && sum > psum + 1e-12)
+                }
+            };
+            if better {
+                pair = Some((a, b, c));
+            }
+        }
+    }
+    match pair {
+        Some((a, b, c)) if c > best_single_cov + 1e-9 => Keep::Pair(a, b, c),
+        _ => Keep::One(best),
     }
 }
 

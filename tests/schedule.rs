@@ -178,6 +178,85 @@ fn complementary_ingress_and_egress_at_two_sites_are_paired() {
 }
 
 #[test]
+fn complementary_pairs_with_any_number_of_telescopes_per_site() {
+    let (_, targets, events) = inputs();
+    let base = events
+        .iter()
+        .find(|e| e.verdict == Verdict::Whole)
+        .unwrap()
+        .clone();
+    let mid = base.mid_utc;
+    let mut ing = base.clone();
+    ing.verdict = Verdict::IngressOnly;
+    ing.usable = Some(dipwatch::astro::crossings::Interval {
+        start: base.block_start_utc,
+        end: mid + 0.01,
+    });
+    ing.block_end_utc = mid + 0.01;
+    ing.coverage = 0.6;
+    let mut egr = base.clone();
+    egr.site_index = 1;
+    egr.verdict = Verdict::EgressOnly;
+    egr.usable = Some(dipwatch::astro::crossings::Interval {
+        start: mid - 0.01,
+        end: base.block_end_utc,
+    });
+    egr.block_start_utc = mid - 0.01;
+    egr.coverage = 0.6;
+    // Each telescope also has a transit of its own, later the same night (distinct epochs: distinct transits).
+    let own = |e: &Event, n: i64| {
+        let mut o = base.clone();
+        o.site_index = e.site_index;
+        o.epoch = 10_000 + n;
+        let shift = base.block_end_utc - base.block_start_utc + 0.05;
+        o.block_start_utc += shift;
+        o.block_end_utc += shift;
+        o
+    };
+    for n_a in 1..=3 {
+        for n_b in 1..=3 {
+            let mut tels = Vec::new();
+            for i in 0..n_a {
+                tels.push(TelescopeEvents {
+                    site_index: 0,
+                    telescope: format!("a{i}"),
+                    events: vec![ing.clone(), own(&ing, tels.len() as i64)],
+                });
+            }
+            for i in 0..n_b {
+                tels.push(TelescopeEvents {
+                    site_index: 1,
+                    telescope: format!("b{i}"),
+                    events: vec![egr.clone(), own(&egr, tels.len() as i64)],
+                });
+            }
+            let chosen = schedule(&tels, &targets, &ScoreWeights::default(), 10.0, false);
+            let paired: Vec<_> = chosen.iter().filter(|c| c.pair.is_some()).collect();
+            assert_eq!(paired.len(), 2, "{n_a} x {n_b}: {chosen:?}");
+            for c in &paired {
+                let (other, cov) = c.pair.unwrap();
+                assert!((cov - 1.0).abs() < 1e-9, "combined coverage {cov}");
+                assert_ne!(tels[other].site_index, tels[c.telescope_index].site_index);
+            }
+            // The shared transit is taken exactly twice (the pair) and every telescope keeps its own transit.
+            let shared = chosen
+                .iter()
+                .filter(|c| c.event.epoch == base.epoch)
+                .count();
+            assert_eq!(shared, 2, "{n_a} x {n_b}");
+            for ti in 0..tels.len() {
+                assert!(
+                    chosen
+                        .iter()
+                        .any(|c| c.telescope_index == ti && c.event.epoch >= 10_000),
+                    "{n_a} x {n_b}: telescope {ti} lost its own transit"
+                );
+            }
+        }
+    }
+}
+
+#[test]
 fn schedule_command_and_calendar_of_the_schedule() {
     let root = env!("CARGO_MANIFEST_DIR");
     let run = |args: &[&str]| {
