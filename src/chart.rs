@@ -337,6 +337,16 @@ pub fn night_chart_svg(
         &format!(r##"stroke="{INK}" stroke-width="1.2" stroke-dasharray="8,4""##),
         "limit",
     );
+    if let Some(max_alt) = site.max_alt_deg {
+        svg.line(
+            x0,
+            ys(max_alt),
+            x1,
+            ys(max_alt),
+            &format!(r##"stroke="{INK}" stroke-width="1.2" stroke-dasharray="2,4""##),
+            "zenith-limit",
+        );
+    }
     if !site.horizon.is_empty() {
         let pts: Vec<(f64, f64)> = ts
             .iter()
@@ -499,6 +509,16 @@ pub fn night_chart_svg(
         "altitude limit",
         &mut lx,
     );
+    if site.max_alt_deg.is_some() {
+        item(
+            &mut svg,
+            &format!(
+                r##"<path d="M {{x}} {{y}} h 24" stroke="{INK}" stroke-width="1.2" stroke-dasharray="2,4"/>"##
+            ),
+            "highest trackable",
+            &mut lx,
+        );
+    }
     if !site.horizon.is_empty() {
         item(
             &mut svg,

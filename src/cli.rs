@@ -1050,11 +1050,13 @@ fn make_schedule(
     let weights = c.weights();
     let mut tels = Vec::new();
     for (si, site) in sites.iter().enumerate() {
-        // Telescopes sharing an altitude limit share one plan.
-        let mut cache: Vec<(f64, Vec<dipwatch::plan::Event>)> = Vec::new();
+        // Telescopes sharing their altitude limits share one plan.
+        type Limits = (f64, Option<f64>);
+        let mut cache: Vec<(Limits, Vec<dipwatch::plan::Event>)> = Vec::new();
         for t in &site.telescopes {
             let s = site.for_telescope(t);
-            let events = match cache.iter().find(|(a, _)| *a == s.min_alt_deg) {
+            let limits = (s.min_alt_deg, s.max_alt_deg);
+            let events = match cache.iter().find(|(a, _)| *a == limits) {
                 Some((_, ev)) => ev.clone(),
                 None => {
                     let mut p = plan(std::slice::from_ref(&s), targets, opts);
@@ -1062,7 +1064,7 @@ fn make_schedule(
                     for e in &mut ev {
                         e.site_index = si;
                     }
-                    cache.push((s.min_alt_deg, ev.clone()));
+                    cache.push((limits, ev.clone()));
                     ev
                 }
             };

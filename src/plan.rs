@@ -96,6 +96,8 @@ pub enum Reason {
     Daylight,
     /// The target is below the site's lowest usable altitude (or highest airmass).
     BelowAltitudeLimit,
+    /// The target is above the highest altitude the mount can track through (`max_alt_deg`).
+    AboveAltitudeLimit,
     /// The target is behind the site's horizon profile.
     BelowHorizonProfile,
     /// The target is outside the site's hour-angle limits.
@@ -116,6 +118,7 @@ impl Reason {
         match self {
             Reason::Daylight => "daylight",
             Reason::BelowAltitudeLimit => "below-altitude-limit",
+            Reason::AboveAltitudeLimit => "above-altitude-limit",
             Reason::BelowHorizonProfile => "below-horizon-profile",
             Reason::HourAngleLimit => "hour-angle-limit",
             Reason::MoonTooClose => "moon-too-close",
@@ -349,6 +352,28 @@ impl Track {
     }
 }
 
+/// The parts of `block` outside the sorted, disjoint `list`.
+fn complement_within(list: &[Interval], block: &Interval) -> Vec<Interval> {
+    let mut out = Vec::new();
+    let mut from = block.start;
+    for iv in list {
+        if iv.start > from {
+            out.push(Interval {
+                start: from,
+                end: iv.start.min(block.end),
+            });
+        }
+        from = from.max(iv.end);
+    }
+    if from < block.end {
+        out.push(Interval {
+            start: from,
+            end: block.end,
+        });
+    }
+    out
+}
+
 /// The sub-intervals of `block` where the target is at or above `min_alt_deg`, solved exactly for the frozen
 /// apparent place: above the limit when |H| <= H0 with cos H0 = (sin h - sin phi sin dec) / (cos phi cos dec)
 /// (Meeus 1998 eq. 15.1 for any altitude h), the hour angle H advancing at the sidereal rate.
@@ -460,6 +485,14 @@ fn usable_intervals_on_track(
     apply(dark, Reason::Daylight, &mut usable);
     let alt_ok = alt_intervals(track, site.min_alt_deg, &block);
     apply(alt_ok, Reason::BelowAltitudeLimit, &mut usable);
+    if let Some(max_alt) = site.max_alt_deg {
+        let too_high = alt_intervals(track, max_alt, &block);
+        apply(
+            complement_within(&too_high, &block),
+            Reason::AboveAltitudeLimit,
+            &mut usable,
+        );
+    }
     if !site.horizon.is_empty() {
         let f = |t: f64| {
             let (alt, az) = track.alt_az_deg(t);
@@ -914,7 +947,10 @@ pub fn usable_minutes_oracle(
                 .unwrap_or(false);
             let (alt, az) =
                 crate::astro::sky::target_alt_az_deg(&icrs, JdUtc(t), &site.observer, earth);
-            let mut ok = dark && alt >= site.min_alt_deg && alt >= site.horizon.min_alt_deg(az);
+            let mut ok = dark
+                && alt >= site.min_alt_deg
+                && alt <= site.max_alt_deg.unwrap_or(90.0)
+                && alt >= site.horizon.min_alt_deg(az);
             let eo = EarthOrientation::at(JdUtc(t));
             let vel = earth.earth_bary_vel_au_per_day(jd_tdb_from_utc(JdUtc(t)).0);
             let (ra, dec) = eo.apparent_radec(&icrs, Some(&vel));

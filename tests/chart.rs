@@ -225,3 +225,43 @@ fn season_html_links_every_event_to_its_night_chart() {
         roxmltree::Document::parse(&chart).unwrap();
     }
 }
+
+#[test]
+fn night_chart_draws_the_zenith_limit_when_the_site_has_one() {
+    let d = temp("zenith");
+    let sites = d.join("sites.toml");
+    let text = std::fs::read_to_string(repo("sites.example.toml"))
+        .unwrap()
+        .replace(
+            "min_moon_sep_deg = 15\n",
+            "min_moon_sep_deg = 15\nmax_alt_deg = 85\n",
+        );
+    std::fs::write(&sites, text).unwrap();
+    let draw = |sites: &str, name: &str| {
+        let out = d.join(name);
+        run(&[
+            "chart",
+            "night",
+            "--sites",
+            sites,
+            "--targets",
+            &repo("targets.example.csv"),
+            "--site",
+            "Kestrel Moor",
+            "--target",
+            "Amberfall b",
+            "--date",
+            "2027-03-07",
+            "--out",
+            out.to_str().unwrap(),
+        ]);
+        std::fs::read_to_string(&out).unwrap()
+    };
+    let with = draw(sites.to_str().unwrap(), "with.svg");
+    let doc = roxmltree::Document::parse(&with).unwrap();
+    assert_eq!(count_class(&doc, "zenith-limit"), 1);
+    assert!(with.contains("highest trackable"));
+    let without = draw(&repo("sites.example.toml"), "without.svg");
+    let doc = roxmltree::Document::parse(&without).unwrap();
+    assert_eq!(count_class(&doc, "zenith-limit"), 0);
+}

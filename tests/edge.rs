@@ -26,9 +26,11 @@ fn site(lat: f64, lon: f64, tz: &str, min_alt: f64) -> Site {
         horizon: HorizonProfile::default(),
         hour_angle_limits_h: None,
         min_moon_sep_deg: None,
+        max_alt_deg: None,
         telescopes: vec![Telescope {
             name: "main".into(),
             min_alt_deg: None,
+            max_alt_deg: None,
         }],
     }
 }

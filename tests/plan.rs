@@ -237,6 +237,30 @@ fn ephemeris_lost_is_reported_not_listed() {
     assert!(p.lost[0].sigma_min > 14_000.0);
 }
 
+#[test]
+fn a_zenith_limit_cuts_the_block_with_its_own_reason() {
+    // The target culminates 0.3 deg from the zenith at mid-transit; a mount limited to 87 deg loses it there.
+    let mut s = site("Zenith Test", 35.0, 10.0, "Europe/Rome");
+    let d = date(2027, 1, 15);
+    let dark = nights_at(&s, d, d)[0].dark.unwrap();
+    let midnight = 0.5 * (dark.start + dark.end);
+    let t = target_at("Overhead", &s, midnight, 35.0, 3.0);
+    assert_eq!(single_event(&s, &t, d).verdict, Verdict::Whole);
+    s.max_alt_deg = Some(87.0);
+    let e = single_event(&s, &t, d);
+    assert!(e.reasons.contains(&Reason::AboveAltitudeLimit), "{e:?}");
+    assert_ne!(e.verdict, Verdict::Whole, "{e:?}");
+    assert!(e.coverage < 0.9, "{e:?}");
+    assert_eq!(Reason::AboveAltitudeLimit.label(), "above-altitude-limit");
+    // A telescope's own limit applies where the site has none.
+    s.max_alt_deg = None;
+    let mut tel = s.telescopes[0].clone();
+    tel.max_alt_deg = Some(87.0);
+    let per_tel = single_event(&s.for_telescope(&tel), &t, d);
+    assert!(per_tel.reasons.contains(&Reason::AboveAltitudeLimit));
+    assert_eq!(single_event(&s, &t, d).verdict, Verdict::Whole);
+}
+
 // -----------------------------------------------------------------------------------------------------
 // Oracle: the root-finding path against a 1-minute brute-force sampler with the full-precision pipeline.
 
@@ -254,6 +278,7 @@ fn check_against_oracle(
     horizon: bool,
     ha: bool,
     moon: bool,
+    high: bool,
 ) {
     let mut s = site("Oracle", lat, lon, "Etc/UTC");
     if horizon {
@@ -264,6 +289,9 @@ fn check_against_oracle(
     }
     if moon {
         s.min_moon_sep_deg = Some(60.0);
+    }
+    if high {
+        s.max_alt_deg = Some(75.0);
     }
     let d = date(2027, 1, 1) + chrono::Duration::days(i64::from(day));
     let night = nights_at(&s, d, d).remove(0);
@@ -319,8 +347,8 @@ proptest! {
         sin_dec in -1.0..1.0_f64,
         day in 0u32..365,
         offset_h in 0.0..20.0_f64,
-        flags in 0u8..8,
+        flags in 0u8..16,
     ) {
-        check_against_oracle(lat, lon, ra, sin_dec.asin().to_degrees(), day, offset_h, flags & 1 != 0, flags & 2 != 0, flags & 4 != 0);
+        check_against_oracle(lat, lon, ra, sin_dec.asin().to_degrees(), day, offset_h, flags & 1 != 0, flags & 2 != 0, flags & 4 != 0, flags & 8 != 0);
     }
 }

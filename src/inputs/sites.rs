@@ -27,6 +27,8 @@ pub struct Site {
     /// Lowest usable (true) altitude of the target, deg; from `min_alt_deg` or `max_airmass`, whichever is
     /// higher when both are given.
     pub min_alt_deg: f64,
+    /// Highest altitude the mount can track through (alt-azimuth mounts near the zenith), deg, if limited.
+    pub max_alt_deg: Option<f64>,
     /// Sun altitude below which the sky counts as dark, deg.
     pub darkness_alt_deg: f64,
     /// The darkness level as written (`civil`, `nautical`, `astronomical`, or a number).
@@ -48,14 +50,19 @@ pub struct Telescope {
     pub name: String,
     /// Its own lowest usable altitude, deg, if it differs from the site's.
     pub min_alt_deg: Option<f64>,
+    /// Its own highest trackable altitude, deg, if it differs from the site's.
+    pub max_alt_deg: Option<f64>,
 }
 
 impl Site {
-    /// The site as seen by one of its telescopes: the same site with that telescope's altitude limit.
+    /// The site as seen by one of its telescopes: the same site with that telescope's altitude limits.
     pub fn for_telescope(&self, t: &Telescope) -> Site {
         let mut s = self.clone();
         if let Some(a) = t.min_alt_deg {
             s.min_alt_deg = a;
+        }
+        if t.max_alt_deg.is_some() {
+            s.max_alt_deg = t.max_alt_deg;
         }
         s
     }
@@ -76,6 +83,7 @@ struct RawSite {
     elevation_m: Option<Spanned<f64>>,
     timezone: Option<Spanned<String>>,
     min_alt_deg: Option<Spanned<f64>>,
+    max_alt_deg: Option<Spanned<f64>>,
     max_airmass: Option<Spanned<f64>>,
     darkness: Option<Spanned<toml::Value>>,
     min_moon_sep_deg: Option<Spanned<f64>>,
@@ -259,6 +267,13 @@ pub fn parse_sites(file: &str, text: &str) -> Result<Vec<Site>, InputError> {
             "a lowest altitude within -5..89 deg",
         );
         ok &= check(
+            r.max_alt_deg.as_ref(),
+            "max_alt_deg",
+            30.0,
+            90.0,
+            "a highest trackable altitude within 30..90 deg",
+        );
+        ok &= check(
             r.max_airmass.as_ref(),
             "max_airmass",
             1.0,
@@ -348,6 +363,7 @@ pub fn parse_sites(file: &str, text: &str) -> Result<Vec<Site>, InputError> {
             None => vec![Telescope {
                 name: "main".into(),
                 min_alt_deg: None,
+                max_alt_deg: None,
             }],
             Some(v) => match parse_telescopes(v.get_ref()) {
                 Ok(t) => t,
@@ -385,6 +401,35 @@ pub fn parse_sites(file: &str, text: &str) -> Result<Vec<Site>, InputError> {
             (None, Some(b)) => b,
             (None, None) => 30.0,
         };
+        let max_alt_deg = r.max_alt_deg.as_ref().map(|v| *v.get_ref());
+        if let Some(v) = &r.max_alt_deg {
+            if *v.get_ref() <= min_alt_deg {
+                problems.push(
+                    at(&v.span()),
+                    "max_alt_deg",
+                    format!(
+                        "found {}, expected more than the lowest usable altitude ({min_alt_deg:.1} deg)",
+                        v.get_ref()
+                    ),
+                );
+                continue;
+            }
+        }
+        let inverted = telescopes.iter().find(|t| {
+            t.min_alt_deg.unwrap_or(min_alt_deg) >= t.max_alt_deg.or(max_alt_deg).unwrap_or(90.0)
+        });
+        if let (Some(t), Some(list)) = (inverted, &r.telescopes) {
+            problems.push(
+                at(&list.span()),
+                "telescopes",
+                format!(
+                    "telescope {:?}: found a highest altitude at or below its lowest, expected max_alt_deg above \
+                     min_alt_deg",
+                    t.name
+                ),
+            );
+            continue;
+        }
         sites.push(Site {
             name: name.unwrap().get_ref().trim().to_string(),
             observer: Observer::from_deg(lat, lon, elevation_m),
@@ -393,6 +438,7 @@ pub fn parse_sites(file: &str, text: &str) -> Result<Vec<Site>, InputError> {
             elevation_m,
             tz: tz.unwrap(),
             min_alt_deg,
+            max_alt_deg,
             darkness_alt_deg,
             darkness_label,
             horizon,
@@ -405,12 +451,14 @@ pub fn parse_sites(file: &str, text: &str) -> Result<Vec<Site>, InputError> {
 }
 
 fn parse_telescopes(v: &toml::Value) -> Result<Vec<Telescope>, String> {
-    let expected = "a count (1-20) or a list of {name = \"...\", min_alt_deg = ...} tables";
+    let expected =
+        "a count (1-20) or a list of {name = \"...\", min_alt_deg = ..., max_alt_deg = ...} tables";
     match v {
         toml::Value::Integer(n) if (1..=20).contains(n) => Ok((1..=*n)
             .map(|i| Telescope {
                 name: format!("T{i}"),
                 min_alt_deg: None,
+                max_alt_deg: None,
             })
             .collect()),
         toml::Value::Array(items) if !items.is_empty() => {
@@ -419,9 +467,12 @@ fn parse_telescopes(v: &toml::Value) -> Result<Vec<Telescope>, String> {
                 let table = item
                     .as_table()
                     .ok_or_else(|| format!("item {}: found {item}, expected {expected}", i + 1))?;
-                if let Some(k) = table.keys().find(|k| *k != "name" && *k != "min_alt_deg") {
+                if let Some(k) = table
+                    .keys()
+                    .find(|k| !["name", "min_alt_deg", "max_alt_deg"].contains(&k.as_str()))
+                {
                     return Err(format!(
-                        "item {}: unknown key {k:?}; expected name and min_alt_deg",
+                        "item {}: unknown key {k:?}; expected name, min_alt_deg and max_alt_deg",
                         i + 1
                     ));
                 }
@@ -435,28 +486,52 @@ fn parse_telescopes(v: &toml::Value) -> Result<Vec<Telescope>, String> {
                         ))
                     }
                 };
-                let min_alt_deg = match table.get("min_alt_deg") {
-                    None => None,
-                    Some(toml::Value::Float(x)) if (-5.0..=89.0).contains(x) => Some(*x),
-                    Some(toml::Value::Integer(x)) if (-5..=89).contains(x) => Some(*x as f64),
-                    Some(other) => {
-                        return Err(format!(
-                            "item {}: min_alt_deg: found {other}, expected a number within -5..89",
-                            i + 1
-                        ))
-                    }
-                };
+                let min_alt_deg = telescope_limit(table, "min_alt_deg", -5.0, 89.0, i)?;
+                let max_alt_deg = telescope_limit(table, "max_alt_deg", 30.0, 90.0, i)?;
                 if out.iter().any(|t| t.name.eq_ignore_ascii_case(&name)) {
                     return Err(format!(
                         "item {}: found the name {name:?} twice; expected unique telescope names",
                         i + 1
                     ));
                 }
-                out.push(Telescope { name, min_alt_deg });
+                out.push(Telescope {
+                    name,
+                    min_alt_deg,
+                    max_alt_deg,
+                });
             }
             Ok(out)
         }
         other => Err(format!("found {other}, expected {expected}")),
+    }
+}
+
+/// An optional altitude limit `key` of telescope item `i` (0-based), within lo..hi deg.
+fn telescope_limit(
+    table: &toml::value::Table,
+    key: &str,
+    lo: f64,
+    hi: f64,
+    i: usize,
+) -> Result<Option<f64>, String> {
+    let x = match table.get(key) {
+        None => return Ok(None),
+        Some(toml::Value::Float(x)) => *x,
+        Some(toml::Value::Integer(x)) => *x as f64,
+        Some(other) => {
+            return Err(format!(
+                "item {}: {key}: found {other}, expected a number within {lo}..{hi}",
+                i + 1
+            ))
+        }
+    };
+    if (lo..=hi).contains(&x) {
+        Ok(Some(x))
+    } else {
+        Err(format!(
+            "item {}: {key}: found {x}, expected a number within {lo}..{hi}",
+            i + 1
+        ))
     }
 }
 
@@ -552,5 +627,35 @@ horizon = [[0, 10], [180, 20]]
         );
         assert!(msg.contains("Europe/Madrid"), "suggestion missing: {msg}");
         assert!(msg.contains("s.toml:9: darkness"), "{msg}");
+    }
+
+    #[test]
+    fn zenith_limits_of_site_and_telescopes() {
+        let text = format!(
+            "{GOOD}max_alt_deg = 86\ntelescopes = [{{ name = \"alt-az\", max_alt_deg = 84 }}, {{ name = \"eq\" }}]\n"
+        );
+        let s = &parse_sites("s.toml", &text).unwrap()[0];
+        assert_eq!(s.max_alt_deg, Some(86.0));
+        assert_eq!(s.for_telescope(&s.telescopes[0]).max_alt_deg, Some(84.0));
+        assert_eq!(s.for_telescope(&s.telescopes[1]).max_alt_deg, Some(86.0));
+        // A highest altitude at or below the lowest is refused with its line.
+        let low = GOOD.replace("max_airmass = 2.0", "min_alt_deg = 50");
+        let err = parse_sites("s.toml", &format!("{low}max_alt_deg = 45\n")).unwrap_err();
+        assert!(
+            err.to_string().contains(
+                "s.toml:11: max_alt_deg: found 45, expected more than the lowest usable altitude (50.0 deg)"
+            ),
+            "{err}"
+        );
+        let err = parse_sites(
+            "s.toml",
+            &format!("{GOOD}telescopes = [{{ name = \"a\", max_alt_deg = 95 }}]\n"),
+        )
+        .unwrap_err();
+        assert!(
+            err.to_string()
+                .contains("max_alt_deg: found 95, expected a number within 30..90"),
+            "{err}"
+        );
     }
 }

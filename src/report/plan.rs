@@ -360,6 +360,7 @@ fn reason_note(r: Reason) -> &'static str {
     match r {
         Reason::Daylight => "sun",
         Reason::BelowAltitudeLimit => "low",
+        Reason::AboveAltitudeLimit => "high",
         Reason::BelowHorizonProfile => "horizon",
         Reason::HourAngleLimit => "HA",
         Reason::MoonTooClose => "moon",
@@ -371,7 +372,8 @@ fn reason_note(r: Reason) -> &'static str {
 
 const LEGEND: &str = "\
 Notes: flip HH:MM = meridian crossing inside the block (equatorial mounts flip). Limits that cut the block:
-  sun = twilight or daylight, low = below the altitude limit, horizon = behind the horizon profile,
+  sun = twilight or daylight, low = below the altitude limit, high = above the mount's highest altitude,
+  horizon = behind the horizon profile,
   HA = outside the hour-angle limits, moon = too close to the Moon, cov = under the minimum coverage,
   short = less in-transit time than the minimum, lost = ephemeris lost.
   Block = the time that can be observed; ~ beside an edge: a limit clips the planned block there.

@@ -50,9 +50,11 @@ pub fn site(name: &str, lat: f64, lon: f64, tz: &str) -> Site {
         horizon: HorizonProfile::default(),
         hour_angle_limits_h: None,
         min_moon_sep_deg: None,
+        max_alt_deg: None,
         telescopes: vec![dipwatch::inputs::sites::Telescope {
             name: "main".into(),
             min_alt_deg: None,
+            max_alt_deg: None,
         }],
     }
 }
