@@ -766,9 +766,21 @@ struct RefineArgs {
     /// Read differently named target columns: ours=theirs,...
     #[arg(long, value_name = "MAP")]
     columns: Option<String>,
-    /// Use the catalogue T0 (with its sigma) as one more data point
+    /// Fit the observations alone and write that fit (default: combine them with the catalogue T0 and P as a
+    /// Gaussian prior with their covariance; both fits are reported either way)
     #[arg(long)]
+    observations_only: bool,
+    /// Accepted for old scripts: the catalogue prior is now the default
+    #[arg(long, hide = true)]
     prior: bool,
+    /// Largest distance of an observation from its predicted transit, in combined sigmas (prediction and
+    /// observation), before it is an error: its epoch would be a guess
+    #[arg(long, value_name = "N", default_value_t = dipwatch::refine::DEFAULT_EPOCH_SIGMAS)]
+    epoch_sigma: f64,
+    /// Write --out/--in-place even when the observations alone disagree with the catalogue by more than 5
+    /// combined sigma
+    #[arg(long)]
+    accept_tension: bool,
     /// Write the updated targets CSV here (atomically)
     #[arg(long, value_name = "FILE", conflicts_with = "in_place")]
     out: Option<PathBuf>,
@@ -840,14 +852,41 @@ fn run_refine(args: RefineArgs) -> Result<()> {
         .as_ref()
         .map(|p| p.display().to_string())
         .unwrap_or_default();
-    let refinements = dipwatch::refine::refine_targets(&targets, &observations, args.prior)
-        .map_err(|e| match e {
-            dipwatch::refine::RefineError::Fit { .. } => anyhow::anyhow!("{e}"),
-            _ => anyhow::anyhow!(
-                "{observed_label}:{}",
-                e.to_string().trim_start_matches("line ")
-            ),
-        })?;
+    check_finite("epoch-sigma", args.epoch_sigma, 1.0, 1e6)?;
+    let refine_opts = dipwatch::refine::RefineOptions {
+        fit: if args.observations_only {
+            dipwatch::refine::FitKind::ObservationsOnly
+        } else {
+            dipwatch::refine::FitKind::WithPrior
+        },
+        epoch_sigmas: args.epoch_sigma,
+    };
+    let (refinements, skipped) =
+        dipwatch::refine::refine_targets(&targets, &observations, &refine_opts).map_err(
+            |e| match e {
+                dipwatch::refine::RefineError::Fit { .. } => anyhow::anyhow!("{e}"),
+                _ => anyhow::anyhow!(
+                    "{observed_label}:{}",
+                    e.to_string().trim_start_matches("line ")
+                ),
+            },
+        )?;
+    if !observations.is_empty() && skipped.len() == observations.len() {
+        let names: Vec<String> = skipped.iter().map(|s| format!("{:?}", s.target)).collect();
+        bail!(
+            "{observed_label}:{}: target {} is not in {targets_label}, nor is any other target of this file ({}); \
+             expected target names as written in the targets file",
+            skipped[0].line,
+            names[0],
+            names.join(", ")
+        );
+    }
+    for s in &skipped {
+        eprintln!(
+            "dipwatch: {observed_label}:{}: target {:?} is not in {targets_label}; row skipped",
+            s.line, s.target
+        );
+    }
     let stale_date = args
         .stale_at
         .unwrap_or_else(|| chrono::Local::now().date_naive() + Duration::days(180));
@@ -916,6 +955,28 @@ fn run_refine(args: RefineArgs) -> Result<()> {
         args.out.clone()
     };
     if let Some(out) = &out_path {
+        let tense: Vec<String> = refinements
+            .iter()
+            .filter(|r| r.tension.is_serious())
+            .map(|r| {
+                format!(
+                    "{} ({})",
+                    targets[r.target_index].name,
+                    report::tension_text(&r.tension)
+                )
+            })
+            .collect();
+        if !tense.is_empty() && !args.accept_tension {
+            emit(&text, None)?;
+            bail!(
+                "not written to {}: the observations alone disagree with the catalogue by more than {} combined sigma \
+                 for {}; check those observations (O-C against the catalogue above) and the catalogue ephemeris, or \
+                 pass --accept-tension to write the refined ephemerides anyway",
+                out.display(),
+                dipwatch::refine::TENSION_SIGMAS,
+                tense.join(", ")
+            );
+        }
         if !args.in_place && same_file(out, &targets_path) {
             bail!(
                 "--out {} is the targets file itself; pass --in-place to overwrite it",
@@ -930,8 +991,9 @@ fn run_refine(args: RefineArgs) -> Result<()> {
             .map_err(|m| anyhow::anyhow!("{targets_label}: {m}"))?;
         write_atomically(out, updated.as_bytes())?;
         eprintln!(
-            "dipwatch: wrote {} refined ephemerides to {}",
+            "dipwatch: wrote {} refined ephemerides ({}) to {}",
             updates.len(),
+            refine_opts.fit.label(),
             out.display()
         );
     }

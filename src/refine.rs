@@ -145,6 +145,191 @@ pub fn fit_linear_ephemeris(
     })
 }
 
+/// A Gaussian prior on (T0 at epoch 0, P) from a catalogue ephemeris (BJD_TDB).
+///
+/// A zero sigma means the catalogue gives no error for that parameter; it is then left out of the prior
+/// (treated as unknown rather than exact, which would let the catalogue value override every observation).
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Prior {
+    /// T0 at epoch 0, BJD_TDB.
+    pub t0: f64,
+    /// Period, days.
+    pub period_days: f64,
+    /// 1-sigma of T0, days (0: not constrained).
+    pub t0_sigma_days: f64,
+    /// 1-sigma of P, days (0: not constrained).
+    pub period_sigma_days: f64,
+    /// Covariance of T0 and P, days^2 (used only when both sigmas are positive).
+    pub cov_days2: f64,
+}
+
+impl Prior {
+    /// The prior of a catalogue ephemeris already in BJD_TDB.
+    pub fn of(e: &Ephemeris) -> Prior {
+        Prior {
+            t0: e.t0,
+            period_days: e.period_days,
+            t0_sigma_days: e.t0_sigma_days,
+            period_sigma_days: e.period_sigma_days,
+            cov_days2: e.cov_t0_period_days2,
+        }
+    }
+
+    /// Inverse covariance (precision) of (T0, P), and the number of constrained parameters.
+    fn precision(&self) -> ([[f64; 2]; 2], usize) {
+        let (st, sp) = (self.t0_sigma_days, self.period_sigma_days);
+        match (st > 0.0, sp > 0.0) {
+            (true, true) => {
+                let det = st * st * sp * sp - self.cov_days2 * self.cov_days2;
+                if det > 0.0 {
+                    (
+                        [
+                            [sp * sp / det, -self.cov_days2 / det],
+                            [-self.cov_days2 / det, st * st / det],
+                        ],
+                        2,
+                    )
+                } else {
+                    // An inconsistent covariance (|rho| >= 1): keep the two variances only.
+                    ([[1.0 / (st * st), 0.0], [0.0, 1.0 / (sp * sp)]], 2)
+                }
+            }
+            (true, false) => ([[1.0 / (st * st), 0.0], [0.0, 0.0]], 1),
+            (false, true) => ([[0.0, 0.0], [0.0, 1.0 / (sp * sp)]], 1),
+            (false, false) => ([[0.0; 2]; 2], 0),
+        }
+    }
+}
+
+/// Weighted linear least squares of Tc(n) = T_ref + (n - n_ref) P with a Gaussian prior on (T0, P): the
+/// maximum of the posterior, i.e. generalised least squares with the prior as two more (correlated) data
+/// rows (e.g. Press et al., Numerical Recipes, 3rd ed., section 15.4, normal equations; the prior enters the
+/// normal matrix as its inverse covariance). Solved in the information form about the information-weighted
+/// mean epoch n_c (the prior's T0 weighs in at epoch 0): N x = r with x = (T(n_c), P).
+///
+/// chi-square counts the observations and the prior's residual (r^T C^-1 r); the degrees of freedom are the
+/// observations plus the constrained prior parameters minus 2; sigmas are scaled by sqrt(chi2/dof) when that
+/// exceeds 1, as in [`fit_linear_ephemeris`]. `residuals_days` are those of the observed points only.
+pub fn fit_with_prior(
+    points: &[TimingPoint],
+    prior: &Prior,
+    ref_epoch: Option<i64>,
+) -> Result<LinearFit, FitError> {
+    for (i, p) in points.iter().enumerate() {
+        if !(p.sigma_days > 0.0 && p.sigma_days.is_finite()) {
+            return Err(FitError::BadSigma(i + 1, p.sigma_days));
+        }
+    }
+    let (lambda, n_prior) = prior.precision();
+    let w: Vec<f64> = points
+        .iter()
+        .map(|p| 1.0 / (p.sigma_days * p.sigma_days))
+        .collect();
+    // Centre on the mean epoch of the information (observations, and the prior's T0 at epoch 0).
+    let sw: f64 = w.iter().sum::<f64>() + lambda[0][0];
+    let n_c = points
+        .iter()
+        .zip(&w)
+        .map(|(p, wi)| wi * p.epoch as f64)
+        .sum::<f64>()
+        / sw;
+    let t_off = points.first().map(|p| p.bjd_tdb).unwrap_or(prior.t0);
+    let mut nm = [[0.0_f64; 2]; 2];
+    let mut rhs = [0.0_f64; 2];
+    for (p, wi) in points.iter().zip(&w) {
+        let h = [1.0, p.epoch as f64 - n_c];
+        let y = p.bjd_tdb - t_off;
+        for a in 0..2 {
+            rhs[a] += wi * h[a] * y;
+            for b in 0..2 {
+                nm[a][b] += wi * h[a] * h[b];
+            }
+        }
+    }
+    // Prior: (T0, P) = G x + (t_off, 0) with G = [[1, -n_c], [0, 1]].
+    let g = [[1.0, -n_c], [0.0, 1.0]];
+    let d_prior = [prior.t0 - t_off, prior.period_days];
+    let mut gl = [[0.0_f64; 2]; 2]; // G^T Lambda
+    for a in 0..2 {
+        for b in 0..2 {
+            gl[a][b] = (0..2).map(|k| g[k][a] * lambda[k][b]).sum();
+        }
+    }
+    for a in 0..2 {
+        rhs[a] += (0..2).map(|k| gl[a][k] * d_prior[k]).sum::<f64>();
+        for b in 0..2 {
+            nm[a][b] += (0..2).map(|k| gl[a][k] * g[k][b]).sum::<f64>();
+        }
+    }
+    let det = nm[0][0] * nm[1][1] - nm[0][1] * nm[1][0];
+    let scale = nm[0][0].abs() * nm[1][1].abs();
+    if det.is_nan() || det <= 1e-12 * scale {
+        let mut epochs: Vec<i64> = points.iter().map(|p| p.epoch).collect();
+        epochs.sort_unstable();
+        epochs.dedup();
+        return Err(FitError::TooFewEpochs(epochs.len()));
+    }
+    let inv = [
+        [nm[1][1] / det, -nm[0][1] / det],
+        [-nm[1][0] / det, nm[0][0] / det],
+    ];
+    let c = inv[0][0] * rhs[0] + inv[0][1] * rhs[1];
+    let per = inv[1][0] * rhs[0] + inv[1][1] * rhs[1];
+    let residuals_days: Vec<f64> = points
+        .iter()
+        .map(|p| (p.bjd_tdb - t_off) - (c + per * (p.epoch as f64 - n_c)))
+        .collect();
+    let mut chi2: f64 = residuals_days
+        .iter()
+        .zip(&w)
+        .map(|(r, wi)| r * r * wi)
+        .sum();
+    let rp = [d_prior[0] - (c - n_c * per), d_prior[1] - per];
+    chi2 += (0..2)
+        .map(|a| (0..2).map(|b| rp[a] * lambda[a][b] * rp[b]).sum::<f64>())
+        .sum::<f64>();
+    let dof = (points.len() + n_prior).saturating_sub(2);
+    let reduced_chi2 = if dof > 0 { chi2 / dof as f64 } else { f64::NAN };
+    let sigma_scale = if reduced_chi2 > 1.0 {
+        reduced_chi2.sqrt()
+    } else {
+        1.0
+    };
+    let k2 = sigma_scale * sigma_scale;
+    let n_ref = ref_epoch.unwrap_or(n_c.round() as i64);
+    let d = n_ref as f64 - n_c;
+    // Move to n_ref: a = c + d P; var(a) = var(c) + 2 d cov(c, P) + d^2 var(P); cov(a, P) = cov(c, P) + d var(P).
+    let var_a = inv[0][0] + 2.0 * d * inv[0][1] + d * d * inv[1][1];
+    let cov_ap = inv[0][1] + d * inv[1][1];
+    Ok(LinearFit {
+        ref_epoch: n_ref,
+        t_ref: t_off + c + d * per,
+        period_days: per,
+        sigma_t_ref_days: (var_a.max(0.0) * k2).sqrt(),
+        sigma_period_days: (inv[1][1].max(0.0) * k2).sqrt(),
+        cov_days2: cov_ap * k2,
+        chi2,
+        dof,
+        reduced_chi2,
+        sigma_scale,
+        residuals_days,
+    })
+}
+
+impl LinearFit {
+    /// The fitted ephemeris in BJD_TDB with T0 at the reference epoch.
+    pub fn ephemeris(&self) -> Ephemeris {
+        Ephemeris {
+            t0: self.t_ref,
+            t0_sigma_days: self.sigma_t_ref_days,
+            period_days: self.period_days,
+            period_sigma_days: self.sigma_period_days,
+            cov_t0_period_days2: self.cov_days2,
+            system: crate::astro::barycentric::TimeSystem::BjdTdb,
+        }
+    }
+}
+
 /// The epoch of each time by rounding against `eph` (times and `eph` in the same system).
 ///
 /// Returns the epochs, or the index of the first time that sits more than P/4 from its predicted transit
@@ -228,9 +413,17 @@ use crate::astro::barycentric::{EarthTable, TimeSystem};
 use crate::inputs::observed::Observation;
 use crate::inputs::targets::Target;
 
-/// Points beyond this many sigmas from the refined ephemeris are flagged in the O-C table (common practice,
-/// no source).
+/// Points beyond this many sigmas from the refined ephemeris, or from the catalogue prediction, are flagged in
+/// the O-C table (common practice, no source).
 pub const OUTLIER_SIGMAS: f64 = 3.0;
+
+/// Refined and catalogue ephemerides further apart than this many combined sigmas are in tension: the refined
+/// one is not written unless the user accepts it (common practice, no source).
+pub const TENSION_SIGMAS: f64 = 5.0;
+
+/// Default largest distance of an observation from its predicted transit, in combined sigmas, before its
+/// epoch is treated as unknown (common practice, no source; `--epoch-sigma`).
+pub const DEFAULT_EPOCH_SIGMAS: f64 = 5.0;
 
 /// One row of the O-C table.
 #[derive(Debug, Clone, PartialEq)]
@@ -239,7 +432,7 @@ pub struct OcRow {
     pub epoch: i64,
     /// Observed time converted to BJD_TDB.
     pub bjd_tdb: f64,
-    /// Observed minus computed (refined ephemeris), minutes.
+    /// Observed minus computed (the written ephemeris), minutes.
     pub o_minus_c_min: f64,
     /// The point's 1-sigma, minutes.
     pub sigma_min: f64,
@@ -247,10 +440,58 @@ pub struct OcRow {
     pub n_sigma: f64,
     /// |O-C| > 3 sigma.
     pub outlier: bool,
+    /// Observed minus the catalogue prediction, minutes.
+    pub o_minus_cat_min: f64,
+    /// Combined 1-sigma of the observation and the catalogue prediction at this epoch, minutes.
+    pub cat_sigma_min: f64,
+    /// (O - catalogue) / combined sigma.
+    pub cat_n_sigma: f64,
+    /// |O - catalogue| > 3 combined sigma.
+    pub cat_outlier: bool,
     /// Source label.
     pub source: String,
-    /// Line in the observed file (None for the catalogue prior point).
+    /// Line in the observed file.
     pub line: Option<usize>,
+}
+
+/// Which fit an ephemeris comes from.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum FitKind {
+    /// Observations combined with the catalogue ephemeris as a Gaussian prior (the default).
+    WithPrior,
+    /// Observations alone.
+    ObservationsOnly,
+}
+
+impl FitKind {
+    /// The label used in every output.
+    pub fn label(self) -> &'static str {
+        match self {
+            FitKind::WithPrior => "with-catalogue-prior",
+            FitKind::ObservationsOnly => "observations-only",
+        }
+    }
+}
+
+/// How far the observations alone put T0 and P from the catalogue, in combined sigmas.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Tension {
+    /// |T(n_ref) observed - catalogue| / combined sigma, at the observations' reference epoch.
+    pub t_sigmas: f64,
+    /// |P observed - catalogue| / combined sigma (None with a single epoch, where P is not measured).
+    pub p_sigmas: Option<f64>,
+}
+
+impl Tension {
+    /// The larger of the two.
+    pub fn worst(&self) -> f64 {
+        self.t_sigmas.max(self.p_sigmas.unwrap_or(0.0))
+    }
+
+    /// True above [`TENSION_SIGMAS`].
+    pub fn is_serious(&self) -> bool {
+        self.worst() > TENSION_SIGMAS
+    }
 }
 
 /// The refinement of one target.
@@ -258,25 +499,54 @@ pub struct OcRow {
 pub struct TargetRefinement {
     /// Target index in the input list.
     pub target_index: usize,
-    /// The fit.
+    /// The fit that is reported as "refined" and written (see `written`).
     pub fit: LinearFit,
     /// The refined ephemeris in BJD_TDB, with T0 at the reference epoch.
     pub ephemeris: Ephemeris,
-    /// The O-C table, observed points first in file order, then the prior point if used.
+    /// Which fit `fit` is.
+    pub written: FitKind,
+    /// The fit with the catalogue prior, when it could be made.
+    pub with_prior: Option<LinearFit>,
+    /// The fit of the observations alone (None with fewer than two epochs).
+    pub observations_only: Option<LinearFit>,
+    /// The catalogue ephemeris converted to BJD_TDB.
+    pub catalogue_bjd: Ephemeris,
+    /// Observations alone against the catalogue.
+    pub tension: Tension,
+    /// The O-C table, observed points in file order.
     pub rows: Vec<OcRow>,
+}
+
+/// An observed row that was left out, and why.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Skipped {
+    /// Line in the observed file.
+    pub line: usize,
+    /// Target name as written.
+    pub target: String,
+}
+
+/// Options of a refinement.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct RefineOptions {
+    /// Which fit to report as refined and write.
+    pub fit: FitKind,
+    /// Largest distance from the predicted transit, in combined sigmas, for assigning an epoch.
+    pub epoch_sigmas: f64,
+}
+
+impl Default for RefineOptions {
+    fn default() -> Self {
+        RefineOptions {
+            fit: FitKind::WithPrior,
+            epoch_sigmas: DEFAULT_EPOCH_SIGMAS,
+        }
+    }
 }
 
 /// Why refinement stopped.
 #[derive(Debug, Clone, PartialEq, thiserror::Error)]
 pub enum RefineError {
-    /// An observation names a target not in the targets file.
-    #[error("line {line}: target {name:?} is not in the targets file")]
-    UnknownTarget {
-        /// Line in the observed file.
-        line: usize,
-        /// Name as written.
-        name: String,
-    },
     /// An observation is more than P/4 from every predicted transit.
     #[error("line {line}: {target} observed at {tc} is {offset_min:.1} min from the nearest predicted transit, more than a quarter of the period ({quarter_min:.1} min): the epoch is ambiguous; check the time and its time system, or the catalogue period")]
     Ambiguous {
@@ -290,6 +560,28 @@ pub enum RefineError {
         offset_min: f64,
         /// P/4, minutes.
         quarter_min: f64,
+    },
+    /// An observation is many combined sigmas from its predicted transit.
+    #[error("line {line}: {target} observed at {tc} is {offset_min:+.1} min from its predicted transit (epoch {epoch}), {n_sigma:.1} combined sigma (prediction +-{pred_sigma_min:.1} min, observation +-{obs_sigma_min:.1} min); expected within {limit} sigma: check the time, its time system and the catalogue ephemeris, or pass --epoch-sigma N if the catalogue errors are known to be too small")]
+    FarFromPrediction {
+        /// Line in the observed file.
+        line: usize,
+        /// Target name.
+        target: String,
+        /// The observed time as given.
+        tc: f64,
+        /// Epoch of the nearest predicted transit.
+        epoch: i64,
+        /// Offset from that prediction, minutes.
+        offset_min: f64,
+        /// Offset in combined sigmas.
+        n_sigma: f64,
+        /// The prediction's 1-sigma, minutes.
+        pred_sigma_min: f64,
+        /// The observation's 1-sigma, minutes.
+        obs_sigma_min: f64,
+        /// The limit, sigmas.
+        limit: f64,
     },
     /// The fit failed.
     #[error("{target}: {source}")]
@@ -313,28 +605,90 @@ pub fn to_bjd_tdb(system: TimeSystem, value: f64, target: &Target) -> f64 {
     table.time_in_system(TimeSystem::BjdTdb, utc, &icrs, None)
 }
 
-/// Refine the ephemeris of every target that has observations (or only `only`, if not empty).
+/// Epochs of the observations `obs` (times already in BJD_TDB in `times`) against the catalogue: the nearest
+/// predicted transit, which must lie within P/4 and within `limit` combined sigmas (the catalogue's sigma(n)
+/// and the observation's; the sigma test is skipped when the catalogue gives no errors).
+fn epochs_against_catalogue(
+    target: &Target,
+    cat: &Ephemeris,
+    obs: &[&Observation],
+    times: &[f64],
+    limit: f64,
+) -> Result<Vec<i64>, RefineError> {
+    let epochs = assign_epochs(cat, times).map_err(|(i, off)| RefineError::Ambiguous {
+        line: obs[i].line,
+        target: target.name.clone(),
+        tc: obs[i].tc,
+        offset_min: off * 1440.0,
+        quarter_min: cat.period_days / 4.0 * 1440.0,
+    })?;
+    let has_errors = cat.t0_sigma_days > 0.0 || cat.period_sigma_days > 0.0;
+    for (i, &n) in epochs.iter().enumerate() {
+        let off = times[i] - cat.mid_time(n);
+        let pred = cat.sigma_days(n);
+        let comb = pred.hypot(obs[i].sigma_days);
+        if has_errors && off.abs() > limit * comb {
+            return Err(RefineError::FarFromPrediction {
+                line: obs[i].line,
+                target: target.name.clone(),
+                tc: obs[i].tc,
+                epoch: n,
+                offset_min: off * 1440.0,
+                n_sigma: off.abs() / comb,
+                pred_sigma_min: pred * 1440.0,
+                obs_sigma_min: obs[i].sigma_days * 1440.0,
+                limit,
+            });
+        }
+    }
+    Ok(epochs)
+}
+
+/// Observations alone against the catalogue: T at the observations' reference epoch and P, each against the
+/// catalogue value with the combined sigma; with a single epoch, the worst observation.
+fn tension_of(cat: &Ephemeris, obs_fit: Option<&LinearFit>, rows: &[OcRow]) -> Tension {
+    match obs_fit {
+        Some(f) => {
+            let n = f.ref_epoch;
+            let dt = f.t_ref - cat.mid_time(n);
+            let st = f.sigma_t_ref_days.hypot(cat.sigma_days(n));
+            let dp = f.period_days - cat.period_days;
+            let sp = f.sigma_period_days.hypot(cat.period_sigma_days);
+            Tension {
+                t_sigmas: if st > 0.0 { dt.abs() / st } else { 0.0 },
+                p_sigmas: Some(if sp > 0.0 { dp.abs() / sp } else { 0.0 }),
+            }
+        }
+        None => Tension {
+            t_sigmas: rows.iter().map(|r| r.cat_n_sigma.abs()).fold(0.0, f64::max),
+            p_sigmas: None,
+        },
+    }
+}
+
+/// Refine the ephemeris of every target that has observations.
 ///
-/// With `use_prior`, the catalogue T0 enters as one more point at epoch 0 with its 1-sigma. Returns the
-/// refinements in target order, or the first problem (naming its line).
+/// Both fits are made when possible: the observations with the catalogue ephemeris as a Gaussian prior on
+/// (T0, P) with its covariance ([`fit_with_prior`]), and the observations alone ([`fit_linear_ephemeris`]);
+/// `opts.fit` chooses the one reported as refined. Observations of targets not in `targets` are returned as
+/// skipped. Returns the refinements in target order, or the first problem (naming its line).
 pub fn refine_targets(
     targets: &[Target],
     observations: &[Observation],
-    use_prior: bool,
-) -> Result<Vec<TargetRefinement>, RefineError> {
+    opts: &RefineOptions,
+) -> Result<(Vec<TargetRefinement>, Vec<Skipped>), RefineError> {
     let mut by_target: Vec<Vec<&Observation>> = vec![Vec::new(); targets.len()];
+    let mut skipped = Vec::new();
     for o in observations {
         match targets
             .iter()
             .position(|t| t.name.eq_ignore_ascii_case(o.target.trim()))
         {
             Some(i) => by_target[i].push(o),
-            None => {
-                return Err(RefineError::UnknownTarget {
-                    line: o.line,
-                    name: o.target.clone(),
-                })
-            }
+            None => skipped.push(Skipped {
+                line: o.line,
+                target: o.target.clone(),
+            }),
         }
     }
     let mut out = Vec::new();
@@ -342,80 +696,83 @@ pub fn refine_targets(
         if obs.is_empty() {
             continue;
         }
-        let target = &targets[ti];
-        let cat = &target.ephemeris;
-        let t0_bjd = to_bjd_tdb(cat.system, cat.t0, target);
-        let cat_bjd = Ephemeris {
-            t0: t0_bjd,
-            system: TimeSystem::BjdTdb,
-            ..*cat
-        };
-        let times: Vec<f64> = obs
-            .iter()
-            .map(|o| to_bjd_tdb(o.system, o.tc, target))
-            .collect();
-        let epochs =
-            assign_epochs(&cat_bjd, &times).map_err(|(i, off)| RefineError::Ambiguous {
-                line: obs[i].line,
-                target: target.name.clone(),
-                tc: obs[i].tc,
-                offset_min: off * 1440.0,
-                quarter_min: cat.period_days / 4.0 * 1440.0,
-            })?;
-        let mut points: Vec<TimingPoint> = obs
-            .iter()
-            .zip(&times)
-            .zip(&epochs)
-            .map(|((o, &t), &n)| TimingPoint {
-                epoch: n,
-                bjd_tdb: t,
-                sigma_days: o.sigma_days,
-                label: o.source.clone(),
-            })
-            .collect();
-        if use_prior && cat.t0_sigma_days > 0.0 {
-            points.push(TimingPoint {
-                epoch: 0,
-                bjd_tdb: t0_bjd,
-                sigma_days: cat.t0_sigma_days,
-                label: "catalogue T0".into(),
-            });
-        }
-        let fit = fit_linear_ephemeris(&points, None).map_err(|source| RefineError::Fit {
-            target: target.name.clone(),
-            source,
-        })?;
-        let rows = points
-            .iter()
-            .enumerate()
-            .map(|(i, p)| {
-                let r = fit.residuals_days[i];
-                OcRow {
-                    epoch: p.epoch,
-                    bjd_tdb: p.bjd_tdb,
-                    o_minus_c_min: r * 1440.0,
-                    sigma_min: p.sigma_days * 1440.0,
-                    n_sigma: r / p.sigma_days,
-                    outlier: (r / p.sigma_days).abs() > OUTLIER_SIGMAS,
-                    source: p.label.clone(),
-                    line: obs.get(i).map(|o| o.line),
-                }
-            })
-            .collect();
-        let ephemeris = Ephemeris {
-            t0: fit.t_ref,
-            t0_sigma_days: fit.sigma_t_ref_days,
-            period_days: fit.period_days,
-            period_sigma_days: fit.sigma_period_days,
-            cov_t0_period_days2: fit.cov_days2,
-            system: TimeSystem::BjdTdb,
-        };
-        out.push(TargetRefinement {
-            target_index: ti,
-            fit,
-            ephemeris,
-            rows,
-        });
+        out.push(refine_one(ti, &targets[ti], obs, opts)?);
     }
-    Ok(out)
+    Ok((out, skipped))
+}
+
+fn refine_one(
+    ti: usize,
+    target: &Target,
+    obs: &[&Observation],
+    opts: &RefineOptions,
+) -> Result<TargetRefinement, RefineError> {
+    let cat = &target.ephemeris;
+    let cat_bjd = Ephemeris {
+        t0: to_bjd_tdb(cat.system, cat.t0, target),
+        system: TimeSystem::BjdTdb,
+        ..*cat
+    };
+    let times: Vec<f64> = obs
+        .iter()
+        .map(|o| to_bjd_tdb(o.system, o.tc, target))
+        .collect();
+    let epochs = epochs_against_catalogue(target, &cat_bjd, obs, &times, opts.epoch_sigmas)?;
+    let points: Vec<TimingPoint> = obs
+        .iter()
+        .zip(&times)
+        .zip(&epochs)
+        .map(|((o, &t), &n)| TimingPoint {
+            epoch: n,
+            bjd_tdb: t,
+            sigma_days: o.sigma_days,
+            label: o.source.clone(),
+        })
+        .collect();
+    let fit_err = |source| RefineError::Fit {
+        target: target.name.clone(),
+        source,
+    };
+    let with_prior = fit_with_prior(&points, &Prior::of(&cat_bjd), None);
+    let observations_only = fit_linear_ephemeris(&points, None);
+    let fit = match opts.fit {
+        FitKind::WithPrior => with_prior.clone().map_err(fit_err)?,
+        FitKind::ObservationsOnly => observations_only.clone().map_err(fit_err)?,
+    };
+    let rows: Vec<OcRow> = points
+        .iter()
+        .enumerate()
+        .map(|(i, p)| {
+            let r = fit.residuals_days[i];
+            let oc_cat = p.bjd_tdb - cat_bjd.mid_time(p.epoch);
+            let comb = cat_bjd.sigma_days(p.epoch).hypot(p.sigma_days);
+            OcRow {
+                epoch: p.epoch,
+                bjd_tdb: p.bjd_tdb,
+                o_minus_c_min: r * 1440.0,
+                sigma_min: p.sigma_days * 1440.0,
+                n_sigma: r / p.sigma_days,
+                outlier: (r / p.sigma_days).abs() > OUTLIER_SIGMAS,
+                o_minus_cat_min: oc_cat * 1440.0,
+                cat_sigma_min: comb * 1440.0,
+                cat_n_sigma: oc_cat / comb,
+                cat_outlier: (oc_cat / comb).abs() > OUTLIER_SIGMAS,
+                source: p.label.clone(),
+                line: Some(obs[i].line),
+            }
+        })
+        .collect();
+    let observations_only = observations_only.ok();
+    let tension = tension_of(&cat_bjd, observations_only.as_ref(), &rows);
+    Ok(TargetRefinement {
+        target_index: ti,
+        ephemeris: fit.ephemeris(),
+        fit,
+        written: opts.fit,
+        with_prior: with_prior.ok(),
+        observations_only,
+        catalogue_bjd: cat_bjd,
+        tension,
+        rows,
+    })
 }

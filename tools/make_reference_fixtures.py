@@ -4,7 +4,8 @@
 How to rerun (needs Python 3 and network access to PyPI once):
 
     python3 -m pip install pyerfa numpy
-    python3 tools/make_reference_fixtures.py
+    python3 tools/make_reference_fixtures.py               # every fixture
+    python3 tools/make_reference_fixtures.py refine_prior  # only refine_prior_*.csv
 
 It overwrites the CSV files under tests/data/reference/. The cases are drawn with a fixed seed, so a rerun with
 the same pyerfa version reproduces the files byte for byte. The first line of each file records the tool
@@ -214,6 +215,7 @@ def main():
     sun_crossing_cases(rng)
     night_fixture_cases()
     refine_cases(np.random.default_rng(6))
+    refine_prior_cases(np.random.default_rng(13))
 
 
 
@@ -285,5 +287,67 @@ def refine_cases(rng):
     write("refine_fits.csv", ["set", "t0_at_epoch0", "period_days", "var_t0_days2", "var_period_days2",
                               "cov_days2", "chi2"], fits)
 
+def refine_prior_cases(rng):
+    """Transit-time fits with the catalogue (T0, P) as a Gaussian prior, by numpy.linalg.lstsq on whitened rows:
+    one row per observation (1, n) / sigma, and the prior as two more rows L^-1 (T0, P) with C = L L^T the
+    catalogue covariance (numpy.linalg.cholesky). Parameters: T0 at epoch 0 (relative to the first time) and P;
+    covariance (A^T A)^-1 unscaled, from the SVD of A; chi2 over all rows. Some sets hold a single epoch (only the prior fixes P),
+    some have correlated priors, some disagree with the prior by many sigma."""
+    points, fits = [], []
+    for k in range(30):
+        period = float(np.exp(rng.uniform(np.log(0.5), np.log(30.0))))
+        t0 = 2458000.0 + rng.uniform(0, 3000)
+        s_t0 = rng.uniform(0.0002, 0.003)
+        s_p = 10 ** rng.uniform(-7, -4)
+        rho = 0.0 if k % 2 else rng.uniform(-0.8, 0.8)
+        cov = np.array([[s_t0 ** 2, rho * s_t0 * s_p], [rho * s_t0 * s_p, s_p ** 2]])
+        n_pts = 1 if k % 5 == 0 else int(rng.integers(2, 9))
+        if n_pts == 1:
+            epochs = np.array([int(rng.integers(50, 800))])
+        else:
+            epochs = np.sort(rng.choice(np.arange(20, 900), size=n_pts, replace=False))
+        sig = rng.uniform(0.0003, 0.002, size=n_pts)
+        # The true ephemeris sits a few catalogue sigmas away (more for every seventh set).
+        pull = 8.0 if k % 7 == 3 else 1.0
+        true_t0 = t0 + rng.normal() * s_t0 * pull
+        true_p = period + rng.normal() * s_p * pull
+        times = true_t0 + epochs * true_p + rng.normal(0, 1, size=n_pts) * sig
+        # Fit exactly the values written to the files (the covariance can nearly cancel, amplifying rounding).
+        times = np.array([float(f"{t:.9f}") for t in times])
+        sig = np.array([float(f"{x:.12e}") for x in sig])
+        t0, period = float(f"{t0:.9f}"), float(f"{period:.12f}")
+        s_t0, s_p = float(f"{s_t0:.12e}"), float(f"{s_p:.12e}")
+        cov = np.array([[s_t0 ** 2, rho * s_t0 * s_p], [rho * s_t0 * s_p, s_p ** 2]])
+        cov[0][1] = cov[1][0] = float(f"{cov[0][1]:.12e}")
+        off = float(times[0])
+        rows = [np.array([1.0, float(e)]) / s for e, s in zip(epochs, sig)]
+        rhs = [(t - off) / s for t, s in zip(times, sig)]
+        linv = np.linalg.inv(np.linalg.cholesky(cov))
+        for i in range(2):
+            rows.append(linv[i])
+            rhs.append(float(linv[i] @ np.array([t0 - off, period])))
+        a = np.vstack(rows)
+        b = np.array(rhs)
+        x, *_ = np.linalg.lstsq(a, b, rcond=None)
+        # Covariance from the SVD of A (V diag(1/s^2) V^T): inv(A^T A) would square the condition number.
+        _, sv, vt = np.linalg.svd(a, full_matrices=False)
+        pcov = (vt.T / sv ** 2) @ vt
+        chi2 = float(np.sum((a @ x - b) ** 2))
+        for e, t, sg in zip(epochs, times, sig):
+            points.append((str(k), str(int(e)), f"{t:.9f}", f"{sg:.12e}"))
+        fits.append((str(k), f"{t0:.9f}", f"{period:.12f}", f"{s_t0:.12e}", f"{s_p:.12e}",
+                     f"{cov[0][1]:.12e}", f"{x[0] + off:.9f}", f"{x[1]:.12f}", f"{pcov[0][0]:.12e}",
+                     f"{pcov[1][1]:.12e}", f"{pcov[0][1]:.12e}", f"{chi2:.9f}"))
+    write("refine_prior_points.csv", ["set", "epoch", "bjd_tdb", "sigma_days"], points)
+    write("refine_prior_fits.csv", ["set", "prior_t0", "prior_period_days", "prior_t0_sigma_days",
+                                    "prior_period_sigma_days", "prior_cov_days2", "t0_at_epoch0", "period_days",
+                                    "var_t0_days2", "var_period_days2", "cov_days2", "chi2"], fits)
+
+
 if __name__ == "__main__":
-    main()
+    # `python3 tools/make_reference_fixtures.py refine_prior` rebuilds only the prior-fit fixture.
+    if sys.argv[1:] == ["refine_prior"]:
+        os.makedirs(OUT, exist_ok=True)
+        refine_prior_cases(np.random.default_rng(13))
+    else:
+        main()

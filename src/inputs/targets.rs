@@ -160,7 +160,12 @@ pub const COLUMNS: &[ColumnSpec] = &[
     },
 ];
 
-/// Our column name -> the header used in the user's file.
+/// Columns that may be mapped to two columns, `ours=PLUS|MINUS` (two-sided errors). Reading takes the larger
+/// magnitude (a conservative choice: never the optimistic side); `refine --out` writes the refined sigma into
+/// both, keeping the minus column's sign convention.
+pub const TWO_SIDED: [&str; 2] = ["t0_sigma_days", "period_sigma_days"];
+
+/// Our column name -> the header used in the user's file (`PLUS|MINUS` for a two-sided error).
 #[derive(Debug, Clone, Default, PartialEq)]
 pub struct ColumnMap(pub HashMap<String, String>);
 
@@ -175,6 +180,12 @@ impl ColumnMap {
                 ));
             };
             let ours = ours.trim().to_ascii_lowercase();
+            if theirs.contains('|') && !TWO_SIDED.contains(&ours.as_str()) {
+                return Err(format!(
+                    "found {part:?}, but two columns joined by | (PLUS|MINUS) are accepted only for {}",
+                    TWO_SIDED.join(" and ")
+                ));
+            }
             if !COLUMNS.iter().any(|c| c.name == ours) {
                 let names: Vec<&str> = COLUMNS.iter().map(|c| c.name).collect();
                 return Err(format!(
@@ -225,13 +236,34 @@ pub fn parse_targets(file: &str, text: &str, map: &ColumnMap) -> Result<Vec<Targ
         "a header line and one row per target (see targets.example.csv)",
     )?;
     let mut index = HashMap::new();
+    // Second ("minus") columns of two-sided errors mapped as `ours=PLUS|MINUS`.
+    let mut minus_index: HashMap<&str, usize> = HashMap::new();
     let mut problems = Problems::default();
     for spec in COLUMNS {
-        let wanted = map
+        let mapped = map
             .0
             .get(spec.name)
             .map(|s| s.trim().to_lowercase())
             .unwrap_or_else(|| spec.name.to_string());
+        let (wanted, minus) = match mapped.split_once('|') {
+            Some((a, b)) => (a.trim().to_string(), Some(b.trim().to_string())),
+            None => (mapped, None),
+        };
+        if let Some(m) = minus {
+            match lowered.iter().position(|h| *h == m) {
+                Some(j) => {
+                    minus_index.insert(spec.name, j);
+                }
+                None => problems.push(
+                    Some(header_line),
+                    spec.name,
+                    format!(
+                        "column {m:?} (the minus side of a two-sided error) not found in the header (found: {})",
+                        lowered.join(", ")
+                    ),
+                ),
+            }
+        }
         match lowered.iter().position(|h| *h == wanted) {
             Some(i) => {
                 index.insert(spec.name, i);
@@ -267,7 +299,28 @@ pub fn parse_targets(file: &str, text: &str, map: &ColumnMap) -> Result<Vec<Targ
         if record.iter().all(|f| f.trim().is_empty()) {
             continue;
         }
+        // Two-sided errors: the larger of the two magnitudes (never the optimistic side).
+        let two_sided: HashMap<&str, String> = minus_index
+            .iter()
+            .map(|(&name, &j)| {
+                let plus = index
+                    .get(name)
+                    .and_then(|&i| record.get(i))
+                    .unwrap_or("")
+                    .trim();
+                let minus = record.get(j).unwrap_or("").trim();
+                let combined = match (plus.parse::<f64>(), minus.parse::<f64>()) {
+                    (Ok(a), Ok(b)) => format!("{}", a.abs().max(b.abs())),
+                    (Ok(_), Err(_)) => minus.to_string(),
+                    _ => plus.to_string(),
+                };
+                (name, combined)
+            })
+            .collect();
         let cell = |name: &str| {
+            if let Some(v) = two_sided.get(name) {
+                return v.as_str();
+            }
             index
                 .get(name)
                 .and_then(|&i| record.get(i))

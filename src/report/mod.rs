@@ -11,7 +11,7 @@ pub use plan::{
     csv_header, plan_csv, plan_json, plan_table, push_event_csv_rows, EventRecord, EVENT_FIELDS,
 };
 pub use refine::{
-    refine_csv, refine_json, refine_text, rewrite_targets_csv, stale_status, StaleRow,
+    refine_csv, refine_json, refine_text, rewrite_targets_csv, stale_status, tension_text, StaleRow,
 };
 pub use schedule::{schedule_csv, schedule_json, schedule_table, SCHEDULE_FIELDS};
 pub use tonight::{countdown, tonight_json, tonight_text, Absence};

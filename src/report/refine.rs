@@ -3,7 +3,7 @@
 use super::round;
 use crate::ephemeris::Ephemeris;
 use crate::inputs::targets::{detect_delimiter, ColumnMap, Target};
-use crate::refine::{Staleness, TargetRefinement};
+use crate::refine::{FitKind, LinearFit, Staleness, TargetRefinement, Tension};
 use comfy_table::{Cell, CellAlignment, ContentArrangement};
 use serde_json::json;
 
@@ -31,7 +31,54 @@ pub fn stale_status(s: &Staleness, fraction: f64) -> &'static str {
     }
 }
 
-/// Text report: per refined target the old and new ephemeris and the O-C table; then the staleness table.
+/// `T 1.2 sigma, P 0.4 sigma` for a tension.
+pub fn tension_text(t: &Tension) -> String {
+    match t.p_sigmas {
+        Some(p) => format!("T0 {:.1} sigma, P {:.1} sigma", t.t_sigmas, p),
+        None => format!("{:.1} sigma (one epoch: P not measured)", t.t_sigmas),
+    }
+}
+
+fn cov_text(c: f64) -> String {
+    if c.abs() < 1e-30 {
+        "0".to_string()
+    } else {
+        format!("{c:.2e}")
+    }
+}
+
+/// One fit as a line: T0 at its reference epoch, P, their sigmas and covariance, the chi-square.
+fn fit_line(label: &str, f: &LinearFit, written: bool) -> String {
+    let chi = if f.dof > 0 {
+        format!(
+            "chi2 {:.2}/{} dof{}",
+            f.chi2,
+            f.dof,
+            if f.sigma_scale > 1.0 {
+                format!(", sigmas x{:.2}", f.sigma_scale)
+            } else {
+                String::new()
+            }
+        )
+    } else {
+        "no chi-square test (as many data as parameters)".to_string()
+    };
+    format!(
+        "  {label:<18} T0 {:.6} BJD_TDB +- {:.6} d   P {:.9} +- {:.2e} d{}\n  {:<18} cov {} d^2, T0 at epoch {} of the catalogue, {chi}\n",
+        f.t_ref,
+        f.sigma_t_ref_days,
+        f.period_days,
+        f.sigma_period_days,
+        if written { "   <- refined" } else { "" },
+        "",
+        cov_text(f.cov_days2),
+        f.ref_epoch,
+    )
+}
+
+/// Text report: per refined target the catalogue ephemeris, both fits (the one reported as refined marked),
+/// the tension between the observations and the catalogue, and the O-C table against both; then the
+/// staleness table.
 pub fn refine_text(
     refinements: &[TargetRefinement],
     targets: &[Target],
@@ -43,75 +90,95 @@ pub fn refine_text(
     for r in refinements {
         let t = &targets[r.target_index];
         let old = &t.ephemeris;
-        let f = &r.fit;
-        let n_obs = r.rows.iter().filter(|x| x.line.is_some()).count();
+        let n_obs = r.rows.len();
         out.push_str(&format!(
-            "{}: {} observed transit{}{}\n",
+            "{}: {} observed transit{}\n",
             t.name,
             n_obs,
             if n_obs == 1 { "" } else { "s" },
-            if r.rows.len() > n_obs {
-                " + catalogue T0 as a prior point"
-            } else {
-                ""
-            }
         ));
         out.push_str(&format!(
-            "  catalogue  T0 {:.6} {} +- {:.6} d   P {:.9} +- {:.2e} d\n",
+            "  {:<18} T0 {:.6} {} +- {:.6} d   P {:.9} +- {:.2e} d\n{}",
+            "catalogue",
             old.t0,
             old.system.name(),
             old.t0_sigma_days,
             old.period_days,
-            old.period_sigma_days
-        ));
-        out.push_str(&format!(
-            "  refined    T0 {:.6} BJD_TDB +- {:.6} d   P {:.9} +- {:.2e} d   cov {} d^2 (epoch {} of the catalogue)\n",
-            r.ephemeris.t0,
-            r.ephemeris.t0_sigma_days,
-            r.ephemeris.period_days,
-            r.ephemeris.period_sigma_days,
-            if r.ephemeris.cov_t0_period_days2.abs() < 1e-30 {
-                "0".to_string()
+            old.period_sigma_days,
+            if old.cov_t0_period_days2 == 0.0 {
+                String::new()
             } else {
-                format!("{:.2e}", r.ephemeris.cov_t0_period_days2)
-            },
-            f.ref_epoch
-        ));
-        if f.dof > 0 {
-            out.push_str(&format!(
-                "  chi-square {:.2} for {} degrees of freedom (reduced {:.2})",
-                f.chi2, f.dof, f.reduced_chi2
-            ));
-            if f.sigma_scale > 1.0 {
-                out.push_str(&format!(
-                    "; sigmas scaled up by sqrt(reduced chi-square) = {:.2} (common practice)",
-                    f.sigma_scale
-                ));
+                format!(
+                    "  {:<18} cov {} d^2\n",
+                    "",
+                    cov_text(old.cov_t0_period_days2)
+                )
             }
-            out.push('\n');
-        } else {
-            out.push_str("  two points for two parameters: the line passes through both, no chi-square test possible\n");
+        ));
+        match &r.with_prior {
+            Some(f) => out.push_str(&fit_line(
+                "with prior",
+                f,
+                r.written == FitKind::WithPrior,
+            )),
+            None => out.push_str("  with prior         not possible: the catalogue gives no errors and the observations hold one epoch\n"),
         }
+        match &r.observations_only {
+            Some(f) => out.push_str(&fit_line(
+                "observations only",
+                f,
+                r.written == FitKind::ObservationsOnly,
+            )),
+            None => out.push_str(
+                "  observations only  not possible: one epoch cannot fix T0 and P without the catalogue\n",
+            ),
+        }
+        out.push_str(&format!(
+            "  observations against the catalogue: {}{}\n",
+            tension_text(&r.tension),
+            if r.tension.is_serious() {
+                format!(
+                    " - MORE THAN {} SIGMA: the observations and the catalogue disagree; not written without --accept-tension",
+                    crate::refine::TENSION_SIGMAS
+                )
+            } else {
+                String::new()
+            }
+        ));
         let mut table = super::styled_table(
             vec![
                 "Epoch",
                 "BJD_TDB",
                 "O-C min",
-                "+-sig min",
+                "+-sig",
                 "O-C/sig",
+                "O-cat min",
+                "+-comb",
+                "O-cat/sig",
                 "Flag",
                 "Source",
             ],
             ContentArrangement::Disabled,
         );
         for row in &r.rows {
+            let mut flags = Vec::new();
+            if row.outlier {
+                flags.push("beyond 3 sigma of the fit");
+            }
+            if row.cat_outlier {
+                flags.push("beyond 3 sigma of the catalogue");
+            }
             table.add_row(vec![
                 Cell::new(row.epoch).set_alignment(CellAlignment::Right),
                 Cell::new(format!("{:.5}", row.bjd_tdb)),
                 Cell::new(format!("{:+.2}", row.o_minus_c_min)).set_alignment(CellAlignment::Right),
                 Cell::new(format!("{:.2}", row.sigma_min)).set_alignment(CellAlignment::Right),
                 Cell::new(format!("{:+.1}", row.n_sigma)).set_alignment(CellAlignment::Right),
-                Cell::new(if row.outlier { "beyond 3 sigma" } else { "" }),
+                Cell::new(format!("{:+.2}", row.o_minus_cat_min))
+                    .set_alignment(CellAlignment::Right),
+                Cell::new(format!("{:.2}", row.cat_sigma_min)).set_alignment(CellAlignment::Right),
+                Cell::new(format!("{:+.1}", row.cat_n_sigma)).set_alignment(CellAlignment::Right),
+                Cell::new(flags.join("; ")),
                 Cell::new(match row.line {
                     Some(l) if row.source.is_empty() => format!("line {l}"),
                     Some(l) => format!("{} (line {l})", row.source),
@@ -124,7 +191,7 @@ pub fn refine_text(
             out.push_str(line);
             out.push('\n');
         }
-        out.push('\n');
+        out.push_str("  O-C: against the refined ephemeris; O-cat: against the catalogue prediction, with the combined sigma of both.\n\n");
     }
     if !stale.is_empty() {
         out.push_str(&format!(
@@ -174,6 +241,15 @@ fn eph_json(e: &Ephemeris) -> serde_json::Value {
     })
 }
 
+fn fit_json(f: &LinearFit) -> serde_json::Value {
+    let mut v = eph_json(&f.ephemeris());
+    v["reference_epoch"] = json!(f.ref_epoch);
+    v["chi2"] = json!(round(f.chi2, 4));
+    v["dof"] = json!(f.dof);
+    v["sigma_scale"] = json!(round(f.sigma_scale, 4));
+    v
+}
+
 /// JSON: `{"refined": [...], "staleness": {...}}`.
 pub fn refine_json(
     refinements: &[TargetRefinement],
@@ -190,6 +266,14 @@ pub fn refine_json(
                 "target": targets[r.target_index].name,
                 "catalogue": eph_json(&targets[r.target_index].ephemeris),
                 "refined": eph_json(&r.ephemeris),
+                "refined_from": r.written.label(),
+                "with_prior": r.with_prior.as_ref().map(fit_json),
+                "observations_only": r.observations_only.as_ref().map(fit_json),
+                "tension": {
+                    "t0_sigmas": round(r.tension.t_sigmas, 2),
+                    "period_sigmas": r.tension.p_sigmas.map(|p| round(p, 2)),
+                    "serious": r.tension.is_serious(),
+                },
                 "reference_epoch": f.ref_epoch,
                 "chi2": round(f.chi2, 4),
                 "dof": f.dof,
@@ -202,6 +286,10 @@ pub fn refine_json(
                     "sigma_min": round(row.sigma_min, 3),
                     "n_sigma": round(row.n_sigma, 2),
                     "outlier": row.outlier,
+                    "o_minus_catalogue_min": round(row.o_minus_cat_min, 3),
+                    "catalogue_combined_sigma_min": round(row.cat_sigma_min, 3),
+                    "catalogue_n_sigma": round(row.cat_n_sigma, 2),
+                    "catalogue_outlier": row.cat_outlier,
                     "source": row.source,
                     "line": row.line,
                 })).collect::<Vec<_>>(),
@@ -241,6 +329,8 @@ pub fn refine_csv(
     let _ = w.write_record([
         "target",
         "refined",
+        "refined_from",
+        "tension_sigmas",
         "t0",
         "time_system",
         "t0_sigma_days",
@@ -270,6 +360,8 @@ pub fn refine_csv(
         let _ = w.write_record([
             t.name.clone(),
             r.is_some().to_string(),
+            r.map(|r| r.written.label().to_string()).unwrap_or_default(),
+            opt(r.map(|r| r.tension.worst())),
             format!("{:.6}", e.t0),
             e.system.name().to_string(),
             format!("{:.3e}", e.t0_sigma_days),
@@ -318,32 +410,39 @@ pub fn rewrite_targets_csv(
     if rows.is_empty() {
         return Err("the targets file has no header".into());
     }
-    let col = |rows: &mut Vec<Vec<String>>, ours: &str| -> usize {
-        let theirs = map
+    // Each of our columns -> the file's column(s); a two-sided error (`ours=PLUS|MINUS`) names two.
+    let cols_of = |rows: &mut Vec<Vec<String>>, ours: &str| -> Vec<usize> {
+        let mapped = map
             .0
             .get(ours)
             .cloned()
             .unwrap_or_else(|| ours.to_string())
             .to_lowercase();
-        match rows[0]
-            .iter()
-            .position(|h| h.trim().to_lowercase() == theirs)
-        {
-            Some(i) => i,
-            None => {
-                rows[0].push(ours.to_string());
-                rows[0].len() - 1
-            }
-        }
+        mapped
+            .split('|')
+            .map(|theirs| {
+                let theirs = theirs.trim();
+                match rows[0]
+                    .iter()
+                    .position(|h| h.trim().to_lowercase() == theirs)
+                {
+                    Some(i) => i,
+                    None => {
+                        rows[0].push(ours.to_string());
+                        rows[0].len() - 1
+                    }
+                }
+            })
+            .collect()
     };
-    let name_i = col(&mut rows, "name");
+    let name_i = cols_of(&mut rows, "name")[0];
     let cols = [
-        col(&mut rows, "t0"),
-        col(&mut rows, "t0_sigma_days"),
-        col(&mut rows, "period_days"),
-        col(&mut rows, "period_sigma_days"),
-        col(&mut rows, "t0_period_cov_days2"),
-        col(&mut rows, "time_system"),
+        cols_of(&mut rows, "t0"),
+        cols_of(&mut rows, "t0_sigma_days"),
+        cols_of(&mut rows, "period_days"),
+        cols_of(&mut rows, "period_sigma_days"),
+        cols_of(&mut rows, "t0_period_cov_days2"),
+        cols_of(&mut rows, "time_system"),
     ];
     let width = rows[0].len();
     for row in rows.iter_mut().skip(1) {
@@ -362,8 +461,12 @@ pub fn rewrite_targets_csv(
             format!("{:.3e}", e.cov_t0_period_days2),
             e.system.name().to_string(),
         ];
-        for (i, v) in cols.iter().zip(values) {
-            row[*i] = v;
+        for (targets, v) in cols.iter().zip(values) {
+            for (k, &i) in targets.iter().enumerate() {
+                // The minus side of a two-sided error keeps a leading minus sign if the file uses one.
+                let negative = k > 0 && row[i].trim_start().starts_with('-');
+                row[i] = if negative { format!("-{v}") } else { v.clone() };
+            }
         }
     }
     let mut w = csv::WriterBuilder::new()
