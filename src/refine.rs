@@ -51,7 +51,7 @@ pub struct LinearFit {
 #[derive(Debug, Clone, PartialEq, thiserror::Error)]
 pub enum FitError {
     /// Fewer than two distinct epochs.
-    #[error("needs at least two different epochs to fit T0 and P (found {0}); add observations or use --prior")]
+    #[error("needs at least two different epochs to fit T0 and P (found {0}); add observations of another epoch, or give the catalogue T0 and P their errors so the prior can fix P")]
     TooFewEpochs(usize),
     /// A sigma is not positive.
     #[error("point {0} has a 1-sigma error of {1} d; expected a positive error")]
