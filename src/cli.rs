@@ -86,10 +86,10 @@ struct OutputArgs {
 #[derive(Args, Debug)]
 struct RangeArgs {
     /// First night (local date on which it begins), YYYY-MM-DD. Default: today
-    #[arg(long, value_name = "DATE")]
+    #[arg(long, value_parser = parse_date, value_name = "DATE")]
     from: Option<NaiveDate>,
     /// Last night, inclusive, YYYY-MM-DD
-    #[arg(long, value_name = "DATE", conflicts_with = "days")]
+    #[arg(long, value_parser = parse_date, value_name = "DATE", conflicts_with = "days")]
     to: Option<NaiveDate>,
     /// Number of nights (default 30)
     #[arg(long, value_name = "N")]
@@ -285,8 +285,49 @@ fn load(input: &InputArgs) -> Result<(Vec<Site>, Vec<Target>)> {
 }
 
 /// Exactly one site from the file, named by `--site`.
-fn one_site(sites_file: &Option<PathBuf>, name: &str) -> Result<Site> {
-    let mut sites = load_sites(sites_file, &[name.to_string()])?;
+/// A command-line date: ISO 8601 `YYYY-MM-DD` only. Other common forms (`12/05/2026`, `05.12.2026`) are
+/// refused with the expected form, because their day/month order differs between countries.
+fn parse_date(text: &str) -> std::result::Result<NaiveDate, String> {
+    let t = text.trim();
+    if let Ok(d) = NaiveDate::parse_from_str(t, "%Y-%m-%d") {
+        return Ok(d);
+    }
+    let parts: Vec<&str> = t.split(['/', '.', '-']).collect();
+    let hint = match parts.as_slice() {
+        [a, b, y] if y.len() == 4 && a.parse::<u32>().is_ok() && b.parse::<u32>().is_ok() => {
+            let (a, b) = (a.parse::<u32>().unwrap_or(0), b.parse::<u32>().unwrap_or(0));
+            let as_dm = NaiveDate::from_ymd_opt(y.parse().unwrap_or(0), b, a);
+            let as_md = NaiveDate::from_ymd_opt(y.parse().unwrap_or(0), a, b);
+            match (as_dm, as_md) {
+                (Some(x), Some(y)) if x != y => {
+                    format!(" ({x} if day first, {y} if month first: write the one you mean)")
+                }
+                (Some(x), _) | (None, Some(x)) => format!(" (did you mean {x}?)"),
+                _ => String::new(),
+            }
+        }
+        _ => String::new(),
+    };
+    Err(format!(
+        "found {t:?}, expected a date as YYYY-MM-DD (ISO 8601), e.g. 2027-03-01{hint}"
+    ))
+}
+
+/// The site named `name`, or the only site of the file when no name is given.
+fn one_site(sites_file: &Option<PathBuf>, name: &Option<String>) -> Result<Site> {
+    let names: Vec<String> = name.iter().cloned().collect();
+    let mut sites = load_sites(sites_file, &names)?;
+    if sites.len() > 1 {
+        let known: Vec<&str> = sites.iter().map(|s| s.name.as_str()).collect();
+        bail!(
+            "--site: {} holds {} sites ({}); expected --site NAME to choose one",
+            sites_file
+                .as_ref()
+                .map_or_else(|| "the sites file".to_string(), |p| p.display().to_string()),
+            sites.len(),
+            known.join(", ")
+        );
+    }
     Ok(sites.remove(0))
 }
 
@@ -510,14 +551,14 @@ enum TextFormat {
 
 #[derive(Args, Debug)]
 struct TonightArgs {
-    /// The site (by name, case-insensitive)
+    /// The site (by name, case-insensitive); may be left out when the sites file holds one site
     #[arg(long, value_name = "NAME")]
-    site: String,
+    site: Option<String>,
     /// Only this target (repeatable); asked-for targets with nothing observable are explained
     #[arg(long = "target", value_name = "NAME")]
     target_names: Vec<String>,
     /// The local date on which the night begins. Default: the current or coming night at the site
-    #[arg(long, value_name = "YYYY-MM-DD")]
+    #[arg(long, value_parser = parse_date, value_name = "YYYY-MM-DD")]
     date: Option<NaiveDate>,
     #[command(flatten)]
     files: FileArgs,
@@ -577,11 +618,11 @@ struct NightsArgs {
     /// Sites file (TOML). Default: ./sites.toml
     #[arg(long, value_name = "FILE")]
     sites: Option<PathBuf>,
-    /// The site (by name, case-insensitive)
+    /// The site (by name, case-insensitive); may be left out when the sites file holds one site
     #[arg(long, value_name = "NAME")]
-    site: String,
+    site: Option<String>,
     /// First night, YYYY-MM-DD. Default: today
-    #[arg(long, value_name = "DATE")]
+    #[arg(long, value_parser = parse_date, value_name = "DATE")]
     from: Option<NaiveDate>,
     /// Number of nights
     #[arg(long, value_name = "N", default_value_t = 14)]
@@ -791,7 +832,7 @@ struct RefineArgs {
     #[arg(long, value_enum, default_value_t = Format::Table)]
     format: Format,
     /// Date at which to judge how stale each ephemeris is. Default: 180 days from today
-    #[arg(long, value_name = "DATE")]
+    #[arg(long, value_parser = parse_date, value_name = "DATE")]
     stale_at: Option<NaiveDate>,
     /// Flag targets whose timing 1-sigma exceeds this fraction of T14 at that date
     #[arg(
@@ -1175,14 +1216,14 @@ enum ChartCommand {
 struct ChartNightArgs {
     #[command(flatten)]
     files: FileArgs,
-    /// The site
+    /// The site; may be left out when the sites file holds one site
     #[arg(long, value_name = "NAME")]
-    site: String,
+    site: Option<String>,
     /// The target
     #[arg(long, value_name = "NAME")]
     target: String,
     /// The local date on which the night begins
-    #[arg(long, value_name = "YYYY-MM-DD")]
+    #[arg(long, value_parser = parse_date, value_name = "YYYY-MM-DD")]
     date: NaiveDate,
     #[command(flatten)]
     block: BlockArgs,
@@ -1219,10 +1260,10 @@ struct ChartSeasonArgs {
     #[command(flatten)]
     input: InputArgs,
     /// First night, YYYY-MM-DD
-    #[arg(long, value_name = "DATE")]
+    #[arg(long, value_parser = parse_date, value_name = "DATE")]
     from: NaiveDate,
     /// Last night, inclusive, YYYY-MM-DD
-    #[arg(long, value_name = "DATE")]
+    #[arg(long, value_parser = parse_date, value_name = "DATE")]
     to: NaiveDate,
     #[command(flatten)]
     block: BlockArgs,

@@ -215,3 +215,35 @@ fn the_scheduler_keeps_a_telescope_busy_only_while_it_can_observe() {
     let chosen = schedule(&tels, &targets, &ScoreWeights::default(), 10.0, false);
     assert_eq!(chosen.len(), 2, "{chosen:?}");
 }
+
+#[test]
+fn tonight_needs_no_site_name_when_the_file_holds_one_site() {
+    let d = common::temp("one-site");
+    let sites = d.join("sites.toml");
+    let all = std::fs::read_to_string(common::repo("sites.example.toml")).unwrap();
+    // The first [[site]] table of the example only.
+    let first: String = all
+        .split("\n[[site]]\n")
+        .take(2)
+        .collect::<Vec<_>>()
+        .join("\n[[site]]\n");
+    std::fs::write(&sites, first).unwrap();
+    let o = std::process::Command::new(env!("CARGO_BIN_EXE_dipwatch"))
+        .args([
+            "tonight",
+            "--sites",
+            sites.to_str().unwrap(),
+            "--targets",
+            &common::repo("targets.example.csv"),
+            "--date",
+            "2027-03-07",
+        ])
+        .output()
+        .unwrap();
+    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    let out = String::from_utf8_lossy(&o.stdout);
+    assert!(
+        out.starts_with("Night of Sunday 2027-03-07 at Kestrel Moor"),
+        "{out}"
+    );
+}

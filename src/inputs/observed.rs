@@ -91,11 +91,7 @@ pub fn parse_observed(file: &str, text: &str) -> Result<Vec<Observation>, InputE
         let tc = match parse_finite(cell("tc"), "a full Julian Date between 2400000 and 2600000") {
             Ok(v) if (2_400_000.0..2_600_000.0).contains(&v) => Some(v),
             Ok(v) => {
-                problems.push(
-                    Some(line),
-                    "tc",
-                    format!("found {v}, expected a full Julian Date between 2400000 and 2600000"),
-                );
+                problems.push(Some(line), "tc", crate::inputs::targets::not_a_full_jd(v));
                 None
             }
             Err(m) => {

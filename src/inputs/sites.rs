@@ -294,11 +294,17 @@ pub fn parse_sites(file: &str, text: &str) -> Result<Vec<Site>, InputError> {
                     problems.push(
                         at(&t.span()),
                         "timezone",
-                        format!(
-                            "found {:?}, expected an IANA time zone name; nearest valid names: {}",
-                            t.get_ref(),
-                            nearest_zone_names(t.get_ref(), 3).join(", ")
-                        ),
+                        match offset_zone_hint(t.get_ref()) {
+                            Some(hint) => format!(
+                                "found {:?}, expected an IANA time zone name; {hint}",
+                                t.get_ref()
+                            ),
+                            None => format!(
+                                "found {:?}, expected an IANA time zone name; nearest valid names: {}",
+                                t.get_ref(),
+                                nearest_zone_names(t.get_ref(), 3).join(", ")
+                            ),
+                        },
                     );
                     None
                 }
@@ -553,6 +559,48 @@ fn parse_darkness(v: &toml::Value) -> Result<(f64, String), String> {
     }
 }
 
+/// For a zone written as a UTC offset (`UTC-10`, `GMT+5`, `UTC+05:30`, `+8`), what to write instead: the IANA
+/// `Etc/GMT` zone for whole hours, whose sign is flipped by POSIX convention (`Etc/GMT+10` is 10 h behind UTC),
+/// or a place name when the offset is not whole hours (no `Etc` zone exists for it). Note that a fixed offset
+/// never follows daylight-saving time; a place's zone does.
+pub fn offset_zone_hint(text: &str) -> Option<String> {
+    let t = text.trim().to_ascii_uppercase();
+    let rest = t
+        .strip_prefix("UTC")
+        .or_else(|| t.strip_prefix("GMT"))
+        .unwrap_or(&t)
+        .trim();
+    let (sign, digits) = match rest.chars().next()? {
+        '+' => (1, &rest[1..]),
+        '-' => (-1, &rest[1..]),
+        _ => return None,
+    };
+    let (h, m) = match digits.split_once(':') {
+        Some((h, m)) => (h.parse::<i32>().ok()?, m.parse::<i32>().ok()?),
+        None if digits.len() == 4 => (digits[..2].parse().ok()?, digits[2..].parse().ok()?),
+        None => (digits.parse::<i32>().ok()?, 0),
+    };
+    if !(0..=14).contains(&h) || !(0..60).contains(&m) {
+        return None;
+    }
+    let side = if sign > 0 { "ahead of" } else { "behind" };
+    if m != 0 {
+        return Some(format!(
+            "a UTC offset of {}{h}:{m:02} has no IANA Etc zone; use the zone of a place that keeps it (for example \
+             Asia/Kolkata for +5:30), which also follows its daylight-saving rules",
+            if sign > 0 { '+' } else { '-' }
+        ));
+    }
+    if h == 0 {
+        return Some("for UTC itself write Etc/UTC".to_string());
+    }
+    let etc = format!("Etc/GMT{}{h}", if sign > 0 { '-' } else { '+' });
+    Some(format!(
+        "for a fixed offset of {h} h {side} UTC write {etc} (IANA's Etc zones flip the sign: {etc} is {h} h {side} \
+         UTC); a fixed offset ignores daylight-saving time, so the zone of a place is better"
+    ))
+}
+
 /// The `n` IANA zone names closest to `text` by edit distance (case-insensitive).
 pub fn nearest_zone_names(text: &str, n: usize) -> Vec<String> {
     let needle = text.trim().to_lowercase();
@@ -627,6 +675,31 @@ horizon = [[0, 10], [180, 20]]
         );
         assert!(msg.contains("Europe/Madrid"), "suggestion missing: {msg}");
         assert!(msg.contains("s.toml:9: darkness"), "{msg}");
+    }
+
+    #[test]
+    fn offsets_written_as_zones_get_the_etc_name_with_its_sign_explained() {
+        let h = offset_zone_hint("UTC-10").unwrap();
+        assert!(
+            h.contains("write Etc/GMT+10") && h.contains("flip the sign") && h.contains("behind"),
+            "{h}"
+        );
+        assert!(offset_zone_hint("GMT+3").unwrap().contains("Etc/GMT-3"));
+        assert!(offset_zone_hint("UTC+05:30")
+            .unwrap()
+            .contains("no IANA Etc zone"));
+        assert!(offset_zone_hint("+0800").unwrap().contains("Etc/GMT-8"));
+        assert_eq!(offset_zone_hint("Europe/Madird"), None);
+        // Etc/GMT+10 really is 10 h behind UTC (IANA tz database, etcetera file).
+        let tz: chrono_tz::Tz = "Etc/GMT+10".parse().unwrap();
+        let d = chrono::NaiveDate::from_ymd_opt(2027, 1, 1).unwrap();
+        assert_eq!(crate::civil::standard_offset_hours(d, tz), -10.0);
+        let text = GOOD.replace("Europe/Madrid", "UTC-10");
+        let msg = parse_sites("s.toml", &text).unwrap_err().to_string();
+        assert!(
+            msg.contains("s.toml:7: timezone: found \"UTC-10\"") && msg.contains("Etc/GMT+10"),
+            "{msg}"
+        );
     }
 
     #[test]

@@ -204,6 +204,42 @@ const MIN_FULL_JD: f64 = 2_400_000.0;
 /// Latest accepted T0: JD 2 600 000 (2406).
 const MAX_FULL_JD: f64 = 2_600_000.0;
 
+/// Offsets of the reduced Julian Dates in common use (common practice, no source): reduced JD (JD - 2400000),
+/// modified JD (JD - 2400000.5), JD - 2450000, the Kepler mission's BJD - 2454833 and TESS's BJD - 2457000.
+const REDUCED_DATE_OFFSETS: [(f64, &str); 5] = [
+    (2_400_000.0, "JD - 2400000 (reduced JD)"),
+    (2_400_000.5, "JD - 2400000.5 (MJD)"),
+    (2_450_000.0, "JD - 2450000"),
+    (2_454_833.0, "BJD - 2454833 (Kepler)"),
+    (2_457_000.0, "BJD - 2457000 (TESS)"),
+];
+
+/// The message for a time that is not a full Julian Date: what was found, what is expected, and, when it looks
+/// like a reduced date, which offsets would make it a date between 1990 and 2040 (as calendar dates).
+pub(crate) fn not_a_full_jd(v: f64) -> String {
+    let mut msg = format!("found {v}, expected a full Julian Date between 2400000 and 2600000");
+    let plausible = 2_447_892.5..2_466_154.5; // 1990-01-01 to 2040-01-01
+    let options: Vec<String> = REDUCED_DATE_OFFSETS
+        .iter()
+        .filter(|(off, _)| plausible.contains(&(v + off)))
+        .map(|(off, name)| {
+            let date = crate::civil::datetime_from_jd(v + off);
+            format!(
+                "as {name} it is JD {} ({})",
+                v + off,
+                date.format("%Y-%m-%d")
+            )
+        })
+        .collect();
+    if !options.is_empty() {
+        msg.push_str(&format!(
+            "; this looks like a reduced date: {}; add the offset your source uses (and keep its time system)",
+            options.join(", ")
+        ));
+    }
+    msg
+}
+
 /// Detect the delimiter from the first non-comment line: the most frequent of comma, semicolon and tab.
 pub(crate) fn detect_delimiter(text: &str) -> u8 {
     let header = text
@@ -337,6 +373,11 @@ pub fn parse_targets(file: &str, text: &str, map: &ColumnMap) -> Result<Vec<Targ
             let raw = cell(name);
             match parse_finite(raw, expected) {
                 Ok(v) if v >= lo && v <= hi => Some(v),
+                Ok(v) if name == "t0" => {
+                    problems.push(line, name, not_a_full_jd(v));
+                    ok = false;
+                    None
+                }
                 Ok(v) => {
                     problems.push(line, name, format!("found {v}, expected {expected}"));
                     ok = false;
