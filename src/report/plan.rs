@@ -373,9 +373,8 @@ fn reason_note(r: Reason) -> &'static str {
 const LEGEND: &str = "\
 Notes: flip HH:MM = meridian crossing inside the block (equatorial mounts flip). Limits that cut the block:
   sun = twilight or daylight, low = below the altitude limit, high = above the mount's highest altitude,
-  horizon = behind the horizon profile,
-  HA = outside the hour-angle limits, moon = too close to the Moon, cov = under the minimum coverage,
-  short = less in-transit time than the minimum, lost = ephemeris lost.
+  horizon = behind the horizon profile, HA = outside the hour-angle limits, moon = too close to the Moon,
+  cov = under the minimum coverage, short = less in-transit time than the minimum, lost = ephemeris lost.
   Block = the time that can be observed; ~ beside an edge: a limit clips the planned block there.
   Coverage is rounded down.";
 
