@@ -390,7 +390,7 @@ pub fn night_chart_svg(
     let vel = earth.earth_bary_vel_au_per_day(jd_tdb_from_utc(JdUtc(range.start)).0);
     let (ra, _) = eo.apparent_radec(&icrs, Some(&vel));
     let ha = wrap_pi(eo.last_rad(site.observer.lon_rad) - ra);
-    let sidereal_day = 1.0 / 1.002_737_811_911_354_5;
+    let sidereal_day = 1.0 / crate::astro::frames::GMST_RATE_PER_UT1_DAY;
     let mut tm = range.start - ha / std::f64::consts::TAU * sidereal_day;
     while tm < range.start {
         tm += sidereal_day;

@@ -10,6 +10,7 @@ use crate::almanac::{dark_interval, night_window};
 use crate::astro::atmosphere::airmass_kasten_young;
 use crate::astro::barycentric::EarthTable;
 use crate::astro::crossings::{intervals_where_nonnegative, Interval, DEFAULT_STEP_DAYS};
+use crate::astro::frames::GMST_RATE_PER_UT1_DAY;
 use crate::astro::frames::{
     alt_az_from_hadec, gmst_rad, separation_rad, wrap_pi, EarthOrientation, Vec3,
 };
@@ -22,8 +23,6 @@ use chrono::NaiveDate;
 use rayon::prelude::*;
 use std::f64::consts::TAU;
 
-/// Ratio of sidereal to solar time rate (IERS Conventions 2010, ERA rate 1.002 737 811 911 354 48).
-const SIDEREAL_RATE: f64 = 1.002_737_811_911_354_5;
 /// Slack when comparing interval edges: 1 s in days.
 const EDGE_SLACK_DAYS: f64 = 1.0 / 86_400.0;
 /// An ephemeris whose timing sigma exceeds this fraction of the period no longer tells which transit is which.
@@ -334,7 +333,7 @@ impl Track {
 
     /// Upper and lower meridian crossings within [start, end], UTC JD: (upper, lower).
     fn culminations(&self, start: f64, end: f64) -> (Vec<f64>, Vec<f64>) {
-        let day = 1.0 / SIDEREAL_RATE;
+        let day = 1.0 / GMST_RATE_PER_UT1_DAY;
         let t0 = start - self.ha_rad(start) / TAU * day;
         let mut upper = Vec::new();
         let mut lower = Vec::new();
@@ -399,7 +398,7 @@ fn alt_intervals(track: &Track, min_alt_deg: f64, block: &Interval) -> Vec<Inter
         return Vec::new();
     }
     let h0 = c0.acos();
-    let omega = TAU * SIDEREAL_RATE;
+    let omega = TAU * GMST_RATE_PER_UT1_DAY;
     let ha_a = track.ha_rad(block.start);
     let ha_b = ha_a + omega * (block.end - block.start);
     let mut out = Vec::new();

@@ -423,3 +423,33 @@ fn sun_crossings_match_erfa() {
         "Sun crossings worst error vs ERFA: {worst:.2} s; {polar} polar cases reported as such"
     );
 }
+
+#[test]
+fn proper_motion_matches_erfa_pmsafe_even_near_the_poles() {
+    // Fixture: erfa.pmsafe with zero parallax and radial velocity (tools/make_reference_fixtures.py,
+    // proper_motion.csv): 80 cases, a quarter within 1 deg of a pole, up to 2000 mas/yr per axis, +-100 years.
+    // Tolerance 0.01 mas: the same space-motion model, so only rounding separates the two.
+    let mut worst_mas: f64 = 0.0;
+    for r in fixture("proper_motion.csv") {
+        let v: Vec<f64> = r.iter().map(|x| x.parse().unwrap()).collect();
+        let (ra, dec) = apply_proper_motion(
+            v[0],
+            v[1],
+            v[2],
+            v[3],
+            2_451_545.0,
+            2_451_545.0 + v[4] * 365.25,
+        );
+        let sep_mas = dipwatch::astro::frames::separation_rad(
+            ra.to_radians(),
+            dec.to_radians(),
+            v[5].to_radians(),
+            v[6].to_radians(),
+        )
+        .to_degrees()
+            * 3.6e6;
+        worst_mas = worst_mas.max(sep_mas);
+    }
+    eprintln!("proper motion: worst {worst_mas:.2e} mas from ERFA");
+    assert!(worst_mas < 0.01, "worst {worst_mas} mas");
+}

@@ -6,6 +6,7 @@ How to rerun (needs Python 3 and network access to PyPI once):
     python3 -m pip install pyerfa numpy
     python3 tools/make_reference_fixtures.py               # every fixture
     python3 tools/make_reference_fixtures.py refine_prior  # only refine_prior_*.csv
+    python3 tools/make_reference_fixtures.py proper_motion # only proper_motion.csv
 
 It overwrites the CSV files under tests/data/reference/. The cases are drawn with a fixed seed, so a rerun with
 the same pyerfa version reproduces the files byte for byte. The first line of each file records the tool
@@ -216,6 +217,7 @@ def main():
     night_fixture_cases()
     refine_cases(np.random.default_rng(6))
     refine_prior_cases(np.random.default_rng(13))
+    proper_motion_cases(np.random.default_rng(21))
 
 
 
@@ -261,6 +263,27 @@ def night_fixture_cases():
            "sunset", "sunrise", "civil_dusk", "civil_dawn", "nautical_dusk", "nautical_dawn",
            "astronomical_dusk", "astronomical_dawn"], rows)
 
+
+
+def proper_motion_cases(rng):
+    """Proper motion with erfa.pmsafe (zero parallax and radial velocity), 80 cases, a quarter within 1 deg of a
+    pole, |mu| up to 2000 mas/yr per axis, +-100 years from J2000."""
+    rows = []
+    mas = math.radians(1.0 / 3.6e6)
+    for k in range(80):
+        ra = rng.uniform(0.0, 360.0)
+        dec = math.degrees(math.asin(rng.uniform(-1.0, 1.0)))
+        if k % 4 == 0:
+            dec = math.copysign(89.0 + rng.uniform(0.0, 0.99), rng.uniform(-1.0, 1.0))
+        pma, pmd = rng.uniform(-2000.0, 2000.0), rng.uniform(-2000.0, 2000.0)
+        years = rng.uniform(-100.0, 100.0)
+        ra, dec, pma, pmd, years = (float(f"{x:.9f}") for x in (ra, dec, pma, pmd, years))
+        r = erfa.pmsafe(math.radians(ra), math.radians(dec), pma * mas / math.cos(math.radians(dec)), pmd * mas,
+                        0.0, 0.0, 2451545.0, 0.0, 2451545.0, years * 365.25)
+        rows.append((f"{ra:.9f}", f"{dec:.9f}", f"{pma:.9f}", f"{pmd:.9f}", f"{years:.9f}",
+                     f"{math.degrees(r[0]) % 360.0:.12f}", f"{math.degrees(r[1]):.12f}"))
+    write("proper_motion.csv", ["ra_deg", "dec_deg", "pm_ra_cosdec_mas_per_yr", "pm_dec_mas_per_yr", "years",
+                                "ra2_deg", "dec2_deg"], rows)
 
 
 def refine_cases(rng):
@@ -349,5 +372,8 @@ if __name__ == "__main__":
     if sys.argv[1:] == ["refine_prior"]:
         os.makedirs(OUT, exist_ok=True)
         refine_prior_cases(np.random.default_rng(13))
+    elif sys.argv[1:] == ["proper_motion"]:
+        os.makedirs(OUT, exist_ok=True)
+        proper_motion_cases(np.random.default_rng(21))
     else:
         main()

@@ -121,8 +121,10 @@ impl Nutation {
     /// Nutation and mean obliquity at `jd_tt`.
     ///
     /// Source: IAU 1980 nutation series as tabulated in Meeus (1998) ch. 22 (terms >= 0.0003"), through the
-    /// `astro` crate; mean obliquity from Laskar (1986), Meeus eq. 22.3. Accuracy: 0.5" in dpsi, 0.1" in deps
-    /// against the full IAU 2000A model (Meeus ch. 22).
+    /// `astro` crate: all 63 terms of the IAU 1980 theory, not the short four-term series whose 0.5"/0.1" accuracy
+    /// Meeus quotes. Accuracy: the IAU 1980 model itself, which departs from IAU 2000A by up to about 0.05" (the
+    /// celestial-pole offsets it lacks; from memory); the apparent places built on it agree with ERFA's IAU 2006/2000A
+    /// to the tolerances of tests/reference.rs. Mean obliquity from Laskar (1986), Meeus eq. 22.3.
     pub fn at(jd_tt: f64) -> Nutation {
         let (dpsi_rad, deps_rad) = astro::nutation::nutation(jd_tt);
         Nutation {
@@ -151,13 +153,21 @@ impl Nutation {
     }
 }
 
+/// Rate of Greenwich mean sidereal time, degrees per UT1 day: the linear coefficient of Meeus (1998) eq. 12.4.
+const GMST_DEG_PER_DAY: f64 = 360.985_647_366_29;
+
+/// Mean sidereal days per UT1 day, 1.002 737 909 35: the rate at which hour angles (from GMST/GAST) advance. It is
+/// not the Earth-rotation-angle rate (1.002 737 811 91), which leaves out precession in right ascension; the two
+/// differ by 8.4 ms of hour angle per day.
+pub const GMST_RATE_PER_UT1_DAY: f64 = GMST_DEG_PER_DAY / 360.0;
+
 /// Greenwich mean sidereal time, rad 0..2pi.
 ///
 /// Given: `jd_ut1` (UT1 Julian Date; dipwatch passes UTC, see the time module). Source: Meeus (1998) eq. 12.4
 /// (IAU 1982 GMST). Accuracy: 0.1 s of time over 1900-2100 against the IAU 2006 ERA-based GMST.
 pub fn gmst_rad(jd_ut1: f64) -> f64 {
     let t = (jd_ut1 - J2000_JD) / 36_525.0;
-    let deg = 280.460_618_37 + 360.985_647_366_29 * (jd_ut1 - J2000_JD) + 0.000_387_933 * t * t
+    let deg = 280.460_618_37 + GMST_DEG_PER_DAY * (jd_ut1 - J2000_JD) + 0.000_387_933 * t * t
         - t * t * t / 38_710_000.0;
     wrap_to(deg.to_radians(), TAU)
 }
@@ -303,9 +313,12 @@ impl EarthOrientation {
 /// Apply proper motion to catalogue coordinates.
 ///
 /// Given: `ra_deg`, `dec_deg` at `epoch_jd`; `pm_ra_cosdec_mas_per_yr` (mu_alpha* = mu_alpha cos dec) and
-/// `pm_dec_mas_per_yr`; `target_jd`. Returns (ra_deg, dec_deg) at the target date. Linear motion on the sphere
-/// (Meeus 1998 ch. 21, "proper motion"), good to < 0.1" over a century for stars with mu < 1"/yr; radial
-/// velocity and parallax are ignored.
+/// `pm_dec_mas_per_yr`; `target_jd`. Returns (ra_deg, dec_deg) at the target date. The star moves along a straight
+/// line in space at constant velocity with no radial velocity and no parallax: the unit vector p gains
+/// t (mu_alpha* e_alpha + mu_delta e_delta) and is renormalised (the space-motion model of Kaplan et al. 1989,
+/// AJ 97, 1197, with the radial terms dropped; from memory). Unlike linear motion in (alpha, delta) this holds at
+/// the celestial poles too. Checked against ERFA `eraPmsafe` (tests/reference.rs) to < 1 mas over +-100 years for
+/// |mu| < 2"/yr, including stars within 1 deg of a pole; radial velocity and parallax are ignored.
 pub fn apply_proper_motion(
     ra_deg: f64,
     dec_deg: f64,
@@ -314,11 +327,23 @@ pub fn apply_proper_motion(
     epoch_jd: f64,
     target_jd: f64,
 ) -> (f64, f64) {
+    if pm_ra_cosdec_mas_per_yr == 0.0 && pm_dec_mas_per_yr == 0.0 {
+        return (ra_deg, dec_deg);
+    }
     let years = (target_jd - epoch_jd) / 365.25;
-    let cosd = dec_deg.to_radians().cos().max(1e-9);
-    let ra = ra_deg + pm_ra_cosdec_mas_per_yr * years / 3.6e6 / cosd;
-    let dec = (dec_deg + pm_dec_mas_per_yr * years / 3.6e6).clamp(-90.0, 90.0);
-    (ra.rem_euclid(360.0), dec)
+    let mas = (1.0 / 3.6e6_f64).to_radians();
+    let (sa, ca) = ra_deg.to_radians().sin_cos();
+    let (sd, cd) = dec_deg.to_radians().sin_cos();
+    let p = [cd * ca, cd * sa, sd];
+    let e_alpha = [-sa, ca, 0.0];
+    let e_delta = [-sd * ca, -sd * sa, cd];
+    let (ma, md) = (
+        pm_ra_cosdec_mas_per_yr * mas * years,
+        pm_dec_mas_per_yr * mas * years,
+    );
+    let moved: Vec3 = std::array::from_fn(|i| p[i] + ma * e_alpha[i] + md * e_delta[i]);
+    let (ra, dec) = radec_from_vec(&moved);
+    (ra.to_degrees().rem_euclid(360.0), dec.to_degrees())
 }
 
 #[cfg(test)]

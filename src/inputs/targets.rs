@@ -597,11 +597,12 @@ mod tests {
             (t.pm_dec_mas_per_yr, t.coord_epoch_jyear),
             (10_000.0, 2016.0)
         );
-        // 11 Julian years after 2016.0 the declination has grown by 110": linear motion (Meeus 1998 ch. 21).
+        // 11 Julian years after 2016.0 the declination has grown by 110" (motion along a straight line in space
+        // gives atan(mu t) rather than mu t: 1e-5" less here).
         let jd_2027 = crate::constants::J2000_JD + 27.0 * 365.25;
         let (_, dec) = crate::astro::frames::radec_from_vec(&t.icrs_at(jd_2027));
         assert!(
-            ((dec.to_degrees() - 20.0) * 3600.0 - 110.0).abs() < 1e-6,
+            ((dec.to_degrees() - 20.0) * 3600.0 - 110.0).abs() < 1e-4,
             "{}",
             (dec.to_degrees() - 20.0) * 3600.0
         );
