@@ -3,11 +3,11 @@
 use anyhow::{bail, Context, Result};
 use chrono::{Duration, NaiveDate};
 use clap::{Args, Parser, Subcommand, ValueEnum};
+use dipwatch::engine::plan::{plan, PlanOptions};
 use dipwatch::inputs::sites::{parse_sites, Site};
 use dipwatch::inputs::targets::{parse_targets, ColumnMap, Target};
 use dipwatch::inputs::InputError;
-use dipwatch::plan::{plan, PlanOptions};
-use dipwatch::report;
+use dipwatch::outputs as report;
 use std::io::Write;
 use std::path::{Path, PathBuf};
 
@@ -118,7 +118,7 @@ struct BlockArgs {
     #[arg(
         long,
         value_name = "MIN",
-        default_value_t = dipwatch::plan::DEFAULT_MIN_IN_TRANSIT_MIN,
+        default_value_t = dipwatch::engine::plan::DEFAULT_MIN_IN_TRANSIT_MIN,
         allow_negative_numbers = true
     )]
     min_in_transit: f64,
@@ -420,7 +420,7 @@ fn stream_plan_csv(
     out: Option<&Path>,
 ) -> Result<()> {
     use rayon::prelude::*;
-    let planner = dipwatch::plan::Planner::new(sites, targets, opts);
+    let planner = dipwatch::engine::plan::Planner::new(sites, targets, opts);
     let n_nights = (opts.last_night - opts.first_night).num_days() + 1;
     let chunks: Vec<(NaiveDate, NaiveDate)> = (0..n_nights)
         .step_by(STREAM_CHUNK_NIGHTS as usize)
@@ -575,8 +575,8 @@ struct TonightArgs {
 fn run_tonight(args: TonightArgs) -> Result<()> {
     let site = one_site(&args.files.sites, &args.site)?;
     let targets = load_targets(&args.files.targets, &args.files.columns, &args.target_names)?;
-    let now_jd = dipwatch::civil::jd_from_datetime(&chrono::Utc::now());
-    let current_night = dipwatch::civil::night_of(now_jd, site.lon_deg, site.tz);
+    let now_jd = dipwatch::astro::civil::jd_from_datetime(&chrono::Utc::now());
+    let current_night = dipwatch::astro::civil::night_of(now_jd, site.lon_deg, site.tz);
     let date = args.date.unwrap_or(current_night);
     let opts = args.block.options(date, date, true)?;
     // The countdown only makes sense for the night in progress or about to begin.
@@ -584,7 +584,7 @@ fn run_tonight(args: TonightArgs) -> Result<()> {
     let sites = vec![site];
     let result = plan(&sites, &targets, &opts);
     let events = &result.sites[0].events;
-    let almanac = dipwatch::almanac::night_almanac(&sites[0], date);
+    let almanac = dipwatch::engine::almanac::night_almanac(&sites[0], date);
     let asked: Vec<usize> = if args.target_names.is_empty() {
         Vec::new()
     } else {
@@ -595,7 +595,7 @@ fn run_tonight(args: TonightArgs) -> Result<()> {
         .filter(|&&ti| !events.iter().any(|e| e.target_index == ti))
         .map(|&ti| report::Absence::NoTransit {
             target_index: ti,
-            next_mid_utc: dipwatch::plan::next_mid_after(
+            next_mid_utc: dipwatch::engine::plan::next_mid_after(
                 &targets[ti],
                 &sites[0],
                 almanac.window.end,
@@ -641,7 +641,7 @@ fn run_nights(args: NightsArgs) -> Result<()> {
     let nights: Vec<_> = first
         .iter_days()
         .take_while(|d| *d <= last)
-        .map(|d| dipwatch::almanac::night_almanac(&site, d))
+        .map(|d| dipwatch::engine::almanac::night_almanac(&site, d))
         .collect();
     let text = match args.output.format {
         Format::Table => report::nights_table(&site, &nights, args.output.utc),
@@ -697,7 +697,7 @@ fn site_file_name(out: &Path, site: &str) -> PathBuf {
         .file_stem()
         .map(|s| s.to_string_lossy().to_string())
         .unwrap_or_else(|| "calendar".into());
-    let slug = dipwatch::names::slug(site);
+    let slug = dipwatch::outputs::names::slug(site);
     out.with_file_name(format!("{stem}-{slug}.ics"))
 }
 
@@ -713,11 +713,11 @@ fn run_calendar(args: CalendarArgs) -> Result<()> {
         Some(p) => {
             let text = std::fs::read_to_string(p)
                 .with_context(|| format!("cannot read previous calendar {}", p.display()))?;
-            dipwatch::calendar::parse_previous(&text)
+            dipwatch::outputs::calendar::parse_previous(&text)
                 .map_err(|m| anyhow::anyhow!("{}: {m}", p.display()))?
         }
     };
-    let cal_opts = dipwatch::calendar::CalendarOptions {
+    let cal_opts = dipwatch::outputs::calendar::CalendarOptions {
         alarm_minutes: args.alarm_minutes,
         stamp: export_stamp()?,
     };
@@ -758,7 +758,7 @@ fn run_calendar(args: CalendarArgs) -> Result<()> {
     // Build every file first, then write: an error never leaves some files written and others not.
     let mut outputs = Vec::new();
     for (filter, path) in jobs {
-        let (text, summary) = dipwatch::calendar::build_calendar(
+        let (text, summary) = dipwatch::outputs::calendar::build_calendar(
             &result, &sites, &targets, filter, &previous, range, &cal_opts,
         );
         outputs.push((path, text, summary));
@@ -786,7 +786,7 @@ fn run_calendar(args: CalendarArgs) -> Result<()> {
         for (s, start) in &summary.cancelled {
             eprintln!(
                 "dipwatch: no longer planned, written as cancelled: {s} (was {})",
-                dipwatch::civil::rfc3339_utc(*start)
+                dipwatch::astro::civil::rfc3339_utc(*start)
             );
         }
     }
@@ -816,7 +816,7 @@ struct RefineArgs {
     prior: bool,
     /// Largest distance of an observation from its predicted transit, in combined sigmas (prediction and
     /// observation), before it is an error: its epoch would be a guess
-    #[arg(long, value_name = "N", default_value_t = dipwatch::refine::DEFAULT_EPOCH_SIGMAS)]
+    #[arg(long, value_name = "N", default_value_t = dipwatch::engine::refine::DEFAULT_EPOCH_SIGMAS)]
     epoch_sigma: f64,
     /// Write --out/--in-place even when the observations alone disagree with the catalogue by more than 5
     /// combined sigma
@@ -894,18 +894,18 @@ fn run_refine(args: RefineArgs) -> Result<()> {
         .map(|p| p.display().to_string())
         .unwrap_or_default();
     check_finite("epoch-sigma", args.epoch_sigma, 1.0, 1e6)?;
-    let refine_opts = dipwatch::refine::RefineOptions {
+    let refine_opts = dipwatch::engine::refine::RefineOptions {
         fit: if args.observations_only {
-            dipwatch::refine::FitKind::ObservationsOnly
+            dipwatch::engine::refine::FitKind::ObservationsOnly
         } else {
-            dipwatch::refine::FitKind::WithPrior
+            dipwatch::engine::refine::FitKind::WithPrior
         },
         epoch_sigmas: args.epoch_sigma,
     };
     let (refinements, skipped) =
-        dipwatch::refine::refine_targets(&targets, &observations, &refine_opts).map_err(
+        dipwatch::engine::refine::refine_targets(&targets, &observations, &refine_opts).map_err(
             |e| match e {
-                dipwatch::refine::RefineError::Fit { .. } => anyhow::anyhow!("{e}"),
+                dipwatch::engine::refine::RefineError::Fit { .. } => anyhow::anyhow!("{e}"),
                 _ => anyhow::anyhow!(
                     "{observed_label}:{}",
                     e.to_string().trim_start_matches("line ")
@@ -945,7 +945,7 @@ fn run_refine(args: RefineArgs) -> Result<()> {
             report::StaleRow {
                 target_index: i,
                 refined: refined.is_some(),
-                staleness: dipwatch::refine::staleness(eph, t.t14_hours, stale_jd),
+                staleness: dipwatch::engine::refine::staleness(eph, t.t14_hours, stale_jd),
             }
         })
         .collect();
@@ -982,7 +982,7 @@ fn run_refine(args: RefineArgs) -> Result<()> {
             };
             write_atomically(
                 &path,
-                dipwatch::chart::oc_chart_svg(name, &r.rows).as_bytes(),
+                dipwatch::outputs::chart::oc_chart_svg(name, &r.rows).as_bytes(),
             )?;
             eprintln!(
                 "dipwatch: wrote the O-C chart of {name} to {}",
@@ -1014,7 +1014,7 @@ fn run_refine(args: RefineArgs) -> Result<()> {
                  for {}; check those observations (O-C against the catalogue above) and the catalogue ephemeris, or \
                  pass --accept-tension to write the refined ephemerides anyway",
                 out.display(),
-                dipwatch::refine::TENSION_SIGMAS,
+                dipwatch::engine::refine::TENSION_SIGMAS,
                 tense.join(", ")
             );
         }
@@ -1105,8 +1105,8 @@ struct ChoiceArgs {
 }
 
 impl ChoiceArgs {
-    fn weights(&self) -> dipwatch::schedule::ScoreWeights {
-        dipwatch::schedule::ScoreWeights {
+    fn weights(&self) -> dipwatch::engine::schedule::ScoreWeights {
+        dipwatch::engine::schedule::ScoreWeights {
             coverage: self.weight_coverage,
             verdict: self.weight_verdict,
             airmass: self.weight_airmass,
@@ -1137,8 +1137,8 @@ fn make_schedule(
     opts: &PlanOptions,
     c: &ChoiceArgs,
 ) -> Result<(
-    Vec<dipwatch::schedule::TelescopeEvents>,
-    Vec<dipwatch::schedule::Chosen>,
+    Vec<dipwatch::engine::schedule::TelescopeEvents>,
+    Vec<dipwatch::engine::schedule::Chosen>,
 )> {
     check_finite("changeover", c.changeover, 0.0, 720.0)?;
     for (name, w) in [
@@ -1155,7 +1155,7 @@ fn make_schedule(
     for (si, site) in sites.iter().enumerate() {
         // Telescopes sharing their altitude limits share one plan.
         type Limits = (f64, Option<f64>);
-        let mut cache: Vec<(Limits, Vec<dipwatch::plan::Event>)> = Vec::new();
+        let mut cache: Vec<(Limits, Vec<dipwatch::engine::plan::Event>)> = Vec::new();
         for t in &site.telescopes {
             let s = site.for_telescope(t);
             let limits = (s.min_alt_deg, s.max_alt_deg);
@@ -1171,15 +1171,20 @@ fn make_schedule(
                     ev
                 }
             };
-            tels.push(dipwatch::schedule::TelescopeEvents {
+            tels.push(dipwatch::engine::schedule::TelescopeEvents {
                 site_index: si,
                 telescope: t.name.clone(),
                 events,
             });
         }
     }
-    let chosen =
-        dipwatch::schedule::schedule(&tels, targets, &weights, c.changeover, c.allow_repeats);
+    let chosen = dipwatch::engine::schedule::schedule(
+        &tels,
+        targets,
+        &weights,
+        c.changeover,
+        c.allow_repeats,
+    );
     Ok((tels, chosen))
 }
 
@@ -1242,8 +1247,8 @@ fn run_chart_night(args: ChartNightArgs) -> Result<()> {
     let opts = args.block.options(args.date, args.date, true)?;
     let sites = vec![site];
     let result = plan(&sites, &targets, &opts);
-    let almanac = dipwatch::almanac::night_almanac(&sites[0], args.date);
-    let svg = dipwatch::chart::night_chart_svg(
+    let almanac = dipwatch::engine::almanac::night_almanac(&sites[0], args.date);
+    let svg = dipwatch::outputs::chart::night_chart_svg(
         &sites[0],
         &targets[0],
         &almanac,
@@ -1289,7 +1294,7 @@ fn run_chart_season(args: ChartSeasonArgs) -> Result<()> {
         .iter_days()
         .take_while(|d| *d <= last)
         .map(|d| {
-            let mid = dipwatch::almanac::night_window(&sites[0], d).start + 0.5;
+            let mid = dipwatch::engine::almanac::night_window(&sites[0], d).start + 0.5;
             (
                 d,
                 dipwatch::astro::sky::sun_moon_at(
@@ -1300,7 +1305,7 @@ fn run_chart_season(args: ChartSeasonArgs) -> Result<()> {
             )
         })
         .collect();
-    let svg = dipwatch::chart::season_svg(&result, &sites, &targets, &moon);
+    let svg = dipwatch::outputs::chart::season_svg(&result, &sites, &targets, &moon);
     write_atomically(&args.out, svg.as_bytes())?;
     eprintln!("dipwatch: wrote {}", args.out.display());
     if let Some(dir) = &args.html {
@@ -1313,7 +1318,7 @@ fn run_chart_season(args: ChartSeasonArgs) -> Result<()> {
             let site = &sites[sp.site_index];
             let mut done = std::collections::HashSet::new();
             for e in &sp.events {
-                let file = dipwatch::chart::night_chart_file(e, &sites, &targets);
+                let file = dipwatch::outputs::chart::night_chart_file(e, &sites, &targets);
                 if !done.insert(file.clone()) {
                     continue;
                 }
@@ -1322,8 +1327,8 @@ fn run_chart_season(args: ChartSeasonArgs) -> Result<()> {
                 all.last_night = e.night_of;
                 let one = std::slice::from_ref(&targets[e.target_index]);
                 let p = plan(std::slice::from_ref(site), one, &all);
-                let alm = dipwatch::almanac::night_almanac(site, e.night_of);
-                let chart = dipwatch::chart::night_chart_svg(
+                let alm = dipwatch::engine::almanac::night_almanac(site, e.night_of);
+                let chart = dipwatch::outputs::chart::night_chart_svg(
                     site,
                     &one[0],
                     &alm,
@@ -1336,7 +1341,7 @@ fn run_chart_season(args: ChartSeasonArgs) -> Result<()> {
         let page = dir.join("index.html");
         write_atomically(
             &page,
-            dipwatch::chart::season_html(&result, &sites, &targets, &moon).as_bytes(),
+            dipwatch::outputs::chart::season_html(&result, &sites, &targets, &moon).as_bytes(),
         )?;
         eprintln!(
             "dipwatch: wrote {} with the night charts in {}",

@@ -5,10 +5,10 @@
 //! exactly after an RFC 5545 unfold and unescape written here, and `ical`'s values are checked against the same
 //! raw text with its documented trimming applied.
 
-use dipwatch::calendar::{description, summary, uid_of};
+use dipwatch::engine::plan::{plan, PlanOptions};
 use dipwatch::inputs::sites::parse_sites;
 use dipwatch::inputs::targets::{parse_targets, ColumnMap};
-use dipwatch::plan::{plan, PlanOptions};
+use dipwatch::outputs::calendar::{description, summary, uid_of};
 use std::collections::HashMap;
 use std::path::{Path, PathBuf};
 use std::process::{Command, Output};
@@ -206,7 +206,7 @@ fn every_event_round_trips_with_the_plans_times_and_text() {
         baseline_before_min: 30.0,
         baseline_after_min: 30.0,
         min_coverage: 0.0,
-        min_in_transit_min: dipwatch::plan::DEFAULT_MIN_IN_TRANSIT_MIN,
+        min_in_transit_min: dipwatch::engine::plan::DEFAULT_MIN_IN_TRANSIT_MIN,
         include_unobservable: false,
     };
     let p = plan(&sites, &targets, &opts);
@@ -224,7 +224,7 @@ fn every_event_round_trips_with_the_plans_times_and_text() {
         let ev = by_uid.get(&uid).unwrap_or_else(|| panic!("no event {uid}"));
         // Times to the second (RFC 5545 3.3.5, UTC form with Z).
         let fmt = |jd: f64| {
-            dipwatch::civil::datetime_from_jd(jd)
+            dipwatch::astro::civil::datetime_from_jd(jd)
                 .format("%Y%m%dT%H%M%SZ")
                 .to_string()
         };

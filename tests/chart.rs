@@ -88,8 +88,8 @@ fn night_chart_draws_each_event_and_covers_the_night() {
     // The time axis covers sunset to sunrise.
     let sites =
         dipwatch::inputs::sites::parse_sites("s", &std::fs::read_to_string(&s).unwrap()).unwrap();
-    let alm = dipwatch::almanac::night_almanac(&sites[0], "2027-03-07".parse().unwrap());
-    let range = dipwatch::chart::night_range(&alm, &[]);
+    let alm = dipwatch::engine::almanac::night_almanac(&sites[0], "2027-03-07".parse().unwrap());
+    let range = dipwatch::outputs::chart::night_range(&alm, &[]);
     assert!(range.start < alm.sun.dusk.unwrap() && range.end > alm.sun.dawn.unwrap());
     let night_rects = doc
         .descendants()

@@ -7,10 +7,10 @@ mod common;
 use dipwatch::astro::barycentric::TimeSystem;
 use dipwatch::astro::sky::sun_alt_deg;
 use dipwatch::astro::time::JdUtc;
+use dipwatch::engine::plan::{nights_at, plan, PlanOptions};
 use dipwatch::ephemeris::Ephemeris;
 use dipwatch::inputs::sites::{parse_sites, Site};
 use dipwatch::inputs::targets::Target;
-use dipwatch::plan::{nights_at, plan, PlanOptions};
 use proptest::prelude::*;
 use std::process::Command;
 

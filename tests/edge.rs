@@ -4,13 +4,13 @@
 use chrono::NaiveDate;
 use dipwatch::astro::atmosphere::HorizonProfile;
 use dipwatch::astro::barycentric::{EarthTable, TimeSystem};
+use dipwatch::astro::civil::{local_hhmm, night_of};
 use dipwatch::astro::frames::{unit_from_radec, Observer};
 use dipwatch::astro::time::JdUtc;
-use dipwatch::civil::{local_hhmm, night_of};
+use dipwatch::engine::plan::{nights_at, plan, PlanOptions, Reason, Verdict};
 use dipwatch::ephemeris::Ephemeris;
 use dipwatch::inputs::sites::{Site, Telescope};
 use dipwatch::inputs::targets::Target;
-use dipwatch::plan::{nights_at, plan, PlanOptions, Reason, Verdict};
 
 fn site(lat: f64, lon: f64, tz: &str, min_alt: f64) -> Site {
     Site {
@@ -73,7 +73,7 @@ fn opts(first: &str, last: &str, all: bool) -> PlanOptions {
 }
 
 fn local_hours(jd: f64, s: &Site) -> f64 {
-    let t = dipwatch::civil::datetime_from_jd(jd).with_timezone(&s.tz);
+    let t = dipwatch::astro::civil::datetime_from_jd(jd).with_timezone(&s.tz);
     let h = chrono::Timelike::hour(&t) as f64 + chrono::Timelike::minute(&t) as f64 / 60.0;
     if h < 12.0 {
         h + 24.0
@@ -138,7 +138,7 @@ fn clock_changes_give_real_local_times_and_mark_the_repeated_hour() {
     let e = &p.sites[0].events[0];
     assert_eq!(local_hhmm(e.mid_utc, s.tz), "03:40");
     assert_eq!(local_hhmm(e.block_start_utc, s.tz), "01:10");
-    let table = dipwatch::report::plan_table(&p, &[s], &[t], &o, false);
+    let table = dipwatch::outputs::plan_table(&p, &[s], &[t], &o, false);
     // Block 00:10-04:10 UTC; ingress, mid, egress 00:40, 01:40, 02:40 UTC: the wall clock skips 02:00-03:00.
     assert!(
         table.contains("01:10-05:10") && table.contains("01:40 03:40 04:40"),
@@ -250,7 +250,7 @@ fn across_the_2016_leap_second_and_beyond_the_table() {
     let mids: Vec<String> = p.sites[0]
         .events
         .iter()
-        .map(|e| dipwatch::civil::rfc3339_utc(e.mid_utc))
+        .map(|e| dipwatch::astro::civil::rfc3339_utc(e.mid_utc))
         .collect();
     assert!(
         mids.contains(&"2017-01-01T00:00:00.000Z".to_string()),

@@ -3,10 +3,10 @@
 //! run inside the block; and the same inputs give byte-identical CSV.
 
 use dipwatch::astro::barycentric::TimeSystem;
+use dipwatch::engine::plan::{plan, PlanOptions};
 use dipwatch::ephemeris::Ephemeris;
 use dipwatch::inputs::sites::parse_sites;
 use dipwatch::inputs::targets::Target;
-use dipwatch::plan::{plan, PlanOptions};
 use proptest::prelude::*;
 
 fn sites() -> Vec<dipwatch::inputs::sites::Site> {
@@ -96,8 +96,8 @@ proptest! {
                 prop_assert!(!e.observable || e.coverage > 0.0);
             }
         }
-        let a = dipwatch::report::plan_csv(&p, &sites, &targets);
-        let b = dipwatch::report::plan_csv(&plan(&sites, &targets, &opts), &sites, &targets);
+        let a = dipwatch::outputs::plan_csv(&p, &sites, &targets);
+        let b = dipwatch::outputs::plan_csv(&plan(&sites, &targets, &opts), &sites, &targets);
         prop_assert_eq!(a, b);
     }
 }

@@ -4,7 +4,7 @@ mod common;
 use common::fixture;
 
 use chrono::NaiveDate;
-use dipwatch::almanac::night_almanac;
+use dipwatch::engine::almanac::night_almanac;
 use dipwatch::inputs::sites::parse_sites;
 use std::process::Command;
 
@@ -141,7 +141,7 @@ fn tonight_agrees_with_plan_for_a_midnight_transit() {
     let te = &tv["events"][0];
     let pe = &pv["events"][0];
     assert_eq!(te["mid_utc"], "2027-01-20T23:00:00.000Z");
-    for field in dipwatch::report::EVENT_FIELDS {
+    for field in dipwatch::outputs::EVENT_FIELDS {
         assert_eq!(
             te[field], pe[field],
             "field {field} differs between tonight and plan"

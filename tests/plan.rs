@@ -3,21 +3,23 @@
 use chrono::NaiveDate;
 use dipwatch::astro::atmosphere::HorizonProfile;
 use dipwatch::astro::barycentric::{EarthTable, TimeSystem};
+use dipwatch::astro::civil::{local_noon_jd, night_of};
 use dipwatch::astro::crossings::Interval;
 use dipwatch::astro::sky::sun_moon_at;
 use dipwatch::astro::time::JdUtc;
-use dipwatch::civil::{local_noon_jd, night_of};
+use dipwatch::engine::plan::{
+    nights_at, plan, usable_intervals, usable_minutes_oracle, Reason, Verdict,
+};
 use dipwatch::ephemeris::Ephemeris;
 use dipwatch::inputs::sites::Site;
 use dipwatch::inputs::targets::Target;
-use dipwatch::plan::{nights_at, plan, usable_intervals, usable_minutes_oracle, Reason, Verdict};
 use proptest::prelude::*;
 
 mod common;
 use common::{date, opts, site, target_at};
 
 /// Plan one site/target for the single night `d` and return its one event.
-fn single_event(s: &Site, t: &Target, d: NaiveDate) -> dipwatch::plan::Event {
+fn single_event(s: &Site, t: &Target, d: NaiveDate) -> dipwatch::engine::plan::Event {
     let p = plan(
         std::slice::from_ref(s),
         std::slice::from_ref(t),
@@ -149,7 +151,7 @@ fn polar_summer_has_no_dark_time_and_says_so() {
         .all(|e| e.verdict == Verdict::NotObservable && e.reasons.contains(&Reason::Daylight)));
     let mut o = opts(first, last);
     o.include_unobservable = false;
-    let table = dipwatch::report::plan_table(
+    let table = dipwatch::outputs::plan_table(
         &plan(std::slice::from_ref(&s), std::slice::from_ref(&t), &o),
         std::slice::from_ref(&s),
         std::slice::from_ref(&t),
@@ -158,7 +160,7 @@ fn polar_summer_has_no_dark_time_and_says_so() {
     );
     assert!(table.contains("No dark time at Far North (the Sun stays above -12 deg) on: 2027-06-01 to 2027-06-07 (7 nights)"), "{table}");
     assert!(table.contains("Nothing observable at Far North"), "{table}");
-    let json = dipwatch::report::plan_json(
+    let json = dipwatch::outputs::plan_json(
         &plan(std::slice::from_ref(&s), std::slice::from_ref(&t), &o),
         std::slice::from_ref(&s),
         std::slice::from_ref(&t),
@@ -203,13 +205,13 @@ fn clock_change_inside_the_range_gives_right_local_times_and_nights() {
         .find(|e| e.night_of == d)
         .expect("event on the BST night");
     assert_eq!(night_of(e.mid_utc, s.lon_deg, s.tz), d);
-    let utc = dipwatch::civil::datetime_from_jd(e.mid_utc);
-    let local = dipwatch::civil::local_hhmm(e.mid_utc, s.tz);
+    let utc = dipwatch::astro::civil::datetime_from_jd(e.mid_utc);
+    let local = dipwatch::astro::civil::local_hhmm(e.mid_utc, s.tz);
     let want = (utc + chrono::Duration::hours(1))
         .format("%H:%M")
         .to_string();
     assert_eq!(local, want, "BST is UTC+1");
-    let table = dipwatch::report::plan_table(
+    let table = dipwatch::outputs::plan_table(
         &p,
         std::slice::from_ref(&s),
         &[t],

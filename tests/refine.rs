@@ -3,7 +3,9 @@
 mod common;
 use common::fixture;
 
-use dipwatch::refine::{fit_linear_ephemeris, fit_with_prior, FitError, Prior, TimingPoint};
+use dipwatch::engine::refine::{
+    fit_linear_ephemeris, fit_with_prior, FitError, Prior, TimingPoint,
+};
 use std::process::Command;
 
 fn pt(epoch: i64, t: f64, s: f64) -> TimingPoint {
@@ -465,7 +467,7 @@ fn by_default_the_catalogue_is_a_prior_and_the_written_ephemeris_is_never_worse(
             new.ephemeris.period_sigma_days
         );
         let sig = |t: &dipwatch::inputs::targets::Target| {
-            dipwatch::refine::staleness(&t.ephemeris, t.t14_hours, at).sigma_min
+            dipwatch::engine::refine::staleness(&t.ephemeris, t.t14_hours, at).sigma_min
         };
         assert!(
             sig(new) <= sig(cat) * 1.0001,

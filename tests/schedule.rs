@@ -1,9 +1,11 @@
 //! Scheduling: the exact solver against brute force, hand-built collisions, one transit per programme, pairs.
 
+use dipwatch::engine::plan::{plan, Event, PlanOptions, Verdict};
+use dipwatch::engine::schedule::{
+    best_subset, schedule, score, Job, ScoreWeights, TelescopeEvents,
+};
 use dipwatch::inputs::sites::parse_sites;
 use dipwatch::inputs::targets::{parse_targets, ColumnMap, Target};
-use dipwatch::plan::{plan, Event, PlanOptions, Verdict};
-use dipwatch::schedule::{best_subset, schedule, score, Job, ScoreWeights, TelescopeEvents};
 use proptest::prelude::*;
 
 /// Best total value by trying every subset (2^n), for n <= 12.

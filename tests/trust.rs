@@ -1,8 +1,8 @@
 //! What people act on: coverage never shown higher than it is, a minimum of useful in-transit time, and the
 //! block clipped to where observing can happen (table, tonight, calendar, scheduler busy time).
 
-use dipwatch::plan::{nights_at, plan, Reason, Verdict, DEFAULT_MIN_IN_TRANSIT_MIN};
-use dipwatch::schedule::{schedule, ScoreWeights, TelescopeEvents};
+use dipwatch::engine::plan::{nights_at, plan, Reason, Verdict, DEFAULT_MIN_IN_TRANSIT_MIN};
+use dipwatch::engine::schedule::{schedule, ScoreWeights, TelescopeEvents};
 
 mod common;
 use common::{date, opts, site, target_at};
@@ -10,13 +10,13 @@ use common::{date, opts, site, target_at};
 #[test]
 fn coverage_is_printed_rounded_down() {
     // 99.5% of the transit usable is not the whole transit.
-    assert_eq!(dipwatch::report::percent_floor(0.995), "99%");
-    assert_eq!(dipwatch::report::percent_floor(0.9999), "99%");
-    assert_eq!(dipwatch::report::percent_floor(1.0), "100%");
+    assert_eq!(dipwatch::outputs::percent_floor(0.995), "99%");
+    assert_eq!(dipwatch::outputs::percent_floor(0.9999), "99%");
+    assert_eq!(dipwatch::outputs::percent_floor(1.0), "100%");
     // Binary noise (0.29 * 100 = 28.999999999999996) is not rounded away from the true value.
-    assert_eq!(dipwatch::report::percent_floor(0.29), "29%");
-    assert_eq!(dipwatch::report::percent_floor(0.0049), "0%");
-    assert_eq!(dipwatch::report::floor_to(0.9996, 3), 0.999);
+    assert_eq!(dipwatch::outputs::percent_floor(0.29), "29%");
+    assert_eq!(dipwatch::outputs::percent_floor(0.0049), "0%");
+    assert_eq!(dipwatch::outputs::floor_to(0.9996, 3), 0.999);
 }
 
 #[test]
@@ -150,12 +150,12 @@ fn a_partial_event_is_acted_on_only_where_the_sky_allows() {
     let now = e.full_block_start_utc - 10.0 / 1440.0;
     let want = ((e.block_start_utc - now) * 1440.0).round() as i64;
     assert_eq!(
-        dipwatch::report::countdown(&e, now),
+        dipwatch::outputs::countdown(&e, now),
         format!("starts in {} h {} min", want / 60, want % 60)
     );
 
     // The table marks the clipped edge and prints the start acted on.
-    let table = dipwatch::report::plan_table(
+    let table = dipwatch::outputs::plan_table(
         &plan(
             std::slice::from_ref(&s),
             std::slice::from_ref(&t),
@@ -166,7 +166,7 @@ fn a_partial_event_is_acted_on_only_where_the_sky_allows() {
         &opts(d, d),
         true,
     );
-    let start = dipwatch::civil::datetime_from_jd(e.block_start_utc)
+    let start = dipwatch::astro::civil::datetime_from_jd(e.block_start_utc)
         .format("~%H:%M-")
         .to_string();
     assert!(table.contains(&start), "{start} not in\n{table}");

@@ -13,10 +13,10 @@ fuzz_target!(|data: &[u8]| {
     }
     for zone in ["Europe/London", "America/Santiago", "Pacific/Chatham", "Asia/Kathmandu", "Etc/GMT+12"] {
         let tz: chrono_tz::Tz = zone.parse().unwrap();
-        let noon = dipwatch::civil::local_noon_jd(date, tz);
-        assert_eq!(dipwatch::civil::night_of(noon + 0.25, tz), date, "{zone} {date}");
+        let noon = dipwatch::astro::civil::local_noon_jd(date, tz);
+        assert_eq!(dipwatch::astro::civil::night_of(noon + 0.25, tz), date, "{zone} {date}");
         let mut s = String::new();
-        dipwatch::civil::push_rfc3339_utc(noon, &mut s);
-        assert_eq!(s, dipwatch::civil::rfc3339_utc(noon));
+        dipwatch::astro::civil::push_rfc3339_utc(noon, &mut s);
+        assert_eq!(s, dipwatch::astro::civil::rfc3339_utc(noon));
     }
 });

@@ -2,6 +2,7 @@
 
 pub mod atmosphere;
 pub mod barycentric;
+pub mod civil;
 pub mod crossings;
 pub mod frames;
 pub mod sky;

@@ -112,13 +112,13 @@ fn utc_offset_text(hours: f64) -> String {
 /// The problem with a longitude whose mean solar time is far from the zone's standard time, if any.
 fn far_zone_problem(lon_deg: f64, tz: chrono_tz::Tz) -> Option<String> {
     let date = zone_check_date();
-    let gap_h = crate::civil::solar_minus_zone_hours(lon_deg, date, tz);
+    let gap_h = crate::astro::civil::solar_minus_zone_hours(lon_deg, date, tz);
     if gap_h.abs() <= FAR_ZONE_HOURS {
         return None;
     }
-    let std_h = crate::civil::standard_offset_hours(date, tz);
+    let std_h = crate::astro::civil::standard_offset_hours(date, tz);
     let side = if lon_deg >= 0.0 { "E" } else { "W" };
-    let flipped = crate::civil::solar_minus_zone_hours(-lon_deg, date, tz);
+    let flipped = crate::astro::civil::solar_minus_zone_hours(-lon_deg, date, tz);
     let hint = if flipped.abs() <= FAR_ZONE_HOURS {
         format!(
             "likely cause: the longitude's sign (east is positive; {:.3} puts the site {:.1} h from its zone)",
@@ -693,7 +693,7 @@ horizon = [[0, 10], [180, 20]]
         // Etc/GMT+10 really is 10 h behind UTC (IANA tz database, etcetera file).
         let tz: chrono_tz::Tz = "Etc/GMT+10".parse().unwrap();
         let d = chrono::NaiveDate::from_ymd_opt(2027, 1, 1).unwrap();
-        assert_eq!(crate::civil::standard_offset_hours(d, tz), -10.0);
+        assert_eq!(crate::astro::civil::standard_offset_hours(d, tz), -10.0);
         let text = GOOD.replace("Europe/Madrid", "UTC-10");
         let msg = parse_sites("s.toml", &text).unwrap_err().to_string();
         assert!(

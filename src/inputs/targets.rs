@@ -223,7 +223,7 @@ pub(crate) fn not_a_full_jd(v: f64) -> String {
         .iter()
         .filter(|(off, _)| plausible.contains(&(v + off)))
         .map(|(off, name)| {
-            let date = crate::civil::datetime_from_jd(v + off);
+            let date = crate::astro::civil::datetime_from_jd(v + off);
             format!(
                 "as {name} it is JD {} ({})",
                 v + off,

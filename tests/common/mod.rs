@@ -30,10 +30,10 @@ use dipwatch::astro::atmosphere::HorizonProfile;
 use dipwatch::astro::barycentric::{EarthTable, TimeSystem};
 use dipwatch::astro::frames::{unit_from_radec, Observer};
 use dipwatch::astro::time::JdUtc;
+use dipwatch::engine::plan::PlanOptions;
 use dipwatch::ephemeris::Ephemeris;
 use dipwatch::inputs::sites::Site;
 use dipwatch::inputs::targets::Target;
-use dipwatch::plan::PlanOptions;
 
 /// A hand-built site: 500 m, altitude limit 30 deg, nautical darkness (-12 deg), one telescope `main`.
 pub fn site(name: &str, lat: f64, lon: f64, tz: &str) -> Site {

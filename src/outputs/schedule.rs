@@ -1,9 +1,9 @@
 //! `schedule` outputs: the chosen blocks per telescope and night.
 
 use super::{round, EventRecord, EVENT_FIELDS};
+use crate::engine::schedule::{Chosen, TelescopeEvents};
 use crate::inputs::sites::Site;
 use crate::inputs::targets::Target;
-use crate::schedule::{Chosen, TelescopeEvents};
 use comfy_table::{Cell, CellAlignment, ContentArrangement};
 
 /// Extra fields of a scheduled event, after the plan's event fields.
@@ -51,7 +51,7 @@ pub fn schedule_json(
     tels: &[TelescopeEvents],
     sites: &[Site],
     targets: &[Target],
-    weights: &crate::schedule::ScoreWeights,
+    weights: &crate::engine::schedule::ScoreWeights,
     changeover_min: f64,
 ) -> String {
     let recs: Vec<serde_json::Value> = chosen

@@ -371,7 +371,7 @@ pub fn staleness(eph: &Ephemeris, t14_hours: f64, at: f64) -> Staleness {
         epoch,
         sigma_min: sigma * 1440.0,
         fraction_of_t14: sigma * 24.0 / t14_hours,
-        lost: sigma > crate::plan::LOST_SIGMA_FRACTION_OF_PERIOD * eph.period_days,
+        lost: sigma > crate::engine::plan::LOST_SIGMA_FRACTION_OF_PERIOD * eph.period_days,
     }
 }
 

@@ -11,8 +11,8 @@
 //! multi-machine assignment); each telescope-night on its own is optimal.
 
 use crate::astro::crossings::Interval;
+use crate::engine::plan::{Event, Verdict};
 use crate::inputs::targets::Target;
-use crate::plan::{Event, Verdict};
 use std::collections::{BTreeMap, HashMap, HashSet};
 
 /// Weights of the score. Documented in the README; all are user settable.

@@ -11,16 +11,16 @@
 //! whole-short-baseline = framed square, ingress-only = left half, egress-only = right half,
 //! middle-only = centre bar.
 
-use crate::almanac::NightAlmanac;
 use crate::astro::atmosphere::alt_deg_for_airmass;
 use crate::astro::barycentric::EarthTable;
+use crate::astro::civil::{datetime_from_jd, local_hhmm, zone_abbreviation};
 use crate::astro::frames::{wrap_pi, EarthOrientation};
 use crate::astro::sky::{sun_alt_deg, target_alt_az_deg};
 use crate::astro::time::{jd_tdb_from_utc, JdUtc};
-use crate::civil::{datetime_from_jd, local_hhmm, zone_abbreviation};
+use crate::engine::almanac::NightAlmanac;
+use crate::engine::plan::{Event, Plan, Verdict};
 use crate::inputs::sites::Site;
 use crate::inputs::targets::Target;
-use crate::plan::{Event, Plan, Verdict};
 use std::fmt::Write;
 
 const INK: &str = "#1d2433";
@@ -173,7 +173,7 @@ pub fn night_chart_svg(
         Some(e) => format!(
             "{}: {} of the transit usable; epoch {}, timing 1-sigma {:.1} min",
             e.verdict.label(),
-            crate::report::percent_floor(e.coverage),
+            crate::outputs::percent_floor(e.coverage),
             e.epoch,
             e.sigma_min
         ),
@@ -199,7 +199,7 @@ pub fn night_chart_svg(
         .collect();
     let moon: Vec<f64> = ts
         .iter()
-        .map(|&t| crate::almanac::moon_alt_deg(t, site))
+        .map(|&t| crate::engine::almanac::moon_alt_deg(t, site))
         .collect();
 
     // Twilight shading: runs of equal band.
@@ -714,7 +714,7 @@ pub fn season_svg_linked(
                         e.epoch,
                         d,
                         e.verdict.label(),
-                        crate::report::percent_floor(e.coverage)
+                        crate::outputs::percent_floor(e.coverage)
                     );
                     if let Some(link) = link {
                         svg.raw(&format!(r##"<a href="{}">"##, esc(&link(e))));
@@ -761,7 +761,7 @@ pub fn season_svg_linked(
 
 /// File name of an event's night chart inside the HTML bundle: `<site>-<target>-<night>.svg`, slugged.
 pub fn night_chart_file(e: &Event, sites: &[Site], targets: &[Target]) -> String {
-    let slug = crate::names::slug;
+    let slug = crate::outputs::names::slug;
     format!(
         "{}-{}-{}.svg",
         slug(&sites[e.site_index].name),
@@ -795,7 +795,7 @@ pub fn season_html(
                 e.night_of,
                 esc(&targets[e.target_index].name),
                 e.verdict.label(),
-                crate::report::percent_floor(e.coverage)
+                crate::outputs::percent_floor(e.coverage)
             );
         }
         html.push_str("</ul>\n");
@@ -806,7 +806,7 @@ pub fn season_html(
 
 /// The O-C chart of a refinement: observed minus computed (minutes) against epoch with 1-sigma error bars;
 /// points beyond 3 sigma drawn as open diamonds.
-pub fn oc_chart_svg(name: &str, rows: &[crate::refine::OcRow]) -> String {
+pub fn oc_chart_svg(name: &str, rows: &[crate::engine::refine::OcRow]) -> String {
     let (w, h) = (760.0, 420.0);
     let (x0, x1, y0, y1) = (80.0, 730.0, 60.0, 350.0);
     let e_min = rows.iter().map(|r| r.epoch).min().unwrap_or(0) as f64;

@@ -1,5 +1,8 @@
-//! Outputs: terminal tables, CSV and JSON. Pure formatting: values in, strings out.
+//! Outputs: terminal tables, CSV and JSON, calendars and charts. Pure formatting: values in, strings out.
 
+pub mod calendar;
+pub mod chart;
+pub mod names;
 mod nights;
 mod plan;
 mod refine;
@@ -16,7 +19,7 @@ pub use refine::{
 pub use schedule::{schedule_csv, schedule_json, schedule_table, SCHEDULE_FIELDS};
 pub use tonight::{countdown, tonight_json, tonight_text, Absence};
 
-use crate::civil::{local_hhmm, zone_abbreviation};
+use crate::astro::civil::{local_hhmm, zone_abbreviation};
 use crate::inputs::sites::Site;
 
 fn round(x: f64, decimals: i32) -> f64 {
@@ -42,7 +45,7 @@ pub const CLIPPED_EDGE_MARK: &str = "~";
 
 /// The block as it can be observed, `HH:MM-HH:MM`, with [`CLIPPED_EDGE_MARK`] beside an edge that the
 /// usable run clipped.
-fn block_text(e: &crate::plan::Event, site: &Site, utc: bool) -> String {
+fn block_text(e: &crate::engine::plan::Event, site: &Site, utc: bool) -> String {
     let start_mark = if e.start_clipped() {
         CLIPPED_EDGE_MARK
     } else {
@@ -67,7 +70,7 @@ fn finite(x: f64, decimals: i32) -> Option<f64> {
 /// `HH:MM` in site local time, or UTC.
 fn hhmm(jd: f64, site: &Site, utc: bool) -> String {
     if utc {
-        crate::civil::datetime_from_jd(jd)
+        crate::astro::civil::datetime_from_jd(jd)
             .format("%H:%M")
             .to_string()
     } else {
@@ -123,7 +126,7 @@ fn styled_table(
 fn event_cells(
     night: String,
     target: &str,
-    e: &crate::plan::Event,
+    e: &crate::engine::plan::Event,
     site: &Site,
     utc: bool,
 ) -> Vec<comfy_table::Cell> {

@@ -1,9 +1,9 @@
 //! `refine` outputs: fit summaries, O-C tables, staleness, and the updated targets CSV.
 
 use super::round;
+use crate::engine::refine::{FitKind, LinearFit, Staleness, TargetRefinement, Tension};
 use crate::ephemeris::Ephemeris;
 use crate::inputs::targets::{detect_delimiter, ColumnMap, Target};
-use crate::refine::{FitKind, LinearFit, Staleness, TargetRefinement, Tension};
 use comfy_table::{Cell, CellAlignment, ContentArrangement};
 use serde_json::json;
 
@@ -139,7 +139,7 @@ pub fn refine_text(
             if r.tension.is_serious() {
                 format!(
                     " - MORE THAN {} SIGMA: the observations and the catalogue disagree; not written without --accept-tension",
-                    crate::refine::TENSION_SIGMAS
+                    crate::engine::refine::TENSION_SIGMAS
                 )
             } else {
                 String::new()

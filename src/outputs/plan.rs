@@ -1,10 +1,10 @@
 //! `plan` outputs: the terminal table, CSV and JSON.
 
 use super::{finite, floor_to, hhmm, round};
-use crate::civil::rfc3339_utc;
+use crate::astro::civil::rfc3339_utc;
+use crate::engine::plan::{Event, Plan, PlanOptions, Reason, Verdict};
 use crate::inputs::sites::Site;
 use crate::inputs::targets::Target;
-use crate::plan::{Event, Plan, PlanOptions, Reason, Verdict};
 use comfy_table::{Cell, CellAlignment, ContentArrangement};
 use serde::Serialize;
 
@@ -214,7 +214,7 @@ fn push_digits(mut v: u64, width: usize, out: &mut String) {
 /// Append one CSV row per event (the columns of [`EVENT_FIELDS`]) to `out`. Formats numbers with fixed
 /// decimals and timestamps without allocating, so a catalogue-scale plan streams quickly.
 pub fn push_event_csv_rows(events: &[Event], sites: &[Site], targets: &[Target], out: &mut String) {
-    use crate::civil::push_rfc3339_utc as ts;
+    use crate::astro::civil::push_rfc3339_utc as ts;
     let num = |x: f64, d: u32, out: &mut String| {
         push_fixed(x, d, out);
         out.push(',');

@@ -1,11 +1,11 @@
 //! `tonight` outputs: the night's almanac and, per target, the block with its contact times.
 
 use super::{hhmm, round, zone_label};
-use crate::almanac::NightAlmanac;
 use crate::astro::atmosphere::airmass_kasten_young;
+use crate::engine::almanac::NightAlmanac;
+use crate::engine::plan::{Event, Verdict};
 use crate::inputs::sites::Site;
 use crate::inputs::targets::Target;
-use crate::plan::{Event, Verdict};
 
 /// Why a target asked for by name has nothing to show tonight.
 #[derive(Debug, Clone, PartialEq)]
@@ -138,7 +138,7 @@ pub fn tonight_text(
             t.name,
             e.epoch,
             e.verdict.label(),
-            crate::report::percent_floor(e.coverage),
+            crate::outputs::percent_floor(e.coverage),
             t.depth_ppt
                 .map(|d| format!(", depth {d} ppt"))
                 .unwrap_or_default(),
@@ -241,7 +241,7 @@ pub fn tonight_text(
             if *target_index == ti {
                 out.push_str(&format!(
                     "\n{name}: no transit during this night; the next mid-transit is at {} UTC\n",
-                    crate::civil::rfc3339_utc(*next_mid_utc)
+                    crate::astro::civil::rfc3339_utc(*next_mid_utc)
                 ));
             }
         }
@@ -277,13 +277,13 @@ pub fn tonight_json(
     let absent: Vec<serde_json::Value> = absences
         .iter()
         .map(|Absence::NoTransit { target_index, next_mid_utc }| {
-            serde_json::json!({"target": targets[*target_index].name, "next_mid_utc": crate::civil::rfc3339_utc(*next_mid_utc)})
+            serde_json::json!({"target": targets[*target_index].name, "next_mid_utc": crate::astro::civil::rfc3339_utc(*next_mid_utc)})
         })
         .collect();
     let doc = serde_json::json!({
         "site": site.name,
         "night": super::NightRecord::new(almanac),
-        "now_utc": now.map(crate::civil::rfc3339_utc),
+        "now_utc": now.map(crate::astro::civil::rfc3339_utc),
         "events": recs,
         "absent": absent,
     });
@@ -298,7 +298,7 @@ mod tests {
 
     #[test]
     fn countdown_reads_naturally() {
-        let mut e = crate::plan::tests_support::sample_event();
+        let mut e = crate::engine::plan::tests_support::sample_event();
         e.block_start_utc = 2_461_000.5;
         e.block_end_utc = 2_461_000.7;
         let min = 1.0 / 1440.0;

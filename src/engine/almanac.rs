@@ -1,6 +1,7 @@
 //! The almanac of one night at a site: sunset and sunrise, the three twilights, hours of darkness at the site's
 //! level, Moon rise and set, and the Moon's illuminated fraction.
 
+use crate::astro::civil::night_start_jd;
 use crate::astro::crossings::{
     intervals_where_nonnegative, sun_crossings_with, Interval, SunCrossing,
 };
@@ -8,7 +9,6 @@ use crate::astro::frames::EarthOrientation;
 use crate::astro::sky::{alt_az, moon_apparent, topocentric};
 use crate::astro::tables::SkyTables;
 use crate::astro::time::JdUtc;
-use crate::civil::night_start_jd;
 use crate::constants::{
     ASTRONOMICAL_TWILIGHT_ALT_DEG, CIVIL_TWILIGHT_ALT_DEG, NAUTICAL_TWILIGHT_ALT_DEG,
     SUNRISE_ALT_DEG,
@@ -93,7 +93,7 @@ pub fn moon_alt_deg(jd_utc: f64, site: &Site) -> f64 {
 }
 
 /// The window of the night of `date` at `site`: from the local mean solar noon that opens it to the next one,
-/// UTC JD (see [`crate::civil::night_start_jd`]). The solar night always lies inside one such window.
+/// UTC JD (see [`crate::astro::civil::night_start_jd`]). The solar night always lies inside one such window.
 pub fn night_window(site: &Site, date: NaiveDate) -> Interval {
     Interval {
         start: night_start_jd(date, site.lon_deg, site.tz),

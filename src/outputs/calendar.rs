@@ -11,10 +11,10 @@
 //! only ever grows. When the previous export is given, events that dropped out of the plan are written again
 //! with STATUS:CANCELLED (section 3.8.1.11) so that calendar programs remove them.
 
-use crate::civil::{datetime_from_jd, jd_from_datetime, local_hhmm, zone_abbreviation};
+use crate::astro::civil::{datetime_from_jd, jd_from_datetime, local_hhmm, zone_abbreviation};
+use crate::engine::plan::{Event, Plan};
 use crate::inputs::sites::Site;
 use crate::inputs::targets::Target;
-use crate::plan::{Event, Plan};
 use chrono::{DateTime, NaiveDate, TimeZone, Utc};
 use icalendar::{
     Alarm, Calendar, CalendarComponent, Component, Event as IcsEvent, EventLike, EventStatus,
@@ -82,7 +82,7 @@ fn fnv1a64(bytes: &[u8]) -> u64 {
 
 /// A name's slug, at most 40 characters, for UIDs.
 fn slug(text: &str) -> String {
-    crate::names::slug(text).chars().take(40).collect()
+    crate::outputs::names::slug(text).chars().take(40).collect()
 }
 
 /// The UID of a transit of `target` at `site` on the night `night_of`, the `slot`-th period-long slot of that
@@ -103,7 +103,7 @@ pub fn event_uid(target: &str, night_of: NaiveDate, slot: i64, site: &str) -> St
 /// The UID of a planned event (see [`event_uid`]): the slot counts whole periods from the start of the night
 /// (local mean solar noon) to mid-transit.
 pub fn uid_of(e: &Event, site: &Site, target: &Target) -> String {
-    let night_start = crate::civil::night_start_jd(e.night_of, site.lon_deg, site.tz);
+    let night_start = crate::astro::civil::night_start_jd(e.night_of, site.lon_deg, site.tz);
     let slot = ((e.mid_utc - night_start) / target.ephemeris.period_days)
         .floor()
         .max(0.0) as i64;
@@ -157,7 +157,7 @@ pub fn description(e: &Event, site: &Site, target: &Target) -> String {
             target.name,
             e.epoch,
             e.verdict.label(),
-            crate::report::percent_floor(e.coverage)
+            crate::outputs::percent_floor(e.coverage)
         ),
         format!("Night of {} at {}", e.night_of, site.name),
         format!(

@@ -6,7 +6,6 @@
 //! the sub-intervals where it holds, found by root finding ([`crate::astro::crossings`]); their intersection is
 //! the usable time. The verdict comes from the usable run that overlaps the transit most.
 
-use crate::almanac::{dark_interval, night_window};
 use crate::astro::atmosphere::airmass_kasten_young;
 use crate::astro::barycentric::EarthTable;
 use crate::astro::crossings::{intervals_where_nonnegative, Interval, DEFAULT_STEP_DAYS};
@@ -17,6 +16,7 @@ use crate::astro::frames::{
 use crate::astro::sky::sun_moon_at;
 use crate::astro::tables::SkyTables;
 use crate::astro::time::{jd_tdb_from_utc, JdUtc};
+use crate::engine::almanac::{dark_interval, night_window};
 use crate::inputs::sites::Site;
 use crate::inputs::targets::Target;
 use chrono::NaiveDate;
@@ -1019,10 +1019,10 @@ pub fn brute_force_site(
 /// empty it). Printed times truncate to the minute, so an edge on a whole minute prints exactly.
 pub fn inward_to_minutes(iv: Interval) -> Interval {
     const PER_DAY: f64 = 1440.0;
-    let rel = |jd: f64| (jd - crate::civil::UNIX_EPOCH_JD) * PER_DAY;
+    let rel = |jd: f64| (jd - crate::astro::civil::UNIX_EPOCH_JD) * PER_DAY;
     // 1e-6 min (60 us) absorbs binary noise so an edge already on a minute stays there.
-    let start = (rel(iv.start) - 1e-6).ceil() / PER_DAY + crate::civil::UNIX_EPOCH_JD;
-    let end = (rel(iv.end) + 1e-6).floor() / PER_DAY + crate::civil::UNIX_EPOCH_JD;
+    let start = (rel(iv.start) - 1e-6).ceil() / PER_DAY + crate::astro::civil::UNIX_EPOCH_JD;
+    let end = (rel(iv.end) + 1e-6).floor() / PER_DAY + crate::astro::civil::UNIX_EPOCH_JD;
     if start < end {
         Interval { start, end }
     } else {

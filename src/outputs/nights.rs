@@ -1,8 +1,8 @@
 //! `nights` outputs: one row per night with the Sun's and Moon's events.
 
 use super::{hhmm, round};
-use crate::almanac::NightAlmanac;
-use crate::civil::rfc3339_utc;
+use crate::astro::civil::rfc3339_utc;
+use crate::engine::almanac::NightAlmanac;
 use crate::inputs::sites::Site;
 use comfy_table::{Cell, CellAlignment, ContentArrangement};
 use serde::Serialize;

@@ -33,7 +33,7 @@ pub fn catalogue_csv(n: usize, seed: u64) -> String {
     let mut out = String::new();
     let _ = writeln!(
         out,
-        "# synthetic catalogue: {n} invented targets, seed {seed} (dipwatch::synthetic)"
+        "# synthetic catalogue: {n} invented targets, seed {seed} (dipwatch::testing::synthetic)"
     );
     out.push_str(
         "name,ra,dec,t0,t0_sigma_days,period_days,period_sigma_days,t14_hours,depth_ppt,priority\n",
