@@ -141,7 +141,7 @@ fn tonight_agrees_with_plan_for_a_midnight_transit() {
     let te = &tv["events"][0];
     let pe = &pv["events"][0];
     assert_eq!(te["mid_utc"], "2027-01-20T23:00:00.000Z");
-    for field in dipwatch::outputs::EVENT_FIELDS {
+    for field in dipwatch::outputs::event_field_names() {
         assert_eq!(
             te[field], pe[field],
             "field {field} differs between tonight and plan"

@@ -323,3 +323,53 @@ fn schedule_command_and_calendar_of_the_schedule() {
         .collect();
     assert_eq!(ics.matches("BEGIN:VEVENT").count(), unique.len());
 }
+
+#[test]
+fn plan_and_schedule_print_the_shared_columns_byte_for_byte() {
+    // One definition per column: for the same event, the event columns of `schedule --format csv` are the
+    // exact text of `plan --format csv` (before, 1.000 / 0.260 / 2 printed as 1.0 / 0.26 / 2.0), and the JSON
+    // values agree too.
+    let (sites, targets, events) = inputs();
+    let tels = vec![TelescopeEvents {
+        site_index: 0,
+        telescope: "main".into(),
+        events: events.clone(),
+    }];
+    let chosen = schedule(&tels, &targets, &ScoreWeights::default(), 10.0, false);
+    assert!(chosen.len() >= 3);
+    let mut plan_out = String::new();
+    dipwatch::outputs::push_event_csv_rows(&events, &sites, &targets, &mut plan_out);
+    let plan_lines: Vec<&str> = plan_out.lines().collect();
+    let sched = dipwatch::outputs::schedule_csv(&chosen, &tels, &sites, &targets);
+    let n_event_cols = dipwatch::outputs::event_field_names().count();
+    let header: Vec<&str> = sched.lines().next().unwrap().split(',').collect();
+    assert_eq!(
+        header[..n_event_cols],
+        dipwatch::outputs::event_field_names().collect::<Vec<_>>()[..]
+    );
+    for (c, line) in chosen.iter().zip(sched.lines().skip(1)) {
+        let i = events.iter().position(|e| *e == c.event).unwrap();
+        let want = plan_lines[i];
+        assert!(
+            line.starts_with(want) && line[want.len()..].starts_with(','),
+            "schedule row\n{line}\ndoes not start with the plan row\n{want}"
+        );
+    }
+    let sj: serde_json::Value = serde_json::from_str(&dipwatch::outputs::schedule_json(
+        &chosen,
+        &tels,
+        &sites,
+        &targets,
+        &ScoreWeights::default(),
+        10.0,
+    ))
+    .unwrap();
+    for (c, s) in chosen.iter().zip(sj["scheduled"].as_array().unwrap()) {
+        let e = serde_json::Value::Object(dipwatch::outputs::event_json(
+            &dipwatch::outputs::EventRow::of(&c.event, &sites, &targets),
+        ));
+        for name in dipwatch::outputs::event_field_names() {
+            assert_eq!(s[name], e[name], "{name}");
+        }
+    }
+}

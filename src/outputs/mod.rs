@@ -2,6 +2,7 @@
 
 pub mod calendar;
 pub mod chart;
+pub mod columns;
 pub mod names;
 mod nights;
 mod plan;
@@ -9,14 +10,16 @@ mod refine;
 mod schedule;
 mod tonight;
 
-pub use nights::{nights_csv, nights_json, nights_table, NightRecord, NIGHT_FIELDS};
-pub use plan::{
-    csv_header, plan_csv, plan_json, plan_table, push_event_csv_rows, EventRecord, EVENT_FIELDS,
+pub use columns::{
+    csv_header, event_field_names, event_json, push_event_csv_rows, Column, EventRow, Value,
+    EVENT_COLUMNS,
 };
+pub use nights::{nights_csv, nights_json, nights_table, NightRecord, NIGHT_FIELDS};
+pub use plan::{plan_csv, plan_json, plan_table};
 pub use refine::{
     refine_csv, refine_json, refine_text, rewrite_targets_csv, stale_status, tension_text, StaleRow,
 };
-pub use schedule::{schedule_csv, schedule_json, schedule_table, SCHEDULE_FIELDS};
+pub use schedule::{schedule_csv, schedule_json, schedule_table, ScheduledRow, SCHEDULE_COLUMNS};
 pub use tonight::{countdown, tonight_json, tonight_text, Absence};
 
 use crate::astro::civil::{local_hhmm, zone_abbreviation};
@@ -61,10 +64,6 @@ fn block_text(e: &crate::engine::plan::Event, site: &Site, utc: bool) -> String 
         hhmm(e.block_start_utc, site, utc),
         hhmm(e.block_end_utc, site, utc)
     )
-}
-
-fn finite(x: f64, decimals: i32) -> Option<f64> {
-    x.is_finite().then(|| round(x, decimals))
 }
 
 /// `HH:MM` in site local time, or UTC.

@@ -1,150 +1,18 @@
 //! `plan` outputs: the terminal table, CSV and JSON.
 
-use super::{finite, floor_to, hhmm, round};
-use crate::astro::civil::rfc3339_utc;
-use crate::engine::plan::{Event, Plan, PlanOptions, Reason, Verdict};
+use super::columns::{csv_header, event_json, push_event_csv_rows, EventRow};
+use super::{hhmm, round};
+use crate::engine::plan::{Plan, PlanOptions, Reason, Verdict};
 use crate::inputs::sites::Site;
 use crate::inputs::targets::Target;
 use comfy_table::{Cell, CellAlignment, ContentArrangement};
-use serde::Serialize;
 
-/// One event as written to CSV and JSON. Field names and units are documented in the README.
-#[derive(Debug, Clone, Serialize)]
-pub struct EventRecord {
-    pub target: String,
-    pub site: String,
-    pub epoch: i64,
-    pub verdict: &'static str,
-    pub observable: bool,
-    pub coverage: f64,
-    pub mid_utc: String,
-    pub ingress_utc: String,
-    pub egress_utc: String,
-    pub block_start_utc: String,
-    pub block_end_utc: String,
-    pub full_block_start_utc: String,
-    pub full_block_end_utc: String,
-    pub usable_start_utc: Option<String>,
-    pub usable_end_utc: Option<String>,
-    pub sigma_min: f64,
-    pub baseline_before_min: f64,
-    pub baseline_after_min: f64,
-    pub night_of: String,
-    pub night_start_utc: Option<String>,
-    pub night_end_utc: Option<String>,
-    pub alt_ingress_deg: f64,
-    pub alt_mid_deg: f64,
-    pub alt_egress_deg: f64,
-    pub alt_block_start_deg: f64,
-    pub alt_block_end_deg: f64,
-    pub airmass_ingress: Option<f64>,
-    pub airmass_mid: Option<f64>,
-    pub airmass_egress: Option<f64>,
-    pub az_mid_deg: f64,
-    pub sun_alt_mid_deg: f64,
-    pub moon_alt_mid_deg: f64,
-    pub moon_sep_deg: f64,
-    pub moon_illum: f64,
-    pub meridian_utc: Option<String>,
-    pub depth_ppt: Option<f64>,
-    pub priority: f64,
-    pub reasons: Vec<&'static str>,
-}
-
-/// The fields of [`EventRecord`] in order: the CSV header and the JSON keys of each event.
-pub const EVENT_FIELDS: &[&str] = &[
-    "target",
-    "site",
-    "epoch",
-    "verdict",
-    "observable",
-    "coverage",
-    "mid_utc",
-    "ingress_utc",
-    "egress_utc",
-    "block_start_utc",
-    "block_end_utc",
-    "full_block_start_utc",
-    "full_block_end_utc",
-    "usable_start_utc",
-    "usable_end_utc",
-    "sigma_min",
-    "baseline_before_min",
-    "baseline_after_min",
-    "night_of",
-    "night_start_utc",
-    "night_end_utc",
-    "alt_ingress_deg",
-    "alt_mid_deg",
-    "alt_egress_deg",
-    "alt_block_start_deg",
-    "alt_block_end_deg",
-    "airmass_ingress",
-    "airmass_mid",
-    "airmass_egress",
-    "az_mid_deg",
-    "sun_alt_mid_deg",
-    "moon_alt_mid_deg",
-    "moon_sep_deg",
-    "moon_illum",
-    "meridian_utc",
-    "depth_ppt",
-    "priority",
-    "reasons",
-];
-
-impl EventRecord {
-    /// The record of `e`, with names looked up in the inputs.
-    pub fn new(e: &Event, sites: &[Site], targets: &[Target]) -> EventRecord {
-        let t = &targets[e.target_index];
-        EventRecord {
-            target: t.name.clone(),
-            site: sites[e.site_index].name.clone(),
-            epoch: e.epoch,
-            verdict: e.verdict.label(),
-            observable: e.observable,
-            coverage: floor_to(e.coverage, 3),
-            mid_utc: rfc3339_utc(e.mid_utc),
-            ingress_utc: rfc3339_utc(e.ingress_utc),
-            egress_utc: rfc3339_utc(e.egress_utc),
-            block_start_utc: rfc3339_utc(e.block_start_utc),
-            block_end_utc: rfc3339_utc(e.block_end_utc),
-            full_block_start_utc: rfc3339_utc(e.full_block_start_utc),
-            full_block_end_utc: rfc3339_utc(e.full_block_end_utc),
-            usable_start_utc: e.usable.map(|u| rfc3339_utc(u.start)),
-            usable_end_utc: e.usable.map(|u| rfc3339_utc(u.end)),
-            sigma_min: round(e.sigma_min, 2),
-            baseline_before_min: round(e.baseline_before_min, 1),
-            baseline_after_min: round(e.baseline_after_min, 1),
-            night_of: e.night_of.to_string(),
-            night_start_utc: e.night_dark.map(|d| rfc3339_utc(d.start)),
-            night_end_utc: e.night_dark.map(|d| rfc3339_utc(d.end)),
-            alt_ingress_deg: round(e.alt_ingress_deg, 2),
-            alt_mid_deg: round(e.alt_mid_deg, 2),
-            alt_egress_deg: round(e.alt_egress_deg, 2),
-            alt_block_start_deg: round(e.alt_block_start_deg, 2),
-            alt_block_end_deg: round(e.alt_block_end_deg, 2),
-            airmass_ingress: finite(e.airmass_ingress, 3),
-            airmass_mid: finite(e.airmass_mid, 3),
-            airmass_egress: finite(e.airmass_egress, 3),
-            az_mid_deg: round(e.az_mid_deg, 2),
-            sun_alt_mid_deg: round(e.sun_alt_mid_deg, 2),
-            moon_alt_mid_deg: round(e.moon_alt_mid_deg, 2),
-            moon_sep_deg: round(e.moon_sep_deg, 2),
-            moon_illum: round(e.moon_illum, 3),
-            meridian_utc: e.meridian_utc.map(rfc3339_utc),
-            depth_ppt: t.depth_ppt,
-            priority: t.priority,
-            reasons: e.reasons.iter().map(|r| r.label()).collect(),
-        }
-    }
-}
-
-fn records(plan: &Plan, sites: &[Site], targets: &[Target]) -> Vec<EventRecord> {
+/// The JSON objects of every event of the plan, site by site.
+fn event_objects(plan: &Plan, sites: &[Site], targets: &[Target]) -> Vec<serde_json::Value> {
     plan.sites
         .iter()
         .flat_map(|sp| sp.events.iter())
-        .map(|e| EventRecord::new(e, sites, targets))
+        .map(|e| serde_json::Value::Object(event_json(&EventRow::of(e, sites, targets))))
         .collect()
 }
 
@@ -155,152 +23,6 @@ pub fn plan_csv(plan: &Plan, sites: &[Site], targets: &[Target]) -> String {
         push_event_csv_rows(&sp.events, sites, targets, &mut out);
     }
     out
-}
-
-/// The CSV header line of events.
-pub fn csv_header() -> String {
-    let mut s = EVENT_FIELDS.join(",");
-    s.push('\n');
-    s
-}
-
-/// A CSV field, quoted when it holds a comma, quote or line break (RFC 4180 section 2).
-fn push_csv_text(s: &str, out: &mut String) {
-    if s.contains([',', '"', '\n', '\r']) {
-        out.push('"');
-        out.push_str(&s.replace('"', "\"\""));
-        out.push('"');
-    } else {
-        out.push_str(s);
-    }
-}
-
-/// Append `x` with exactly `decimals` decimals (0-6) without the general float formatter: scale, round half
-/// away from zero, print the digits. Equal to `format!("{x:.decimals$}")` except that a negative value which
-/// rounds to zero prints as `0.00`, not `-0.00`.
-fn push_fixed(x: f64, decimals: u32, out: &mut String) {
-    if !x.is_finite() || x.abs() >= 1e12 {
-        use std::fmt::Write;
-        let _ = write!(out, "{x:.prec$}", prec = decimals as usize);
-        return;
-    }
-    let scale = 10_u64.pow(decimals);
-    let scaled = (x * scale as f64).round() as i64;
-    if scaled < 0 {
-        out.push('-');
-    }
-    let v = scaled.unsigned_abs();
-    push_digits(v / scale, 1, out);
-    if decimals > 0 {
-        out.push('.');
-        push_digits(v % scale, decimals as usize, out);
-    }
-}
-
-/// Append the decimal digits of `v`, zero-padded to at least `width`.
-fn push_digits(mut v: u64, width: usize, out: &mut String) {
-    let mut digits = [b'0'; 20];
-    let mut i = digits.len();
-    while v > 0 || digits.len() - i < width {
-        i -= 1;
-        digits[i] = b'0' + (v % 10) as u8;
-        v /= 10;
-    }
-    for &b in &digits[i..] {
-        out.push(char::from(b));
-    }
-}
-
-/// Append one CSV row per event (the columns of [`EVENT_FIELDS`]) to `out`. Formats numbers with fixed
-/// decimals and timestamps without allocating, so a catalogue-scale plan streams quickly.
-pub fn push_event_csv_rows(events: &[Event], sites: &[Site], targets: &[Target], out: &mut String) {
-    use crate::astro::civil::push_rfc3339_utc as ts;
-    let num = |x: f64, d: u32, out: &mut String| {
-        push_fixed(x, d, out);
-        out.push(',');
-    };
-    for e in events {
-        let t = &targets[e.target_index];
-        push_csv_text(&t.name, out);
-        out.push(',');
-        push_csv_text(&sites[e.site_index].name, out);
-        out.push(',');
-        push_fixed(e.epoch as f64, 0, out);
-        out.push(',');
-        out.push_str(e.verdict.label());
-        out.push_str(if e.observable { ",true," } else { ",false," });
-        num(floor_to(e.coverage, 3), 3, out);
-        for jd in [
-            e.mid_utc,
-            e.ingress_utc,
-            e.egress_utc,
-            e.block_start_utc,
-            e.block_end_utc,
-            e.full_block_start_utc,
-            e.full_block_end_utc,
-        ] {
-            ts(jd, out);
-            out.push(',');
-        }
-        for jd in [e.usable.map(|u| u.start), e.usable.map(|u| u.end)] {
-            if let Some(jd) = jd {
-                ts(jd, out);
-            }
-            out.push(',');
-        }
-        num(e.sigma_min, 2, out);
-        num(e.baseline_before_min, 1, out);
-        num(e.baseline_after_min, 1, out);
-        out.push_str(&e.night_of.format("%Y-%m-%d").to_string());
-        out.push(',');
-        for jd in [e.night_dark.map(|d| d.start), e.night_dark.map(|d| d.end)] {
-            if let Some(jd) = jd {
-                ts(jd, out);
-            }
-            out.push(',');
-        }
-        for x in [
-            e.alt_ingress_deg,
-            e.alt_mid_deg,
-            e.alt_egress_deg,
-            e.alt_block_start_deg,
-            e.alt_block_end_deg,
-        ] {
-            num(x, 2, out);
-        }
-        for x in [e.airmass_ingress, e.airmass_mid, e.airmass_egress] {
-            if x.is_finite() {
-                push_fixed(x, 3, out);
-            }
-            out.push(',');
-        }
-        for x in [
-            e.az_mid_deg,
-            e.sun_alt_mid_deg,
-            e.moon_alt_mid_deg,
-            e.moon_sep_deg,
-        ] {
-            num(x, 2, out);
-        }
-        num(e.moon_illum, 3, out);
-        if let Some(m) = e.meridian_utc {
-            ts(m, out);
-        }
-        out.push(',');
-        if let Some(d) = t.depth_ppt {
-            out.push_str(&d.to_string());
-        }
-        out.push(',');
-        out.push_str(&t.priority.to_string());
-        out.push(',');
-        for (k, r) in e.reasons.iter().enumerate() {
-            if k > 0 {
-                out.push(';');
-            }
-            out.push_str(r.label());
-        }
-        out.push('\n');
-    }
 }
 
 /// JSON: `{"options": ..., "sites": [...], "events": [...], "lost_ephemerides": [...]}`.
@@ -328,7 +50,7 @@ pub fn plan_json(plan: &Plan, sites: &[Site], targets: &[Target], opts: &PlanOpt
     let doc = serde_json::json!({
         "options": opts,
         "sites": site_info,
-        "events": records(plan, sites, targets),
+        "events": event_objects(plan, sites, targets),
         "lost_ephemerides": lost,
     });
     let mut s = serde_json::to_string_pretty(&doc).unwrap_or_default();
@@ -537,35 +259,4 @@ pub fn plan_table(
         }
     ));
     out
-}
-
-#[cfg(test)]
-mod number_tests {
-    use super::push_fixed;
-
-    #[test]
-    fn fixed_decimals_match_the_formatter() {
-        for &x in &[
-            0.0,
-            1.0,
-            0.851,
-            12.345_6,
-            -3.2049,
-            1440.0,
-            99.995,
-            0.0005,
-            -0.5,
-            2_460_000.123_456,
-        ] {
-            for d in 0..4u32 {
-                let mut s = String::new();
-                push_fixed(x, d, &mut s);
-                let want = format!("{x:.prec$}", prec = d as usize);
-                // Ties may round differently (half away from zero vs the formatter's exact decimal); allow that.
-                let close = (s.parse::<f64>().unwrap() - want.parse::<f64>().unwrap()).abs()
-                    <= 10f64.powi(-(d as i32)) + 1e-12;
-                assert!(s == want || close, "{x} {d}: {s} vs {want}");
-            }
-        }
-    }
 }

@@ -1,13 +1,51 @@
 //! `schedule` outputs: the chosen blocks per telescope and night.
 
-use super::{round, EventRecord, EVENT_FIELDS};
+use super::columns::{
+    event_json, insert_json, push_csv_fields, push_header, Column, EventRow, Value, EVENT_COLUMNS,
+};
 use crate::engine::schedule::{Chosen, TelescopeEvents};
 use crate::inputs::sites::Site;
 use crate::inputs::targets::Target;
 use comfy_table::{Cell, CellAlignment, ContentArrangement};
 
-/// Extra fields of a scheduled event, after the plan's event fields.
-pub const SCHEDULE_FIELDS: &[&str] = &["telescope", "score", "paired_with", "combined_coverage"];
+/// A chosen block with what its extra columns need.
+pub struct ScheduledRow<'a> {
+    /// The choice.
+    pub chosen: &'a Chosen,
+    /// The telescopes it was chosen among.
+    pub tels: &'a [TelescopeEvents],
+    /// The sites.
+    pub sites: &'a [Site],
+}
+
+/// How a schedule column takes its value from a [`ScheduledRow`].
+pub type ScheduledValue = for<'r, 'a> fn(&'r ScheduledRow<'a>) -> Value<'r>;
+
+/// The columns a scheduled event has after the event columns ([`super::EVENT_COLUMNS`]).
+pub const SCHEDULE_COLUMNS: &[Column<ScheduledValue>] = &[
+    Column {
+        name: "telescope",
+        value: |r| Value::Text(&r.tels[r.chosen.telescope_index].telescope),
+    },
+    Column {
+        name: "score",
+        value: |r| Value::Fixed(r.chosen.score, 4),
+    },
+    Column {
+        name: "paired_with",
+        value: |r| match r.chosen.pair {
+            Some((t, _)) => Value::Owned(tel_label(r.tels, r.sites, t)),
+            None => Value::Null,
+        },
+    },
+    Column {
+        name: "combined_coverage",
+        value: |r| match r.chosen.pair {
+            Some((_, cov)) => Value::FloorFixed(cov, 3),
+            None => Value::Null,
+        },
+    },
+];
 
 fn tel_label(tels: &[TelescopeEvents], sites: &[Site], i: usize) -> String {
     let t = &tels[i];
@@ -19,33 +57,8 @@ fn tel_label(tels: &[TelescopeEvents], sites: &[Site], i: usize) -> String {
     }
 }
 
-fn record(
-    c: &Chosen,
-    tels: &[TelescopeEvents],
-    sites: &[Site],
-    targets: &[Target],
-) -> serde_json::Value {
-    let mut v =
-        serde_json::to_value(EventRecord::new(&c.event, sites, targets)).unwrap_or_default();
-    if let Some(obj) = v.as_object_mut() {
-        obj.insert(
-            "telescope".into(),
-            tels[c.telescope_index].telescope.clone().into(),
-        );
-        obj.insert("score".into(), round(c.score, 4).into());
-        obj.insert(
-            "paired_with".into(),
-            c.pair.map(|(t, _)| tel_label(tels, sites, t)).into(),
-        );
-        obj.insert(
-            "combined_coverage".into(),
-            c.pair.map(|(_, cov)| round(cov, 3)).into(),
-        );
-    }
-    v
-}
-
-/// JSON: `{"weights": ..., "changeover_min": ..., "scheduled": [...]}`.
+/// JSON: `{"weights": ..., "changeover_min": ..., "scheduled": [...]}`: each scheduled event has the event
+/// fields, then `telescope`, `score`, `paired_with`, `combined_coverage`.
 pub fn schedule_json(
     chosen: &[Chosen],
     tels: &[TelescopeEvents],
@@ -56,7 +69,16 @@ pub fn schedule_json(
 ) -> String {
     let recs: Vec<serde_json::Value> = chosen
         .iter()
-        .map(|c| record(c, tels, sites, targets))
+        .map(|c| {
+            let mut obj = event_json(&EventRow::of(&c.event, sites, targets));
+            let row = ScheduledRow {
+                chosen: c,
+                tels,
+                sites,
+            };
+            insert_json(SCHEDULE_COLUMNS, |f| f(&row), &mut obj);
+            serde_json::Value::Object(obj)
+        })
         .collect();
     let doc = serde_json::json!({"weights": weights, "changeover_min": changeover_min, "scheduled": recs});
     let mut s = serde_json::to_string_pretty(&doc).unwrap_or_default();
@@ -64,23 +86,32 @@ pub fn schedule_json(
     s
 }
 
-/// CSV: the plan's event columns followed by `telescope`, `score`, `paired_with`, `combined_coverage`.
+/// CSV: the event columns (written exactly as `plan` writes them) followed by `telescope`, `score`,
+/// `paired_with`, `combined_coverage`.
 pub fn schedule_csv(
     chosen: &[Chosen],
     tels: &[TelescopeEvents],
     sites: &[Site],
     targets: &[Target],
 ) -> String {
-    let fields: Vec<&str> = EVENT_FIELDS
-        .iter()
-        .chain(SCHEDULE_FIELDS)
-        .copied()
-        .collect();
-    let recs: Vec<serde_json::Value> = chosen
-        .iter()
-        .map(|c| record(c, tels, sites, targets))
-        .collect();
-    super::csv_from_records(&fields, &recs)
+    let mut out = String::new();
+    push_header(EVENT_COLUMNS, &mut out);
+    out.push(',');
+    push_header(SCHEDULE_COLUMNS, &mut out);
+    out.push('\n');
+    for c in chosen {
+        let row = EventRow::of(&c.event, sites, targets);
+        push_csv_fields(EVENT_COLUMNS, |f| f(&row), &mut out);
+        out.push(',');
+        let extra = ScheduledRow {
+            chosen: c,
+            tels,
+            sites,
+        };
+        push_csv_fields(SCHEDULE_COLUMNS, |f| f(&extra), &mut out);
+        out.push('\n');
+    }
+    out
 }
 
 /// The terminal table: one table per telescope, rows grouped by night, site local time (or UTC).

@@ -262,16 +262,15 @@ pub fn tonight_json(
     let recs: Vec<serde_json::Value> = events
         .iter()
         .map(|e| {
-            let mut v = serde_json::to_value(super::EventRecord::new(e, sites, targets))
-                .unwrap_or_default();
-            if let (Some(n), Some(obj)) = (now, v.as_object_mut()) {
+            let mut obj = super::event_json(&super::EventRow::of(e, sites, targets));
+            if let Some(n) = now {
                 obj.insert("status".into(), countdown(e, n).into());
                 obj.insert(
                     "minutes_to_block_start".into(),
                     round((e.block_start_utc - n) * 1440.0, 1).into(),
                 );
             }
-            v
+            serde_json::Value::Object(obj)
         })
         .collect();
     let absent: Vec<serde_json::Value> = absences

@@ -1,0 +1,446 @@
+//! One definition per output column of an event: its name and how its value is taken from the event. The CSV
+//! header, the CSV rows (written without the general float formatter, for catalogue-scale runs), the JSON keys
+//! and values of `plan`, `tonight` and `schedule` all come from [`EVENT_COLUMNS`], so a column cannot be printed
+//! two ways.
+
+use super::{floor_to, round};
+use crate::astro::civil::{push_rfc3339_utc, rfc3339_utc};
+use crate::engine::plan::{Event, Reason};
+use crate::inputs::sites::Site;
+use crate::inputs::targets::Target;
+
+/// One event with the inputs it refers to.
+#[derive(Debug, Clone, Copy)]
+pub struct EventRow<'a> {
+    /// The event.
+    pub event: &'a Event,
+    /// Its site.
+    pub site: &'a Site,
+    /// Its target.
+    pub target: &'a Target,
+}
+
+impl<'a> EventRow<'a> {
+    /// The row of `e`, its site and target looked up in the inputs.
+    pub fn of(e: &'a Event, sites: &'a [Site], targets: &'a [Target]) -> EventRow<'a> {
+        EventRow {
+            event: e,
+            site: &sites[e.site_index],
+            target: &targets[e.target_index],
+        }
+    }
+}
+
+/// The value of one column, with how it is printed.
+#[derive(Debug, Clone, PartialEq)]
+pub enum Value<'a> {
+    /// Text (quoted in CSV when needed).
+    Text(&'a str),
+    /// Owned text.
+    Owned(String),
+    /// An integer.
+    Int(i64),
+    /// `true`/`false`.
+    Bool(bool),
+    /// A number with exactly this many decimals in CSV, rounded to them in JSON.
+    Fixed(f64, u32),
+    /// A fraction someone acts on: rounded down to this many decimals (never shown higher than it is).
+    FloorFixed(f64, u32),
+    /// A number that may be missing (or not finite): empty in CSV, null in JSON.
+    OptFixed(Option<f64>, u32),
+    /// A UTC Julian Date as RFC 3339 text with milliseconds.
+    Time(f64),
+    /// A UTC Julian Date that may be missing.
+    OptTime(Option<f64>),
+    /// A calendar date, YYYY-MM-DD.
+    Date(chrono::NaiveDate),
+    /// A number from the inputs, printed as given (shortest form); may be missing.
+    Input(Option<f64>),
+    /// Reason labels: joined with `;` in CSV, an array in JSON.
+    Reasons(&'a [Reason]),
+    /// Missing: empty in CSV, null in JSON.
+    Null,
+}
+
+/// A column: its name (CSV header, JSON key) and the function giving its value for a row.
+pub struct Column<F> {
+    /// Name, as documented in the README.
+    pub name: &'static str,
+    /// The value for one row.
+    pub value: F,
+}
+
+/// How an event column takes its value from an [`EventRow`] (of any lifetime).
+pub type EventValue = for<'r, 'a> fn(&'r EventRow<'a>) -> Value<'r>;
+
+/// Every column of an event, in output order (documented in the README, "Output fields").
+pub const EVENT_COLUMNS: &[Column<EventValue>] = &[
+    Column {
+        name: "target",
+        value: |r| Value::Text(&r.target.name),
+    },
+    Column {
+        name: "site",
+        value: |r| Value::Text(&r.site.name),
+    },
+    Column {
+        name: "epoch",
+        value: |r| Value::Int(r.event.epoch),
+    },
+    Column {
+        name: "verdict",
+        value: |r| Value::Text(r.event.verdict.label()),
+    },
+    Column {
+        name: "observable",
+        value: |r| Value::Bool(r.event.observable),
+    },
+    Column {
+        name: "coverage",
+        value: |r| Value::FloorFixed(r.event.coverage, 3),
+    },
+    Column {
+        name: "mid_utc",
+        value: |r| Value::Time(r.event.mid_utc),
+    },
+    Column {
+        name: "ingress_utc",
+        value: |r| Value::Time(r.event.ingress_utc),
+    },
+    Column {
+        name: "egress_utc",
+        value: |r| Value::Time(r.event.egress_utc),
+    },
+    Column {
+        name: "block_start_utc",
+        value: |r| Value::Time(r.event.block_start_utc),
+    },
+    Column {
+        name: "block_end_utc",
+        value: |r| Value::Time(r.event.block_end_utc),
+    },
+    Column {
+        name: "full_block_start_utc",
+        value: |r| Value::Time(r.event.full_block_start_utc),
+    },
+    Column {
+        name: "full_block_end_utc",
+        value: |r| Value::Time(r.event.full_block_end_utc),
+    },
+    Column {
+        name: "usable_start_utc",
+        value: |r| Value::OptTime(r.event.usable.map(|u| u.start)),
+    },
+    Column {
+        name: "usable_end_utc",
+        value: |r| Value::OptTime(r.event.usable.map(|u| u.end)),
+    },
+    Column {
+        name: "sigma_min",
+        value: |r| Value::Fixed(r.event.sigma_min, 2),
+    },
+    Column {
+        name: "baseline_before_min",
+        value: |r| Value::Fixed(r.event.baseline_before_min, 1),
+    },
+    Column {
+        name: "baseline_after_min",
+        value: |r| Value::Fixed(r.event.baseline_after_min, 1),
+    },
+    Column {
+        name: "night_of",
+        value: |r| Value::Date(r.event.night_of),
+    },
+    Column {
+        name: "night_start_utc",
+        value: |r| Value::OptTime(r.event.night_dark.map(|d| d.start)),
+    },
+    Column {
+        name: "night_end_utc",
+        value: |r| Value::OptTime(r.event.night_dark.map(|d| d.end)),
+    },
+    Column {
+        name: "alt_ingress_deg",
+        value: |r| Value::Fixed(r.event.alt_ingress_deg, 2),
+    },
+    Column {
+        name: "alt_mid_deg",
+        value: |r| Value::Fixed(r.event.alt_mid_deg, 2),
+    },
+    Column {
+        name: "alt_egress_deg",
+        value: |r| Value::Fixed(r.event.alt_egress_deg, 2),
+    },
+    Column {
+        name: "alt_block_start_deg",
+        value: |r| Value::Fixed(r.event.alt_block_start_deg, 2),
+    },
+    Column {
+        name: "alt_block_end_deg",
+        value: |r| Value::Fixed(r.event.alt_block_end_deg, 2),
+    },
+    Column {
+        name: "airmass_ingress",
+        value: |r| airmass(r.event.airmass_ingress),
+    },
+    Column {
+        name: "airmass_mid",
+        value: |r| airmass(r.event.airmass_mid),
+    },
+    Column {
+        name: "airmass_egress",
+        value: |r| airmass(r.event.airmass_egress),
+    },
+    Column {
+        name: "az_mid_deg",
+        value: |r| Value::Fixed(r.event.az_mid_deg, 2),
+    },
+    Column {
+        name: "sun_alt_mid_deg",
+        value: |r| Value::Fixed(r.event.sun_alt_mid_deg, 2),
+    },
+    Column {
+        name: "moon_alt_mid_deg",
+        value: |r| Value::Fixed(r.event.moon_alt_mid_deg, 2),
+    },
+    Column {
+        name: "moon_sep_deg",
+        value: |r| Value::Fixed(r.event.moon_sep_deg, 2),
+    },
+    Column {
+        name: "moon_illum",
+        value: |r| Value::Fixed(r.event.moon_illum, 3),
+    },
+    Column {
+        name: "meridian_utc",
+        value: |r| Value::OptTime(r.event.meridian_utc),
+    },
+    Column {
+        name: "depth_ppt",
+        value: |r| Value::Input(r.target.depth_ppt),
+    },
+    Column {
+        name: "priority",
+        value: |r| Value::Input(Some(r.target.priority)),
+    },
+    Column {
+        name: "reasons",
+        value: |r| Value::Reasons(&r.event.reasons),
+    },
+];
+
+/// Airmass: three decimals, missing where infinite (target below -6 deg).
+fn airmass(x: f64) -> Value<'static> {
+    Value::OptFixed(x.is_finite().then_some(x), 3)
+}
+
+/// The names of the event columns, in order.
+pub fn event_field_names() -> impl Iterator<Item = &'static str> {
+    EVENT_COLUMNS.iter().map(|c| c.name)
+}
+
+/// The CSV header line of `columns` (no line end).
+pub fn push_header<F>(columns: &[Column<F>], out: &mut String) {
+    for (i, c) in columns.iter().enumerate() {
+        if i > 0 {
+            out.push(',');
+        }
+        out.push_str(c.name);
+    }
+}
+
+/// Append the CSV fields of one row, comma-separated (no line end); `value` evaluates a column's function on
+/// the row.
+pub fn push_csv_fields<'v, F>(
+    columns: &[Column<F>],
+    value: impl Fn(&F) -> Value<'v>,
+    out: &mut String,
+) {
+    for (i, c) in columns.iter().enumerate() {
+        if i > 0 {
+            out.push(',');
+        }
+        push_csv_value(&value(&c.value), out);
+    }
+}
+
+/// Insert the JSON keys and values of one row into `map`, in column order.
+pub fn insert_json<'v, F>(
+    columns: &[Column<F>],
+    value: impl Fn(&F) -> Value<'v>,
+    map: &mut serde_json::Map<String, serde_json::Value>,
+) {
+    for c in columns {
+        map.insert(c.name.to_string(), json_value(&value(&c.value)));
+    }
+}
+
+/// Append one CSV line per event: the fields of [`EVENT_COLUMNS`].
+pub fn push_event_csv_rows(events: &[Event], sites: &[Site], targets: &[Target], out: &mut String) {
+    for e in events {
+        let row = EventRow::of(e, sites, targets);
+        push_csv_fields(EVENT_COLUMNS, |f| f(&row), out);
+        out.push('\n');
+    }
+}
+
+/// The CSV header line of events, with its line end.
+pub fn csv_header() -> String {
+    let mut s = String::new();
+    push_header(EVENT_COLUMNS, &mut s);
+    s.push('\n');
+    s
+}
+
+/// The JSON object of one event.
+pub fn event_json(row: &EventRow<'_>) -> serde_json::Map<String, serde_json::Value> {
+    let mut map = serde_json::Map::new();
+    insert_json(EVENT_COLUMNS, |f| f(row), &mut map);
+    map
+}
+
+/// One CSV value. Numbers use fixed decimals without the general float formatter; times and dates allocate
+/// nothing.
+fn push_csv_value(v: &Value<'_>, out: &mut String) {
+    match v {
+        Value::Text(s) => push_csv_text(s, out),
+        Value::Owned(s) => push_csv_text(s, out),
+        Value::Int(i) => push_fixed(*i as f64, 0, out),
+        Value::Bool(b) => out.push_str(if *b { "true" } else { "false" }),
+        Value::Fixed(x, d) => push_fixed(*x, *d, out),
+        Value::FloorFixed(x, d) => push_fixed(floor_to(*x, *d as i32), *d, out),
+        Value::OptFixed(x, d) => {
+            if let Some(x) = x.filter(|x| x.is_finite()) {
+                push_fixed(x, *d, out);
+            }
+        }
+        Value::Time(jd) => push_rfc3339_utc(*jd, out),
+        Value::OptTime(jd) => {
+            if let Some(jd) = jd {
+                push_rfc3339_utc(*jd, out);
+            }
+        }
+        Value::Date(d) => {
+            use chrono::Datelike;
+            push_digits(d.year().max(0) as u64, 4, out);
+            out.push('-');
+            push_digits(u64::from(d.month()), 2, out);
+            out.push('-');
+            push_digits(u64::from(d.day()), 2, out);
+        }
+        Value::Input(x) => {
+            if let Some(x) = x {
+                out.push_str(&x.to_string());
+            }
+        }
+        Value::Reasons(rs) => {
+            for (k, r) in rs.iter().enumerate() {
+                if k > 0 {
+                    out.push(';');
+                }
+                out.push_str(r.label());
+            }
+        }
+        Value::Null => {}
+    }
+}
+
+/// One JSON value: numbers rounded to their decimals, times as RFC 3339 text, missing values null.
+fn json_value(v: &Value<'_>) -> serde_json::Value {
+    use serde_json::Value as J;
+    match v {
+        Value::Text(s) => J::from(*s),
+        Value::Owned(s) => J::from(s.as_str()),
+        Value::Int(i) => J::from(*i),
+        Value::Bool(b) => J::from(*b),
+        Value::Fixed(x, d) => J::from(round(*x, *d as i32)),
+        Value::FloorFixed(x, d) => J::from(floor_to(*x, *d as i32)),
+        Value::OptFixed(x, d) => x
+            .filter(|x| x.is_finite())
+            .map_or(J::Null, |x| J::from(round(x, *d as i32))),
+        Value::Time(jd) => J::from(rfc3339_utc(*jd)),
+        Value::OptTime(jd) => jd.map_or(J::Null, |jd| J::from(rfc3339_utc(jd))),
+        Value::Date(d) => J::from(d.format("%Y-%m-%d").to_string()),
+        Value::Input(x) => x.map_or(J::Null, J::from),
+        Value::Reasons(rs) => J::from(rs.iter().map(|r| r.label()).collect::<Vec<_>>()),
+        Value::Null => J::Null,
+    }
+}
+
+/// A CSV field, quoted when it holds a comma, quote or line break (RFC 4180 section 2).
+pub fn push_csv_text(s: &str, out: &mut String) {
+    if s.contains([',', '"', '\n', '\r']) {
+        out.push('"');
+        out.push_str(&s.replace('"', "\"\""));
+        out.push('"');
+    } else {
+        out.push_str(s);
+    }
+}
+
+/// Append `x` with exactly `decimals` decimals (0-6) without the general float formatter: scale, round half
+/// away from zero, print the digits. Equal to `format!("{x:.decimals$}")` except that a negative value which
+/// rounds to zero prints as `0.00`, not `-0.00`.
+pub fn push_fixed(x: f64, decimals: u32, out: &mut String) {
+    if !x.is_finite() || x.abs() >= 1e12 {
+        use std::fmt::Write;
+        let _ = write!(out, "{x:.prec$}", prec = decimals as usize);
+        return;
+    }
+    let scale = 10_u64.pow(decimals);
+    let scaled = (x * scale as f64).round() as i64;
+    if scaled < 0 {
+        out.push('-');
+    }
+    let v = scaled.unsigned_abs();
+    push_digits(v / scale, 1, out);
+    if decimals > 0 {
+        out.push('.');
+        push_digits(v % scale, decimals as usize, out);
+    }
+}
+
+/// Append the decimal digits of `v`, zero-padded to at least `width`.
+fn push_digits(mut v: u64, width: usize, out: &mut String) {
+    let mut digits = [b'0'; 20];
+    let mut i = digits.len();
+    while v > 0 || digits.len() - i < width {
+        i -= 1;
+        digits[i] = b'0' + (v % 10) as u8;
+        v /= 10;
+    }
+    for &b in &digits[i..] {
+        out.push(char::from(b));
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn fixed_decimals_match_the_formatter() {
+        for &x in &[
+            0.0,
+            1.0,
+            0.851,
+            12.345_6,
+            -3.2049,
+            1440.0,
+            99.995,
+            0.0005,
+            -0.5,
+            2_460_000.123_456,
+        ] {
+            for d in 0..4u32 {
+                let mut s = String::new();
+                push_fixed(x, d, &mut s);
+                let want = format!("{x:.prec$}", prec = d as usize);
+                // Ties may round differently (half away from zero vs the formatter's exact decimal); allow that.
+                let close = (s.parse::<f64>().unwrap() - want.parse::<f64>().unwrap()).abs()
+                    <= 10f64.powi(-(d as i32)) + 1e-12;
+                assert!(s == want || close, "{x} {d}: {s} vs {want}");
+            }
+        }
+    }
+}
