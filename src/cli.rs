@@ -724,17 +724,7 @@ fn run_calendar(args: CalendarArgs) -> Result<()> {
     let mut result = plan(&sites, &targets, &opts);
     if args.schedule {
         let (_, chosen) = make_schedule(&sites, &targets, &opts, &args.choice)?;
-        for sp in &mut result.sites {
-            sp.events = chosen
-                .iter()
-                .filter(|c| c.event.site_index == sp.site_index)
-                .map(|c| c.event.clone())
-                .collect();
-            sp.events
-                .sort_by(|a, b| a.block_start_utc.total_cmp(&b.block_start_utc));
-            sp.events
-                .dedup_by(|a, b| a.target_index == b.target_index && a.epoch == b.epoch);
-        }
+        dipwatch::engine::schedule::keep_scheduled(&mut result, &chosen);
     }
     let range = result
         .sites
@@ -847,6 +837,158 @@ struct RefineArgs {
     chart: Option<PathBuf>,
 }
 
+/// The observed times of `--observed` (only those of the `--target` names, if given).
+fn load_observations(args: &RefineArgs) -> Result<Vec<dipwatch::inputs::observed::Observation>> {
+    let Some(p) = &args.observed else {
+        return Ok(Vec::new());
+    };
+    let label = p.display().to_string();
+    let text = std::fs::read_to_string(p)
+        .with_context(|| format!("cannot read observed times {label}"))?;
+    let mut obs = dipwatch::inputs::observed::parse_observed(&label, &text)?;
+    if !args.target_names.is_empty() {
+        obs.retain(|o| {
+            args.target_names
+                .iter()
+                .any(|n| n.trim().eq_ignore_ascii_case(o.target.trim()))
+        });
+    }
+    Ok(obs)
+}
+
+/// Refine, naming the observed file in errors and noting skipped rows.
+fn refine_observed(
+    args: &RefineArgs,
+    targets: &[Target],
+    observations: &[dipwatch::inputs::observed::Observation],
+    targets_label: &str,
+) -> Result<Vec<dipwatch::engine::refine::TargetRefinement>> {
+    use dipwatch::engine::refine::{refine_targets, FitKind, RefineError, RefineOptions};
+    let observed_label = args
+        .observed
+        .as_ref()
+        .map(|p| p.display().to_string())
+        .unwrap_or_default();
+    check_finite("epoch-sigma", args.epoch_sigma, 1.0, 1e6)?;
+    let opts = RefineOptions {
+        fit: if args.observations_only {
+            FitKind::ObservationsOnly
+        } else {
+            FitKind::WithPrior
+        },
+        epoch_sigmas: args.epoch_sigma,
+    };
+    let (refinements, skipped) =
+        refine_targets(targets, observations, &opts).map_err(|e| match e {
+            RefineError::Fit { .. } => anyhow::anyhow!("{e}"),
+            _ => anyhow::anyhow!(
+                "{observed_label}:{}",
+                e.to_string().trim_start_matches("line ")
+            ),
+        })?;
+    if !observations.is_empty() && skipped.len() == observations.len() {
+        let names: Vec<String> = skipped.iter().map(|s| format!("{:?}", s.target)).collect();
+        bail!(
+            "{observed_label}:{}: target {} is not in {targets_label}, nor is any other target of this file ({}); \
+             expected target names as written in the targets file",
+            skipped[0].line,
+            names[0],
+            names.join(", ")
+        );
+    }
+    for s in &skipped {
+        eprintln!(
+            "dipwatch: {observed_label}:{}: target {:?} is not in {targets_label}; row skipped",
+            s.line, s.target
+        );
+    }
+    Ok(refinements)
+}
+
+/// Write the O-C chart of each refined target (FILE, or FILE-<target>.svg for several).
+fn write_oc_charts(
+    chart: &Path,
+    refinements: &[dipwatch::engine::refine::TargetRefinement],
+    targets: &[Target],
+) -> Result<()> {
+    for r in refinements {
+        let name = &targets[r.target_index].name;
+        let path = if refinements.len() == 1 {
+            chart.to_path_buf()
+        } else {
+            site_file_name(chart, name).with_extension("svg")
+        };
+        write_atomically(
+            &path,
+            dipwatch::outputs::chart::oc_chart_svg(name, &r.rows).as_bytes(),
+        )?;
+        eprintln!(
+            "dipwatch: wrote the O-C chart of {name} to {}",
+            path.display()
+        );
+    }
+    Ok(())
+}
+
+/// Write the targets file with the refined ephemerides to `out`, unless the observations and the catalogue
+/// are in tension and the user has not accepted it (the report is printed first, then the refusal).
+fn write_refined_targets(
+    args: &RefineArgs,
+    out: &Path,
+    targets_path: &Path,
+    (targets_label, targets_text, map): (&str, &str, &ColumnMap),
+    refinements: &[dipwatch::engine::refine::TargetRefinement],
+    targets: &[Target],
+    report_text: &str,
+) -> Result<()> {
+    let tense: Vec<String> = refinements
+        .iter()
+        .filter(|r| r.tension.is_serious())
+        .map(|r| {
+            format!(
+                "{} ({})",
+                targets[r.target_index].name,
+                report::tension_text(&r.tension)
+            )
+        })
+        .collect();
+    if !tense.is_empty() && !args.accept_tension {
+        emit(report_text, None)?;
+        bail!(
+            "not written to {}: the observations alone disagree with the catalogue by more than {} combined sigma \
+             for {}; check those observations (O-C against the catalogue above) and the catalogue ephemeris, or \
+             pass --accept-tension to write the refined ephemerides anyway",
+            out.display(),
+            dipwatch::engine::refine::TENSION_SIGMAS,
+            tense.join(", ")
+        );
+    }
+    if !args.in_place && same_file(out, targets_path) {
+        bail!(
+            "--out {} is the targets file itself; pass --in-place to overwrite it",
+            out.display()
+        );
+    }
+    let updates: Vec<(String, dipwatch::ephemeris::Ephemeris)> = refinements
+        .iter()
+        .map(|r| (targets[r.target_index].name.clone(), r.ephemeris))
+        .collect();
+    let updated = report::rewrite_targets_csv(targets_text, map, &updates)
+        .map_err(|m| anyhow::anyhow!("{targets_label}: {m}"))?;
+    write_atomically(out, updated.as_bytes())?;
+    eprintln!(
+        "dipwatch: wrote {} refined ephemerides ({}) to {}",
+        updates.len(),
+        if args.observations_only {
+            dipwatch::engine::refine::FitKind::ObservationsOnly.label()
+        } else {
+            dipwatch::engine::refine::FitKind::WithPrior.label()
+        },
+        out.display()
+    );
+    Ok(())
+}
+
 fn run_refine(args: RefineArgs) -> Result<()> {
     check_finite("stale-fraction", args.stale_fraction, 0.0, 10.0)?;
     let targets_path = args
@@ -871,63 +1013,8 @@ fn run_refine(args: RefineArgs) -> Result<()> {
         "target",
         &targets_label,
     )?;
-    let observations = match &args.observed {
-        None => Vec::new(),
-        Some(p) => {
-            let label = p.display().to_string();
-            let text = std::fs::read_to_string(p)
-                .with_context(|| format!("cannot read observed times {label}"))?;
-            let mut obs = dipwatch::inputs::observed::parse_observed(&label, &text)?;
-            if !args.target_names.is_empty() {
-                obs.retain(|o| {
-                    args.target_names
-                        .iter()
-                        .any(|n| n.trim().eq_ignore_ascii_case(o.target.trim()))
-                });
-            }
-            obs
-        }
-    };
-    let observed_label = args
-        .observed
-        .as_ref()
-        .map(|p| p.display().to_string())
-        .unwrap_or_default();
-    check_finite("epoch-sigma", args.epoch_sigma, 1.0, 1e6)?;
-    let refine_opts = dipwatch::engine::refine::RefineOptions {
-        fit: if args.observations_only {
-            dipwatch::engine::refine::FitKind::ObservationsOnly
-        } else {
-            dipwatch::engine::refine::FitKind::WithPrior
-        },
-        epoch_sigmas: args.epoch_sigma,
-    };
-    let (refinements, skipped) =
-        dipwatch::engine::refine::refine_targets(&targets, &observations, &refine_opts).map_err(
-            |e| match e {
-                dipwatch::engine::refine::RefineError::Fit { .. } => anyhow::anyhow!("{e}"),
-                _ => anyhow::anyhow!(
-                    "{observed_label}:{}",
-                    e.to_string().trim_start_matches("line ")
-                ),
-            },
-        )?;
-    if !observations.is_empty() && skipped.len() == observations.len() {
-        let names: Vec<String> = skipped.iter().map(|s| format!("{:?}", s.target)).collect();
-        bail!(
-            "{observed_label}:{}: target {} is not in {targets_label}, nor is any other target of this file ({}); \
-             expected target names as written in the targets file",
-            skipped[0].line,
-            names[0],
-            names.join(", ")
-        );
-    }
-    for s in &skipped {
-        eprintln!(
-            "dipwatch: {observed_label}:{}: target {:?} is not in {targets_label}; row skipped",
-            s.line, s.target
-        );
-    }
+    let observations = load_observations(&args)?;
+    let refinements = refine_observed(&args, &targets, &observations, &targets_label)?;
     let stale_date = args
         .stale_at
         .unwrap_or_else(|| chrono::Local::now().date_naive() + Duration::days(180));
@@ -936,59 +1023,16 @@ fn run_refine(args: RefineArgs) -> Result<()> {
         chrono::Datelike::month(&stale_date),
         f64::from(chrono::Datelike::day(&stale_date)),
     );
-    let mut stale: Vec<report::StaleRow> = targets
-        .iter()
-        .enumerate()
-        .map(|(i, t)| {
-            let refined = refinements.iter().find(|r| r.target_index == i);
-            let eph = refined.map(|r| &r.ephemeris).unwrap_or(&t.ephemeris);
-            report::StaleRow {
-                target_index: i,
-                refined: refined.is_some(),
-                staleness: dipwatch::engine::refine::staleness(eph, t.t14_hours, stale_jd),
-            }
-        })
-        .collect();
-    stale.sort_by(|a, b| {
-        b.staleness
-            .fraction_of_t14
-            .total_cmp(&a.staleness.fraction_of_t14)
-    });
+    let stale = dipwatch::engine::refine::staleness_table(&targets, &refinements, stale_jd);
     let stale_at = stale_date.to_string();
+    let f = args.stale_fraction;
     let text = match args.format {
-        Format::Table => report::refine_text(
-            &refinements,
-            &targets,
-            &stale,
-            &stale_at,
-            args.stale_fraction,
-        ),
-        Format::Csv => report::refine_csv(&refinements, &targets, &stale, args.stale_fraction),
-        Format::Json => report::refine_json(
-            &refinements,
-            &targets,
-            &stale,
-            &stale_at,
-            args.stale_fraction,
-        ),
+        Format::Table => report::refine_text(&refinements, &targets, &stale, &stale_at, f),
+        Format::Csv => report::refine_csv(&refinements, &targets, &stale, f),
+        Format::Json => report::refine_json(&refinements, &targets, &stale, &stale_at, f),
     };
     if let Some(chart) = &args.chart {
-        for r in &refinements {
-            let name = &targets[r.target_index].name;
-            let path = if refinements.len() == 1 {
-                chart.clone()
-            } else {
-                site_file_name(chart, name).with_extension("svg")
-            };
-            write_atomically(
-                &path,
-                dipwatch::outputs::chart::oc_chart_svg(name, &r.rows).as_bytes(),
-            )?;
-            eprintln!(
-                "dipwatch: wrote the O-C chart of {name} to {}",
-                path.display()
-            );
-        }
+        write_oc_charts(chart, &refinements, &targets)?;
     }
     let out_path = if args.in_place {
         Some(targets_path.clone())
@@ -996,47 +1040,15 @@ fn run_refine(args: RefineArgs) -> Result<()> {
         args.out.clone()
     };
     if let Some(out) = &out_path {
-        let tense: Vec<String> = refinements
-            .iter()
-            .filter(|r| r.tension.is_serious())
-            .map(|r| {
-                format!(
-                    "{} ({})",
-                    targets[r.target_index].name,
-                    report::tension_text(&r.tension)
-                )
-            })
-            .collect();
-        if !tense.is_empty() && !args.accept_tension {
-            emit(&text, None)?;
-            bail!(
-                "not written to {}: the observations alone disagree with the catalogue by more than {} combined sigma \
-                 for {}; check those observations (O-C against the catalogue above) and the catalogue ephemeris, or \
-                 pass --accept-tension to write the refined ephemerides anyway",
-                out.display(),
-                dipwatch::engine::refine::TENSION_SIGMAS,
-                tense.join(", ")
-            );
-        }
-        if !args.in_place && same_file(out, &targets_path) {
-            bail!(
-                "--out {} is the targets file itself; pass --in-place to overwrite it",
-                out.display()
-            );
-        }
-        let updates: Vec<(String, dipwatch::ephemeris::Ephemeris)> = refinements
-            .iter()
-            .map(|r| (targets[r.target_index].name.clone(), r.ephemeris))
-            .collect();
-        let updated = report::rewrite_targets_csv(&targets_text, &map, &updates)
-            .map_err(|m| anyhow::anyhow!("{targets_label}: {m}"))?;
-        write_atomically(out, updated.as_bytes())?;
-        eprintln!(
-            "dipwatch: wrote {} refined ephemerides ({}) to {}",
-            updates.len(),
-            refine_opts.fit.label(),
-            out.display()
-        );
+        write_refined_targets(
+            &args,
+            out,
+            &targets_path,
+            (&targets_label, &targets_text, &map),
+            &refinements,
+            &targets,
+            &text,
+        )?;
     }
     emit(&text, None)
 }
@@ -1151,33 +1163,7 @@ fn make_schedule(
         check_finite(name, w, 0.0, 1000.0)?;
     }
     let weights = c.weights();
-    let mut tels = Vec::new();
-    for (si, site) in sites.iter().enumerate() {
-        // Telescopes sharing their altitude limits share one plan.
-        type Limits = (f64, Option<f64>);
-        let mut cache: Vec<(Limits, Vec<dipwatch::engine::plan::Event>)> = Vec::new();
-        for t in &site.telescopes {
-            let s = site.for_telescope(t);
-            let limits = (s.min_alt_deg, s.max_alt_deg);
-            let events = match cache.iter().find(|(a, _)| *a == limits) {
-                Some((_, ev)) => ev.clone(),
-                None => {
-                    let mut p = plan(std::slice::from_ref(&s), targets, opts);
-                    let mut ev = std::mem::take(&mut p.sites[0].events);
-                    for e in &mut ev {
-                        e.site_index = si;
-                    }
-                    cache.push((limits, ev.clone()));
-                    ev
-                }
-            };
-            tels.push(dipwatch::engine::schedule::TelescopeEvents {
-                site_index: si,
-                telescope: t.name.clone(),
-                events,
-            });
-        }
-    }
+    let tels = dipwatch::engine::schedule::telescope_candidates(sites, targets, opts);
     let chosen = dipwatch::engine::schedule::schedule(
         &tels,
         targets,
@@ -1245,14 +1231,13 @@ fn run_chart_night(args: ChartNightArgs) -> Result<()> {
         std::slice::from_ref(&args.target),
     )?;
     let opts = args.block.options(args.date, args.date, true)?;
-    let sites = vec![site];
-    let result = plan(&sites, &targets, &opts);
-    let almanac = dipwatch::engine::almanac::night_almanac(&sites[0], args.date);
+    let events = dipwatch::engine::plan::events_of_night(&site, &targets[0], args.date, &opts);
+    let almanac = dipwatch::engine::almanac::night_almanac(&site, args.date);
     let svg = dipwatch::outputs::chart::night_chart_svg(
-        &sites[0],
+        &site,
         &targets[0],
         &almanac,
-        &result.sites[0].events,
+        &events,
         opts.sigma_k,
     );
     write_atomically(&args.out, svg.as_bytes())?;
@@ -1290,21 +1275,7 @@ fn run_chart_season(args: ChartSeasonArgs) -> Result<()> {
     let (sites, targets) = load(&args.input)?;
     let result = plan(&sites, &targets, &opts);
     // Moon illuminated fraction at local mean solar midnight of the first site.
-    let moon: Vec<(NaiveDate, f64)> = first
-        .iter_days()
-        .take_while(|d| *d <= last)
-        .map(|d| {
-            let mid = dipwatch::engine::almanac::night_window(&sites[0], d).start + 0.5;
-            (
-                d,
-                dipwatch::astro::sky::sun_moon_at(
-                    dipwatch::astro::time::JdUtc(mid),
-                    &sites[0].observer,
-                )
-                .moon_illum,
-            )
-        })
-        .collect();
+    let moon = dipwatch::engine::almanac::moon_by_night(&sites[0], first, last);
     let svg = dipwatch::outputs::chart::season_svg(&result, &sites, &targets, &moon);
     write_atomically(&args.out, svg.as_bytes())?;
     eprintln!("dipwatch: wrote {}", args.out.display());
@@ -1312,8 +1283,6 @@ fn run_chart_season(args: ChartSeasonArgs) -> Result<()> {
         let nights_dir = dir.join("nights");
         std::fs::create_dir_all(&nights_dir)
             .with_context(|| format!("cannot create {}", nights_dir.display()))?;
-        let mut all = opts.clone();
-        all.include_unobservable = true;
         for sp in &result.sites {
             let site = &sites[sp.site_index];
             let mut done = std::collections::HashSet::new();
@@ -1323,16 +1292,15 @@ fn run_chart_season(args: ChartSeasonArgs) -> Result<()> {
                     continue;
                 }
                 // Every event of that target on that night, as plan sees them.
-                all.first_night = e.night_of;
-                all.last_night = e.night_of;
-                let one = std::slice::from_ref(&targets[e.target_index]);
-                let p = plan(std::slice::from_ref(site), one, &all);
+                let target = &targets[e.target_index];
+                let events =
+                    dipwatch::engine::plan::events_of_night(site, target, e.night_of, &opts);
                 let alm = dipwatch::engine::almanac::night_almanac(site, e.night_of);
                 let chart = dipwatch::outputs::chart::night_chart_svg(
                     site,
-                    &one[0],
+                    target,
                     &alm,
-                    &p.sites[0].events,
+                    &events,
                     opts.sigma_k,
                 );
                 write_atomically(&nights_dir.join(&file), chart.as_bytes())?;

@@ -109,6 +109,22 @@ pub fn dark_interval(site: &Site, window: &Interval, tables: &SkyTables) -> Opti
         .below_interval(window)
 }
 
+/// The Moon's illuminated fraction at local mean solar midnight (the middle of the night window) of every night
+/// `first..=last` at `site` (Meeus 1998 eq. 48.1-48.3 through [`crate::astro::sky::sun_moon_at`]).
+pub fn moon_by_night(site: &Site, first: NaiveDate, last: NaiveDate) -> Vec<(NaiveDate, f64)> {
+    first
+        .iter_days()
+        .take_while(|d| *d <= last)
+        .map(|d| {
+            let mid = night_window(site, d).start + 0.5;
+            (
+                d,
+                crate::astro::sky::sun_moon_at(JdUtc(mid), &site.observer).moon_illum,
+            )
+        })
+        .collect()
+}
+
 /// The almanac for the night that begins on `night_of` at `site`.
 pub fn night_almanac(site: &Site, night_of: NaiveDate) -> NightAlmanac {
     let window = night_window(site, night_of);

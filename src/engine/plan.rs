@@ -257,6 +257,28 @@ pub struct Plan {
     pub lost: Vec<LostEphemeris>,
 }
 
+/// Every event (observable or not) of `target` at `site` on the night `night_of`, with the block options of
+/// `opts`: what a night chart draws.
+pub fn events_of_night(
+    site: &Site,
+    target: &Target,
+    night_of: NaiveDate,
+    opts: &PlanOptions,
+) -> Vec<Event> {
+    let one_night = PlanOptions {
+        first_night: night_of,
+        last_night: night_of,
+        include_unobservable: true,
+        ..opts.clone()
+    };
+    let mut p = plan(
+        std::slice::from_ref(site),
+        std::slice::from_ref(target),
+        &one_night,
+    );
+    std::mem::take(&mut p.sites[0].events)
+}
+
 /// The windows (local mean solar noon to the next) of the nights `first..=last` at a site, UTC JD.
 pub fn night_windows(site: &Site, first: NaiveDate, last: NaiveDate) -> Vec<(NaiveDate, Interval)> {
     first

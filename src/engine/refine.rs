@@ -350,6 +350,45 @@ pub fn assign_epochs(eph: &Ephemeris, times: &[f64]) -> Result<Vec<i64>, (usize,
         .collect()
 }
 
+/// One target's staleness at a date, with the ephemeris it was computed from.
+#[derive(Debug, Clone, PartialEq)]
+pub struct StaleRow {
+    /// Target index.
+    pub target_index: usize,
+    /// Whether the ephemeris is the refined one.
+    pub refined: bool,
+    /// The numbers.
+    pub staleness: Staleness,
+}
+
+/// Staleness of every target at `at` (BJD_TDB or any system: a minute changes nothing), from its refined
+/// ephemeris where there is one, the stalest first.
+pub fn staleness_table(
+    targets: &[Target],
+    refinements: &[TargetRefinement],
+    at: f64,
+) -> Vec<StaleRow> {
+    let mut rows: Vec<StaleRow> = targets
+        .iter()
+        .enumerate()
+        .map(|(i, t)| {
+            let refined = refinements.iter().find(|r| r.target_index == i);
+            let eph = refined.map(|r| &r.ephemeris).unwrap_or(&t.ephemeris);
+            StaleRow {
+                target_index: i,
+                refined: refined.is_some(),
+                staleness: staleness(eph, t.t14_hours, at),
+            }
+        })
+        .collect();
+    rows.sort_by(|a, b| {
+        b.staleness
+            .fraction_of_t14
+            .total_cmp(&a.staleness.fraction_of_t14)
+    });
+    rows
+}
+
 /// How stale an ephemeris will be at a date.
 #[derive(Debug, Clone, PartialEq)]
 pub struct Staleness {

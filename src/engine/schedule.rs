@@ -11,7 +11,8 @@
 //! multi-machine assignment); each telescope-night on its own is optimal.
 
 use crate::astro::crossings::Interval;
-use crate::engine::plan::{Event, Verdict};
+use crate::engine::plan::{plan, Event, Plan, PlanOptions, Verdict};
+use crate::inputs::sites::Site;
 use crate::inputs::targets::Target;
 use std::collections::{BTreeMap, HashMap, HashSet};
 
@@ -182,6 +183,58 @@ pub fn combined_coverage(a: &Event, b: &Event) -> f64 {
     }
     total += cur.map(|c| c.len_days()).unwrap_or(0.0);
     (total / transit.len_days()).clamp(0.0, 1.0)
+}
+
+/// The candidates of every telescope: for each site and telescope, the plan's events with that telescope's
+/// altitude limits (telescopes sharing their limits share one plan). Events keep the site's index.
+pub fn telescope_candidates(
+    sites: &[Site],
+    targets: &[Target],
+    opts: &PlanOptions,
+) -> Vec<TelescopeEvents> {
+    let mut tels = Vec::new();
+    for (si, site) in sites.iter().enumerate() {
+        type Limits = (f64, Option<f64>);
+        let mut cache: Vec<(Limits, Vec<Event>)> = Vec::new();
+        for t in &site.telescopes {
+            let s = site.for_telescope(t);
+            let limits = (s.min_alt_deg, s.max_alt_deg);
+            let events = match cache.iter().find(|(a, _)| *a == limits) {
+                Some((_, ev)) => ev.clone(),
+                None => {
+                    let mut p = plan(std::slice::from_ref(&s), targets, opts);
+                    let mut ev = std::mem::take(&mut p.sites[0].events);
+                    for e in &mut ev {
+                        e.site_index = si;
+                    }
+                    cache.push((limits, ev.clone()));
+                    ev
+                }
+            };
+            tels.push(TelescopeEvents {
+                site_index: si,
+                telescope: t.name.clone(),
+                events,
+            });
+        }
+    }
+    tels
+}
+
+/// `plan` with each site's events replaced by the scheduled ones (each transit once per site, in start
+/// order): what a calendar of the schedule shows.
+pub fn keep_scheduled(plan: &mut Plan, chosen: &[Chosen]) {
+    for sp in &mut plan.sites {
+        sp.events = chosen
+            .iter()
+            .filter(|c| c.event.site_index == sp.site_index)
+            .map(|c| c.event.clone())
+            .collect();
+        sp.events
+            .sort_by(|a, b| a.block_start_utc.total_cmp(&b.block_start_utc));
+        sp.events
+            .dedup_by(|a, b| a.target_index == b.target_index && a.epoch == b.epoch);
+    }
 }
 
 /// Schedule every telescope and night.

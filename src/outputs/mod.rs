@@ -17,7 +17,7 @@ pub use columns::{
 pub use nights::{nights_csv, nights_json, nights_table, NightRecord, NIGHT_FIELDS};
 pub use plan::{plan_csv, plan_json, plan_table};
 pub use refine::{
-    refine_csv, refine_json, refine_text, rewrite_targets_csv, stale_status, tension_text, StaleRow,
+    refine_csv, refine_json, refine_text, rewrite_targets_csv, stale_status, tension_text,
 };
 pub use schedule::{schedule_csv, schedule_json, schedule_table, ScheduledRow, SCHEDULE_COLUMNS};
 pub use tonight::{countdown, tonight_json, tonight_text, Absence};

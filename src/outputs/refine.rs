@@ -1,22 +1,11 @@
 //! `refine` outputs: fit summaries, O-C tables, staleness, and the updated targets CSV.
 
 use super::round;
-use crate::engine::refine::{FitKind, LinearFit, Staleness, TargetRefinement, Tension};
+use crate::engine::refine::{FitKind, LinearFit, StaleRow, Staleness, TargetRefinement, Tension};
 use crate::ephemeris::Ephemeris;
 use crate::inputs::targets::{detect_delimiter, ColumnMap, Target};
 use comfy_table::{Cell, CellAlignment, ContentArrangement};
 use serde_json::json;
-
-/// One target's staleness at the chosen date, with the ephemeris it was computed from.
-#[derive(Debug, Clone, PartialEq)]
-pub struct StaleRow {
-    /// Target index.
-    pub target_index: usize,
-    /// Whether the ephemeris is the refined one.
-    pub refined: bool,
-    /// The numbers.
-    pub staleness: Staleness,
-}
 
 /// The plain-language status of a staleness row.
 pub fn stale_status(s: &Staleness, fraction: f64) -> &'static str {
