@@ -1,0 +1,73 @@
+//! `dipwatch tonight`: one night at one site, with the countdown when run on the day.
+
+use super::*;
+
+#[derive(Copy, Clone, Debug, PartialEq, Eq, ValueEnum)]
+pub(super) enum TextFormat {
+    Text,
+    Json,
+}
+
+#[derive(Args, Debug)]
+pub(super) struct TonightArgs {
+    /// The site (by name, case-insensitive); may be left out when the sites file holds one site
+    #[arg(long, value_name = "NAME")]
+    pub(super) site: Option<String>,
+    /// Only this target (repeatable); asked-for targets with nothing observable are explained
+    #[arg(long = "target", value_name = "NAME")]
+    pub(super) target_names: Vec<String>,
+    /// The local date on which the night begins. Default: the current or coming night at the site
+    #[arg(long, value_parser = parse_date, value_name = "YYYY-MM-DD")]
+    pub(super) date: Option<NaiveDate>,
+    #[command(flatten)]
+    pub(super) files: FileArgs,
+    #[command(flatten)]
+    pub(super) block: BlockArgs,
+    /// Output format
+    #[arg(long, value_enum, default_value_t = TextFormat::Text)]
+    pub(super) format: TextFormat,
+    /// Show UTC instead of site local time
+    #[arg(long)]
+    pub(super) utc: bool,
+}
+
+pub(super) fn run_tonight(args: TonightArgs) -> Result<()> {
+    let site = one_site(&args.files.sites, &args.site)?;
+    let targets = load_targets(&args.files.targets, &args.files.columns, &args.target_names)?;
+    let now_jd = dipwatch::astro::civil::jd_from_datetime(&chrono::Utc::now());
+    let current_night = dipwatch::astro::civil::night_of(now_jd, site.lon_deg, site.tz);
+    let date = args.date.unwrap_or(current_night);
+    let opts = args.block.options(date, date, true)?;
+    // The countdown only makes sense for the night in progress or about to begin.
+    let now = (date == current_night).then_some(now_jd);
+    let sites = vec![site];
+    let result = plan(&sites, &targets, &opts);
+    let events = &result.sites[0].events;
+    let almanac = dipwatch::engine::almanac::night_almanac(&sites[0], date);
+    let asked: Vec<usize> = if args.target_names.is_empty() {
+        Vec::new()
+    } else {
+        (0..targets.len()).collect()
+    };
+    let absences: Vec<report::Absence> = asked
+        .iter()
+        .filter(|&&ti| !events.iter().any(|e| e.target_index == ti))
+        .map(|&ti| report::Absence::NoTransit {
+            target_index: ti,
+            next_mid_utc: dipwatch::engine::plan::next_mid_after(
+                &targets[ti],
+                &sites[0],
+                almanac.window.end,
+            ),
+        })
+        .collect();
+    let text = match args.format {
+        TextFormat::Text => report::tonight_text(
+            &sites[0], &almanac, events, &targets, &asked, &absences, now, args.utc,
+        ),
+        TextFormat::Json => report::tonight_json(
+            &sites[0], &almanac, events, &sites, &targets, &absences, now,
+        ),
+    };
+    emit(&text, None)
+}
