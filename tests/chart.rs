@@ -89,8 +89,8 @@ fn night_chart_draws_each_event_and_covers_the_night() {
     let sites =
         dipwatch::inputs::sites::parse_sites("s", &std::fs::read_to_string(&s).unwrap()).unwrap();
     let alm = dipwatch::engine::almanac::night_almanac(&sites[0], "2027-03-07".parse().unwrap());
-    let range = dipwatch::outputs::chart::night_range(&alm, &[]);
-    assert!(range.start < alm.sun.dusk.unwrap() && range.end > alm.sun.dawn.unwrap());
+    let (start, end) = dipwatch::engine::track::night_range(&alm, &[]);
+    assert!(start < alm.sun.dusk.unwrap() && end > alm.sun.dawn.unwrap());
     let night_rects = doc
         .descendants()
         .filter(|n| n.attribute("class") == Some("twilight night"))
@@ -264,4 +264,38 @@ fn night_chart_draws_the_zenith_limit_when_the_site_has_one() {
     let without = draw(&repo("sites.example.toml"), "without.svg");
     let doc = roxmltree::Document::parse(&without).unwrap();
     assert_eq!(count_class(&doc, "zenith-limit"), 0);
+}
+
+#[test]
+fn night_chart_twilight_edges_are_the_almanac_crossings() {
+    // The shading is cut exactly at the almanac's crossing times (before, a 5-minute sampling of hard-coded levels
+    // put the edges up to 2.5 min off). Every civil/nautical/astronomical dusk and dawn inside the axis is an edge.
+    let sites = dipwatch::inputs::sites::parse_sites(
+        "s",
+        &std::fs::read_to_string(repo("sites.example.toml")).unwrap(),
+    )
+    .unwrap();
+    let targets = dipwatch::inputs::targets::parse_targets(
+        "t",
+        &std::fs::read_to_string(repo("targets.example.csv")).unwrap(),
+        &dipwatch::inputs::targets::ColumnMap::default(),
+    )
+    .unwrap();
+    let alm = dipwatch::engine::almanac::night_almanac(&sites[0], "2027-03-07".parse().unwrap());
+    let track = dipwatch::engine::track::night_track(&sites[0], &targets[0], &alm, &[]);
+    let edges: Vec<f64> = track.twilight.iter().map(|s| s.start_utc).skip(1).collect();
+    for level in [&alm.sun, &alm.civil, &alm.nautical, &alm.astronomical] {
+        for t in [level.dusk, level.dawn].into_iter().flatten() {
+            if t > track.start_utc && t < track.end_utc {
+                assert!(
+                    edges.iter().any(|e| (e - t).abs() < 1e-9),
+                    "crossing {t} is not an edge of {:?}",
+                    track.twilight
+                );
+            }
+        }
+    }
+    // Night in the middle, day at the ends.
+    assert_eq!(track.twilight.first().unwrap().band.name(), "day");
+    assert!(track.twilight.iter().any(|s| s.band.name() == "night"));
 }

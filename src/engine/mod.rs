@@ -5,3 +5,4 @@ pub mod almanac;
 pub mod plan;
 pub mod refine;
 pub mod schedule;
+pub mod track;

@@ -316,7 +316,7 @@ pub fn nights_with(
 
 /// A target's apparent place of date frozen over one block (precession, nutation and aberration change by
 /// < 0.1" in a day), turned into altitude and azimuth at any instant from the sidereal time.
-struct Track {
+pub(crate) struct Track {
     ra_rad: f64,
     dec_rad: f64,
     eqeq_rad: f64,
@@ -325,7 +325,7 @@ struct Track {
 }
 
 impl Track {
-    fn new(icrs: &Vec3, t_ref: f64, site: &Site, tables: &SkyTables) -> Track {
+    pub(crate) fn new(icrs: &Vec3, t_ref: f64, site: &Site, tables: &SkyTables) -> Track {
         let (ra_rad, dec_rad) = tables.apparent_radec(icrs, t_ref);
         Track {
             ra_rad,
@@ -342,19 +342,19 @@ impl Track {
     }
 
     /// Altitude, deg.
-    fn alt_deg(&self, t: f64) -> f64 {
+    pub(crate) fn alt_deg(&self, t: f64) -> f64 {
         crate::astro::frames::alt_from_hadec(self.ha_rad(t), self.dec_rad, self.lat_rad)
             .to_degrees()
     }
 
     /// (altitude deg, azimuth deg).
-    fn alt_az_deg(&self, t: f64) -> (f64, f64) {
+    pub(crate) fn alt_az_deg(&self, t: f64) -> (f64, f64) {
         let (alt, az) = alt_az_from_hadec(self.ha_rad(t), self.dec_rad, self.lat_rad);
         (alt.to_degrees(), az.to_degrees())
     }
 
     /// Upper and lower meridian crossings within [start, end], UTC JD: (upper, lower).
-    fn culminations(&self, start: f64, end: f64) -> (Vec<f64>, Vec<f64>) {
+    pub(crate) fn culminations(&self, start: f64, end: f64) -> (Vec<f64>, Vec<f64>) {
         let day = 1.0 / GMST_RATE_PER_UT1_DAY;
         let t0 = start - self.ha_rad(start) / TAU * day;
         let mut upper = Vec::new();

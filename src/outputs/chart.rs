@@ -12,13 +12,10 @@
 //! middle-only = centre bar.
 
 use crate::astro::atmosphere::alt_deg_for_airmass;
-use crate::astro::barycentric::EarthTable;
 use crate::astro::civil::{datetime_from_jd, local_hhmm, zone_abbreviation};
-use crate::astro::frames::{wrap_pi, EarthOrientation};
-use crate::astro::sky::{sun_alt_deg, target_alt_az_deg};
-use crate::astro::time::{jd_tdb_from_utc, JdUtc};
 use crate::engine::almanac::NightAlmanac;
 use crate::engine::plan::{Event, Plan, Verdict};
+use crate::engine::track::{night_track, NightTrack, SkyBand, TrackSample};
 use crate::inputs::sites::Site;
 use crate::inputs::targets::Target;
 use std::fmt::Write;
@@ -117,34 +114,58 @@ impl Svg {
     }
 }
 
-/// Everything computed for a night chart, exposed for tests.
-#[derive(Debug, Clone, PartialEq)]
-pub struct NightChartRange {
-    /// First and last instant on the time axis, UTC JD.
-    pub start: f64,
-    /// Last instant on the time axis, UTC JD.
-    pub end: f64,
+/// The plotting area of a night chart and its scales.
+struct NightCanvas {
+    svg: Svg,
+    x0: f64,
+    x1: f64,
+    y0: f64,
+    y1: f64,
+    start: f64,
+    end: f64,
 }
 
-/// The time axis of a night chart: one hour before sunset to one hour after sunrise (the whole noon-to-noon
-/// window when the Sun does not set or rise), widened to include every block.
-pub fn night_range(almanac: &NightAlmanac, events: &[Event]) -> NightChartRange {
-    let w = almanac.window;
-    let mut start = almanac.sun.dusk.map(|t| t - 1.0 / 24.0).unwrap_or(w.start);
-    let mut end = almanac.sun.dawn.map(|t| t + 1.0 / 24.0).unwrap_or(w.end);
-    for e in events {
-        start = start.min(e.full_block_start_utc - 0.25 / 24.0);
-        end = end.max(e.full_block_end_utc + 0.25 / 24.0);
+impl NightCanvas {
+    /// x of a UTC JD.
+    fn xs(&self, t: f64) -> f64 {
+        self.x0 + (t - self.start) / (self.end - self.start) * (self.x1 - self.x0)
     }
-    NightChartRange {
-        start: start.max(w.start),
-        end: end.min(w.end),
+
+    /// y of an altitude, deg (0-90 shown).
+    fn ys(&self, alt: f64) -> f64 {
+        self.y1 - alt.clamp(0.0, 90.0) / 90.0 * (self.y1 - self.y0)
+    }
+
+    /// A full-height band from `a` to `b` (UTC JD), clipped to the axis.
+    fn band(&mut self, a: f64, b: f64, style: &str, class: &str) {
+        let (xa, xb) = (self.xs(a.max(self.start)), self.xs(b.min(self.end)));
+        let (y0, h) = (self.y0, self.y1 - self.y0);
+        self.svg.rect(xa, y0, xb - xa, h, style, class);
+    }
+
+    /// A horizontal dashed line at altitude `alt` across the plot.
+    fn level(&mut self, alt: f64, style: &str, class: &str) {
+        let y = self.ys(alt);
+        let (x0, x1) = (self.x0, self.x1);
+        self.svg.line(x0, y, x1, y, style, class);
+    }
+}
+
+/// Fill of each sky band, lightest by day.
+fn band_fill(b: SkyBand) -> &'static str {
+    match b {
+        SkyBand::Day => "#ffffff",
+        SkyBand::Civil => "#f4f6fa",
+        SkyBand::Nautical => "#e6ebf3",
+        SkyBand::Astronomical => "#d7dfec",
+        SkyBand::Night => "#c8d1e3",
     }
 }
 
 /// The night chart of `target` at `site`: altitude (left) and airmass (right) against local time, twilight
-/// shading, the site's limit and horizon along the track, the Moon, each observing block with ingress/egress,
-/// their +-sigma bands and the baselines, and the meridian crossing.
+/// shading at the almanac's crossing times, the site's limits and horizon along the track, the Moon, each
+/// observing block with ingress/egress, their +-sigma bands and the baselines, and the meridian crossing. The
+/// curves, bands and crossing come from [`crate::engine::track::night_track`]; this only draws them.
 pub fn night_chart_svg(
     site: &Site,
     target: &Target,
@@ -152,21 +173,44 @@ pub fn night_chart_svg(
     events: &[Event],
     sigma_k: f64,
 ) -> String {
-    let range = night_range(almanac, events);
-    let (w, h) = (940.0, 560.0);
-    let (x0, x1, y0, y1) = (70.0, 860.0, 64.0, 420.0);
-    let (alt_lo, alt_hi) = (0.0, 90.0);
-    let xs = |t: f64| x0 + (t - range.start) / (range.end - range.start) * (x1 - x0);
-    let ys = |alt: f64| y1 - (alt.clamp(alt_lo, alt_hi) - alt_lo) / (alt_hi - alt_lo) * (y1 - y0);
+    let track = night_track(site, target, almanac, events);
     let title = format!(
         "{} from {}, night of {}",
         target.name, site.name, almanac.night_of
     );
-    let mut svg = Svg::new(w, h, &title);
-    svg.text(
+    let mut c = NightCanvas {
+        svg: Svg::new(940.0, 560.0, &title),
+        x0: 70.0,
+        x1: 860.0,
+        y0: 64.0,
+        y1: 420.0,
+        start: track.start_utc,
+        end: track.end_utc,
+    };
+    draw_heading(&mut c, &title, events);
+    for span in &track.twilight {
+        let class = format!("twilight {}", span.band.name());
+        let style = format!(r##"fill="{}""##, band_fill(span.band));
+        c.band(span.start_utc, span.end_utc, &style, &class);
+    }
+    for e in events {
+        draw_event(&mut c, e, site, sigma_k);
+    }
+    draw_limits(&mut c, site, &track);
+    draw_curves(&mut c, &track);
+    draw_meridian(&mut c, site, &track);
+    draw_axes(&mut c, site);
+    draw_legend(&mut c, site);
+    c.svg.finish()
+}
+
+/// Title and the verdict line under it.
+fn draw_heading(c: &mut NightCanvas, title: &str, events: &[Event]) {
+    let x0 = c.x0;
+    c.svg.text(
         x0,
         28.0,
-        &title,
+        title,
         &format!(r##"font-size="17" font-weight="bold" fill="{INK}""##),
     );
     let sub = match events.iter().find(|e| e.observable) {
@@ -180,239 +224,137 @@ pub fn night_chart_svg(
         None if events.is_empty() => "no transit this night".to_string(),
         None => "transit not observable this night".to_string(),
     };
-    svg.text(x0, 48.0, &sub, &format!(r##"fill="{SLATE}""##));
+    c.svg.text(x0, 48.0, &sub, &format!(r##"fill="{SLATE}""##));
+}
 
-    // Samples every 5 minutes.
-    let n = (((range.end - range.start) * 288.0).ceil() as usize).max(2);
-    let ts: Vec<f64> = (0..=n)
-        .map(|i| range.start + (range.end - range.start) * i as f64 / n as f64)
-        .collect();
-    let earth = EarthTable::new(range.start - 1.0, range.end + 1.0);
-    let icrs = target.icrs_at(range.start);
-    let sun: Vec<f64> = ts
-        .iter()
-        .map(|&t| sun_alt_deg(JdUtc(t), &site.observer))
-        .collect();
-    let tgt: Vec<(f64, f64)> = ts
-        .iter()
-        .map(|&t| target_alt_az_deg(&icrs, JdUtc(t), &site.observer, &earth))
-        .collect();
-    let moon: Vec<f64> = ts
-        .iter()
-        .map(|&t| crate::engine::almanac::moon_alt_deg(t, site))
-        .collect();
-
-    // Twilight shading: runs of equal band.
-    let band = |a: f64| -> usize {
-        if a >= -0.8333 {
-            0
-        } else if a >= -6.0 {
-            1
-        } else if a >= -12.0 {
-            2
-        } else if a >= -18.0 {
-            3
-        } else {
-            4
-        }
-    };
-    let fills = ["#ffffff", "#f4f6fa", "#e6ebf3", "#d7dfec", "#c8d1e3"];
-    let names = ["day", "civil", "nautical", "astronomical", "night"];
-    let mut i = 0;
-    while i < ts.len() {
-        let b = band(sun[i]);
-        let mut j = i;
-        while j + 1 < ts.len() && band(sun[j + 1]) == b {
-            j += 1;
-        }
-        let xa = xs(if i == 0 {
-            ts[0]
-        } else {
-            0.5 * (ts[i - 1] + ts[i])
-        });
-        let xb = xs(if j + 1 < ts.len() {
-            0.5 * (ts[j] + ts[j + 1])
-        } else {
-            ts[j]
-        });
-        svg.rect(
-            xa,
-            y0,
-            xb - xa,
-            y1 - y0,
-            &format!(r##"fill="{}""##, fills[b]),
-            &format!("twilight {}", names[b]),
+/// One event: the planned block dashed where a limit clips it, the block as it can be observed dotted, the
+/// in-transit window with its K-sigma margins hatched, a +-1 sigma band and a line at each contact, and mid.
+fn draw_event(c: &mut NightCanvas, e: &Event, site: &Site, sigma_k: f64) {
+    if e.start_clipped() || e.end_clipped() {
+        c.band(
+            e.full_block_start_utc,
+            e.full_block_end_utc,
+            r##"fill="none" stroke="#b9771e" stroke-width="1" stroke-dasharray="4 3""##,
+            "planned block (clipped by a limit)",
         );
-        i = j + 1;
     }
-
-    // Blocks: the observable block dotted (the planned block dashed where a limit clips it), in-transit window
-    // hatched, sigma bands, contact lines.
-    for e in events {
-        let margin = sigma_k * e.sigma_min / 1440.0;
-        if e.start_clipped() || e.end_clipped() {
-            let (fs, fe) = (
-                e.full_block_start_utc.max(range.start),
-                e.full_block_end_utc.min(range.end),
-            );
-            svg.rect(
-                xs(fs),
-                y0,
-                xs(fe) - xs(fs),
-                y1 - y0,
-                r##"fill="none" stroke="#b9771e" stroke-width="1" stroke-dasharray="4 3""##,
-                "planned block (clipped by a limit)",
-            );
+    c.band(
+        e.block_start_utc,
+        e.block_end_utc,
+        r##"fill="url(#dots)" stroke="#b9771e" stroke-width="1""##,
+        "block",
+    );
+    let margin = sigma_k * e.sigma_min / 1440.0;
+    c.band(
+        e.ingress_utc - margin,
+        e.egress_utc + margin,
+        r##"fill="url(#hatch)""##,
+        "transit",
+    );
+    let s = e.sigma_min / 1440.0;
+    for (t, label) in [(e.ingress_utc, "ingress"), (e.egress_utc, "egress")] {
+        if t < c.start || t > c.end {
+            continue;
         }
-        let (bs, be) = (
-            e.block_start_utc.max(range.start),
-            e.block_end_utc.min(range.end),
+        c.band(
+            t - s,
+            t + s,
+            r##"fill="#6e4a8e" fill-opacity="0.22""##,
+            "sigma",
         );
-        svg.rect(
-            xs(bs),
-            y0,
-            xs(be) - xs(bs),
-            y1 - y0,
-            r##"fill="url(#dots)" stroke="#b9771e" stroke-width="1""##,
-            "block",
+        let (x, y0, y1) = (c.xs(t), c.y0, c.y1);
+        let stroke = format!(r##"stroke="{PLUM}" stroke-width="2""##);
+        c.svg.line(x, y0, x, y1, &stroke, "contact");
+        c.svg.text(
+            x + 3.0,
+            y0 + 14.0,
+            &format!("{label} {}", local_hhmm(t, site.tz)),
+            &format!(r##"fill="{PLUM}" font-size="11""##),
         );
-        let (is, ie) = (
-            (e.ingress_utc - margin).max(range.start),
-            (e.egress_utc + margin).min(range.end),
-        );
-        svg.rect(
-            xs(is),
-            y0,
-            xs(ie) - xs(is),
-            y1 - y0,
-            r##"fill="url(#hatch)""##,
-            "transit",
-        );
-        let s = e.sigma_min / 1440.0;
-        for (t, label) in [(e.ingress_utc, "ingress"), (e.egress_utc, "egress")] {
-            if t < range.start || t > range.end {
-                continue;
-            }
-            svg.rect(
-                xs(t - s),
-                y0,
-                xs(t + s) - xs(t - s),
-                y1 - y0,
-                r##"fill="#6e4a8e" fill-opacity="0.22""##,
-                "sigma",
-            );
-            svg.line(
-                xs(t),
-                y0,
-                xs(t),
-                y1,
-                &format!(r##"stroke="{PLUM}" stroke-width="2""##),
-                "contact",
-            );
-            svg.text(
-                xs(t) + 3.0,
-                y0 + 14.0,
-                &format!("{label} {}", local_hhmm(t, site.tz)),
-                &format!(r##"fill="{PLUM}" font-size="11""##),
-            );
-        }
-        if e.mid_utc >= range.start && e.mid_utc <= range.end {
-            svg.line(
-                xs(e.mid_utc),
-                y0,
-                xs(e.mid_utc),
-                y1,
-                &format!(r##"stroke="{PLUM}" stroke-width="1" stroke-dasharray="2,3""##),
-                "mid",
-            );
-        }
     }
+    if e.mid_utc >= c.start && e.mid_utc <= c.end {
+        let (x, y0, y1) = (c.xs(e.mid_utc), c.y0, c.y1);
+        let stroke = format!(r##"stroke="{PLUM}" stroke-width="1" stroke-dasharray="2,3""##);
+        c.svg.line(x, y0, x, y1, &stroke, "mid");
+    }
+}
 
-    // Limit and horizon along the track.
-    svg.line(
-        x0,
-        ys(site.min_alt_deg),
-        x1,
-        ys(site.min_alt_deg),
+/// The site's altitude limit, its highest trackable altitude, and its horizon profile along the track.
+fn draw_limits(c: &mut NightCanvas, site: &Site, track: &NightTrack) {
+    c.level(
+        site.min_alt_deg,
         &format!(r##"stroke="{INK}" stroke-width="1.2" stroke-dasharray="8,4""##),
         "limit",
     );
     if let Some(max_alt) = site.max_alt_deg {
-        svg.line(
-            x0,
-            ys(max_alt),
-            x1,
-            ys(max_alt),
+        c.level(
+            max_alt,
             &format!(r##"stroke="{INK}" stroke-width="1.2" stroke-dasharray="2,4""##),
             "zenith-limit",
         );
     }
     if !site.horizon.is_empty() {
-        let pts: Vec<(f64, f64)> = ts
+        let pts: Vec<(f64, f64)> = track
+            .samples
             .iter()
-            .zip(&tgt)
-            .map(|(&t, &(_, az))| (xs(t), ys(site.horizon.min_alt_deg(az))))
+            .map(|p| (c.xs(p.utc), c.ys(site.horizon.min_alt_deg(p.target_az_deg))))
             .collect();
-        svg.polyline(
+        c.svg.polyline(
             &pts,
             &format!(r##"stroke="{SLATE}" stroke-width="1.5" stroke-dasharray="1,3""##),
             "horizon",
         );
     }
-    // Moon and target curves, above the horizon only.
-    let moon_pts: Vec<(f64, f64)> = ts
-        .iter()
-        .zip(&moon)
-        .map(|(&t, &a)| (xs(t), ys(a)))
-        .collect();
-    let moon_up: Vec<bool> = moon.iter().map(|&a| a >= 0.0).collect();
-    svg.polyline_where(
-        &moon_pts,
-        &moon_up,
-        &format!(r##"stroke="{SLATE}" stroke-width="1.5" stroke-dasharray="6,3""##),
-        "moon-alt",
-    );
-    let tgt_pts: Vec<(f64, f64)> = ts
-        .iter()
-        .zip(&tgt)
-        .map(|(&t, &(a, _))| (xs(t), ys(a)))
-        .collect();
-    let tgt_up: Vec<bool> = tgt.iter().map(|&(a, _)| a >= 0.0).collect();
-    svg.polyline_where(
-        &tgt_pts,
-        &tgt_up,
-        &format!(r##"stroke="{TEAL}" stroke-width="3""##),
-        "target-alt",
-    );
+}
 
-    // Meridian crossing (upper culmination) from the hour angle.
-    let eo = EarthOrientation::at(JdUtc(range.start));
-    let vel = earth.earth_bary_vel_au_per_day(jd_tdb_from_utc(JdUtc(range.start)).0);
-    let (ra, _) = eo.apparent_radec(&icrs, Some(&vel));
-    let ha = wrap_pi(eo.last_rad(site.observer.lon_rad) - ra);
-    let sidereal_day = 1.0 / crate::astro::frames::GMST_RATE_PER_UT1_DAY;
-    let mut tm = range.start - ha / std::f64::consts::TAU * sidereal_day;
-    while tm < range.start {
-        tm += sidereal_day;
+/// The Moon's and the target's altitude, drawn where above the horizon.
+fn draw_curves(c: &mut NightCanvas, track: &NightTrack) {
+    for (alt, style, class) in [
+        (
+            (|p: &TrackSample| p.moon_alt_deg) as fn(&TrackSample) -> f64,
+            format!(r##"stroke="{SLATE}" stroke-width="1.5" stroke-dasharray="6,3""##),
+            "moon-alt",
+        ),
+        (
+            |p: &TrackSample| p.target_alt_deg,
+            format!(r##"stroke="{TEAL}" stroke-width="3""##),
+            "target-alt",
+        ),
+    ] {
+        let pts: Vec<(f64, f64)> = track
+            .samples
+            .iter()
+            .map(|p| (c.xs(p.utc), c.ys(alt(p))))
+            .collect();
+        let up: Vec<bool> = track.samples.iter().map(|p| alt(p) >= 0.0).collect();
+        c.svg.polyline_where(&pts, &up, &style, class);
     }
-    if tm <= range.end {
-        let (alt, _) = target_alt_az_deg(&icrs, JdUtc(tm), &site.observer, &earth);
-        let (x, y) = (xs(tm), ys(alt));
-        svg.raw(&format!(
-            r##"<path class="meridian" d="M {:.1} {:.1} l -6 -11 l 12 0 z" fill="{INK}"/>"##,
-            x,
-            y - 4.0
-        ));
-        svg.text(
-            x + 8.0,
-            y - 8.0,
-            &format!("meridian {}", local_hhmm(tm, site.tz)),
-            &format!(r##"fill="{INK}" font-size="11""##),
-        );
-    }
+}
 
-    // Axes: altitude (left), airmass (right), local time (bottom).
-    svg.rect(
+/// A marker and the local time at the upper meridian crossing.
+fn draw_meridian(c: &mut NightCanvas, site: &Site, track: &NightTrack) {
+    let Some((tm, alt)) = track.meridian else {
+        return;
+    };
+    let (x, y) = (c.xs(tm), c.ys(alt));
+    c.svg.raw(&format!(
+        r##"<path class="meridian" d="M {:.1} {:.1} l -6 -11 l 12 0 z" fill="{INK}"/>"##,
+        x,
+        y - 4.0
+    ));
+    c.svg.text(
+        x + 8.0,
+        y - 8.0,
+        &format!("meridian {}", local_hhmm(tm, site.tz)),
+        &format!(r##"fill="{INK}" font-size="11""##),
+    );
+}
+
+/// Frame, altitude axis (left), Kasten-Young airmass axis (right), local-time axis (bottom).
+fn draw_axes(c: &mut NightCanvas, site: &Site) {
+    let (x0, x1, y0, y1) = (c.x0, c.x1, c.y0, c.y1);
+    let ink = format!(r##"stroke="{INK}""##);
+    c.svg.rect(
         x0,
         y0,
         x1 - x0,
@@ -421,142 +363,109 @@ pub fn night_chart_svg(
         "frame",
     );
     for a in (0..=90).step_by(15) {
-        let y = ys(a as f64);
-        svg.line(x0 - 5.0, y, x0, y, &format!(r##"stroke="{INK}""##), "tick");
-        svg.text(
-            x0 - 8.0,
-            y + 4.0,
-            &format!("{a}"),
-            &format!(r##"text-anchor="end" fill="{INK}""##),
-        );
+        let y = c.ys(a as f64);
+        c.svg.line(x0 - 5.0, y, x0, y, &ink, "tick");
+        let style = format!(r##"text-anchor="end" fill="{INK}""##);
+        c.svg.text(x0 - 8.0, y + 4.0, &format!("{a}"), &style);
     }
-    svg.raw(&format!(
+    c.svg.raw(&format!(
         r##"<text transform="translate(24 {:.1}) rotate(-90)" text-anchor="middle" fill="{INK}">altitude (deg)</text>"##,
         0.5 * (y0 + y1)
     ));
     for x in [1.0, 1.1, 1.2, 1.5, 2.0, 3.0, 5.0] {
-        let y = ys(alt_deg_for_airmass(x));
-        svg.line(x1, y, x1 + 5.0, y, &format!(r##"stroke="{INK}""##), "tick");
-        svg.text(
+        let y = c.ys(alt_deg_for_airmass(x));
+        c.svg.line(x1, y, x1 + 5.0, y, &ink, "tick");
+        c.svg.text(
             x1 + 8.0,
             y + 4.0,
             &format!("{x:.1}"),
             &format!(r##"fill="{INK}""##),
         );
     }
-    svg.raw(&format!(
+    c.svg.raw(&format!(
         r##"<text transform="translate({:.1} {:.1}) rotate(90)" text-anchor="middle" fill="{INK}">airmass (Kasten-Young)</text>"##,
         x1 + 52.0,
         0.5 * (y0 + y1)
     ));
-    let first_local = datetime_from_jd(range.start).with_timezone(&site.tz);
+    let first_local = datetime_from_jd(c.start).with_timezone(&site.tz);
     let to_next_hour = 60 - i64::from(chrono::Timelike::minute(&first_local));
-    let mut t = range.start + to_next_hour as f64 / 1440.0
+    let mut t = c.start + to_next_hour as f64 / 1440.0
         - f64::from(chrono::Timelike::second(&first_local)) / 86_400.0;
-    while t <= range.end {
-        let x = xs(t);
-        svg.line(x, y1, x, y1 + 5.0, &format!(r##"stroke="{INK}""##), "tick");
-        svg.text(
-            x,
-            y1 + 19.0,
-            &local_hhmm(t, site.tz),
-            &format!(r##"text-anchor="middle" fill="{INK}""##),
-        );
+    let centred = format!(r##"text-anchor="middle" fill="{INK}""##);
+    while t <= c.end {
+        let x = c.xs(t);
+        c.svg.line(x, y1, x, y1 + 5.0, &ink, "tick");
+        c.svg.text(x, y1 + 19.0, &local_hhmm(t, site.tz), &centred);
         t += 1.0 / 24.0;
     }
-    svg.text(
-        0.5 * (x0 + x1),
-        y1 + 38.0,
-        &format!(
-            "local time ({}, {})",
-            zone_abbreviation(range.start, site.tz),
-            site.tz.name()
-        ),
-        &format!(r##"text-anchor="middle" fill="{INK}""##),
+    let label = format!(
+        "local time ({}, {})",
+        zone_abbreviation(c.start, site.tz),
+        site.tz.name()
     );
+    c.svg.text(0.5 * (x0 + x1), y1 + 38.0, &label, &centred);
+}
 
-    // Legend.
+/// The two legend rows: lines (curves and limits), then fills (block, transit, sigma, night, twilight).
+fn draw_legend(c: &mut NightCanvas, site: &Site) {
     let ly = 490.0;
-    let mut lx = x0;
-    let item = |svg: &mut Svg, glyph: &str, label: &str, lx: &mut f64| {
-        svg.raw(
-            &glyph
-                .replace("{x}", &format!("{:.1}", *lx))
-                .replace("{y}", &format!("{ly:.1}")),
-        );
-        svg.text(*lx + 30.0, ly + 4.0, label, &format!(r##"fill="{INK}""##));
-        *lx += 30.0 + 7.0 * label.len() as f64 + 18.0;
-    };
-    item(
-        &mut svg,
-        &format!(r##"<path d="M {{x}} {{y}} h 24" stroke="{TEAL}" stroke-width="3"/>"##),
-        "target altitude",
-        &mut lx,
-    );
-    item(
-        &mut svg,
-        &format!(
-            r##"<path d="M {{x}} {{y}} h 24" stroke="{SLATE}" stroke-width="1.5" stroke-dasharray="6,3"/>"##
+    let mut lx = c.x0;
+    let mut lines: Vec<(String, &str)> = vec![
+        (
+            format!(r##"stroke="{TEAL}" stroke-width="3""##),
+            "target altitude",
         ),
-        "Moon",
-        &mut lx,
-    );
-    item(
-        &mut svg,
-        &format!(
-            r##"<path d="M {{x}} {{y}} h 24" stroke="{INK}" stroke-width="1.2" stroke-dasharray="8,4"/>"##
+        (
+            format!(r##"stroke="{SLATE}" stroke-width="1.5" stroke-dasharray="6,3""##),
+            "Moon",
         ),
-        "altitude limit",
-        &mut lx,
-    );
+        (
+            format!(r##"stroke="{INK}" stroke-width="1.2" stroke-dasharray="8,4""##),
+            "altitude limit",
+        ),
+    ];
     if site.max_alt_deg.is_some() {
-        item(
-            &mut svg,
-            &format!(
-                r##"<path d="M {{x}} {{y}} h 24" stroke="{INK}" stroke-width="1.2" stroke-dasharray="2,4"/>"##
-            ),
+        lines.push((
+            format!(r##"stroke="{INK}" stroke-width="1.2" stroke-dasharray="2,4""##),
             "highest trackable",
-            &mut lx,
-        );
+        ));
     }
     if !site.horizon.is_empty() {
-        item(
-            &mut svg,
-            &format!(
-                r##"<path d="M {{x}} {{y}} h 24" stroke="{SLATE}" stroke-width="1.5" stroke-dasharray="1,3"/>"##
-            ),
+        lines.push((
+            format!(r##"stroke="{SLATE}" stroke-width="1.5" stroke-dasharray="1,3""##),
             "horizon",
-            &mut lx,
-        );
+        ));
+    }
+    for (style, label) in lines {
+        c.svg
+            .raw(&format!(r##"<path d="M {lx:.1} {ly:.1} h 24" {style}/>"##));
+        c.svg
+            .text(lx + 30.0, ly + 4.0, label, &format!(r##"fill="{INK}""##));
+        lx += 30.0 + 7.0 * label.len() as f64 + 18.0;
     }
     let ly2 = ly + 24.0;
-    let mut lx2 = x0;
-    let mut item2 = |svg: &mut Svg, style: &str, label: &str| {
-        svg.raw(&format!(
+    let mut lx2 = c.x0;
+    for (style, label) in [
+        (r##"fill="url(#dots)" stroke="#b9771e""##, "baseline"),
+        (
+            r##"fill="url(#hatch)" stroke="#1f6f78""##,
+            "transit + k sigma",
+        ),
+        (
+            r##"fill="#6e4a8e" fill-opacity="0.22""##,
+            "+-1 sigma at each contact",
+        ),
+        (r##"fill="#c8d1e3""##, "night"),
+        (r##"fill="#e6ebf3""##, "twilight"),
+    ] {
+        c.svg.raw(&format!(
             r##"<rect x="{lx2:.1}" y="{:.1}" width="24" height="12" {style}/>"##,
             ly2 - 8.0
         ));
-        svg.text(lx2 + 30.0, ly2 + 3.0, label, &format!(r##"fill="{INK}""##));
+        c.svg
+            .text(lx2 + 30.0, ly2 + 3.0, label, &format!(r##"fill="{INK}""##));
         lx2 += 30.0 + 7.0 * label.len() as f64 + 18.0;
-    };
-    item2(
-        &mut svg,
-        r##"fill="url(#dots)" stroke="#b9771e""##,
-        "baseline",
-    );
-    item2(
-        &mut svg,
-        r##"fill="url(#hatch)" stroke="#1f6f78""##,
-        "transit + k sigma",
-    );
-    item2(
-        &mut svg,
-        r##"fill="#6e4a8e" fill-opacity="0.22""##,
-        "+-1 sigma at each contact",
-    );
-    item2(&mut svg, r##"fill="#c8d1e3""##, "night");
-    item2(&mut svg, r##"fill="#e6ebf3""##, "twilight");
-    svg.finish()
+    }
 }
 
 /// Draw a verdict glyph in a cell of size `s` at (x, y).
