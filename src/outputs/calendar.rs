@@ -290,34 +290,8 @@ pub fn build_calendar(
                     new_sequence
                 }
             };
-            let mut ev = IcsEvent::new();
-            ev.uid(&uid)
-                .timestamp(opts.stamp)
-                .last_modified(opts.stamp)
-                .sequence(sequence)
-                .starts(start)
-                .ends(end)
-                .summary(&sum)
-                .description(&desc)
-                .location(&format!(
-                    "{} ({:.4}, {:.4}, {:.0} m)",
-                    site.name, site.lat_deg, site.lon_deg, site.elevation_m
-                ))
-                .add_property("GEO", format!("{:.6};{:.6}", site.lat_deg, site.lon_deg))
-                .categories(vec![e.verdict.label()])
-                .status(EventStatus::Confirmed)
-                .add_property(SITE_PROPERTY, &site.name)
-                .add_property(DIGEST_PROPERTY, &digest);
-            if let Some(m) = opts.alarm_minutes {
-                let mut alarm = Alarm::display(
-                    &format!("{} block starts in {m} min", target.name),
-                    Trigger::before_start(chrono::Duration::minutes(i64::from(m))),
-                );
-                // The crate would otherwise add a random UID and the current time to the alarm.
-                alarm.uid(&format!("alarm-{uid}")).timestamp(opts.stamp);
-                ev.alarm(alarm.done());
-            }
-            cal.push(ev.done());
+            let ev = planned_event(e, site, target, (&uid, sequence, &digest), opts);
+            cal.push(ev);
             written.insert(uid);
             summary_out.events += 1;
         }
@@ -327,29 +301,78 @@ pub fn build_calendar(
         if written.contains(&p.uid) || !in_scope || p.start_utc < range.0 || p.start_utc > range.1 {
             continue;
         }
-        let summary_text = if p.cancelled || p.summary.starts_with("Cancelled: ") {
-            p.summary.clone()
-        } else {
-            format!("Cancelled: {}", p.summary)
-        };
-        let mut ev = IcsEvent::new();
-        ev.uid(&p.uid)
-            .timestamp(opts.stamp)
-            .last_modified(opts.stamp)
-            .sequence(if p.cancelled { p.sequence } else { new_sequence.max(p.sequence + 1) })
-            .starts(datetime_from_jd(p.start_utc))
-            .ends(datetime_from_jd(p.end_utc))
-            .summary(&summary_text)
-            .description("This transit is no longer in the plan after an update of the ephemeris or the planning options.")
-            .status(EventStatus::Cancelled)
-            .add_property(SITE_PROPERTY, &p.site)
-            .add_property(DIGEST_PROPERTY, "cancelled");
-        cal.push(ev.done());
+        cal.push(cancelled_event(p, new_sequence, opts));
         if !p.cancelled {
             summary_out.cancelled.push((p.summary.clone(), p.start_utc));
         }
     }
     (refold(&cal.done().to_string()), summary_out)
+}
+
+/// The VEVENT of one planned event: its block as it can be observed, texts, place, verdict, and the optional
+/// alarm; `(uid, sequence, digest)` from the comparison with the previous export.
+fn planned_event(
+    e: &Event,
+    site: &Site,
+    target: &Target,
+    (uid, sequence, digest): (&str, u32, &str),
+    opts: &CalendarOptions,
+) -> CalendarComponent {
+    let mut ev = IcsEvent::new();
+    ev.uid(uid)
+        .timestamp(opts.stamp)
+        .last_modified(opts.stamp)
+        .sequence(sequence)
+        .starts(datetime_from_jd(e.block_start_utc))
+        .ends(datetime_from_jd(e.block_end_utc))
+        .summary(&summary(e, site, target))
+        .description(&description(e, site, target))
+        .location(&format!(
+            "{} ({:.4}, {:.4}, {:.0} m)",
+            site.name, site.lat_deg, site.lon_deg, site.elevation_m
+        ))
+        .add_property("GEO", format!("{:.6};{:.6}", site.lat_deg, site.lon_deg))
+        .categories(vec![e.verdict.label()])
+        .status(EventStatus::Confirmed)
+        .add_property(SITE_PROPERTY, &site.name)
+        .add_property(DIGEST_PROPERTY, digest);
+    if let Some(m) = opts.alarm_minutes {
+        let mut alarm = Alarm::display(
+            &format!("{} block starts in {m} min", target.name),
+            Trigger::before_start(chrono::Duration::minutes(i64::from(m))),
+        );
+        // The crate would otherwise add a random UID and the current time to the alarm.
+        alarm.uid(&format!("alarm-{uid}")).timestamp(opts.stamp);
+        ev.alarm(alarm.done());
+    }
+    ev.done().into()
+}
+
+/// A previous export's event that is no longer planned, written again as cancelled (RFC 5545 3.8.1.11) with a
+/// higher SEQUENCE (unless it was already cancelled).
+fn cancelled_event(
+    p: &PreviousEvent,
+    new_sequence: u32,
+    opts: &CalendarOptions,
+) -> CalendarComponent {
+    let summary_text = if p.cancelled || p.summary.starts_with("Cancelled: ") {
+        p.summary.clone()
+    } else {
+        format!("Cancelled: {}", p.summary)
+    };
+    let mut ev = IcsEvent::new();
+    ev.uid(&p.uid)
+        .timestamp(opts.stamp)
+        .last_modified(opts.stamp)
+        .sequence(if p.cancelled { p.sequence } else { new_sequence.max(p.sequence + 1) })
+        .starts(datetime_from_jd(p.start_utc))
+        .ends(datetime_from_jd(p.end_utc))
+        .summary(&summary_text)
+        .description("This transit is no longer in the plan after an update of the ephemeris or the planning options.")
+        .status(EventStatus::Cancelled)
+        .add_property(SITE_PROPERTY, &p.site)
+        .add_property(DIGEST_PROPERTY, "cancelled");
+    ev.done().into()
 }
 
 /// Unfold the `icalendar` crate's output and fold it again so that every physical line, including the leading

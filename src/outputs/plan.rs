@@ -2,7 +2,7 @@
 
 use super::columns::{csv_header, event_json, push_event_csv_rows, EventRow};
 use super::{hhmm, round};
-use crate::engine::plan::{Plan, PlanOptions, Reason, Verdict};
+use crate::engine::plan::{Event, Plan, PlanOptions, Reason, SitePlan, Verdict};
 use crate::inputs::sites::Site;
 use crate::inputs::targets::Target;
 use comfy_table::{Cell, CellAlignment, ContentArrangement};
@@ -109,9 +109,7 @@ pub fn plan_table(
     opts: &PlanOptions,
     utc: bool,
 ) -> String {
-    let mut out = String::new();
-    let n_events: usize = plan.sites.iter().map(|s| s.events.len()).sum();
-    out.push_str(&format!(
+    let mut out = format!(
         "Transits for the nights of {} to {}\n  margin {} sigma; baselines {}/{} min before/after{}{}\n",
         opts.first_night,
         opts.last_night,
@@ -120,109 +118,9 @@ pub fn plan_table(
         opts.baseline_after_min,
         if opts.min_coverage > 0.0 { format!("; coverage >= {}", opts.min_coverage) } else { String::new() },
         if opts.min_in_transit_min > 0.0 { format!("; in transit >= {} min", opts.min_in_transit_min) } else { String::new() }
-    ));
+    );
     for sp in &plan.sites {
-        let site = &sites[sp.site_index];
-        out.push_str(&format!(
-            "\n{}  {:+.3} {:+.3}  times {}\n  dark when the Sun is below {} deg; target above {:.1} deg\n",
-            site.name,
-            site.lat_deg,
-            site.lon_deg,
-            super::clock_label(sp.nights.iter().map(|n| n.window), site, utc),
-            site.darkness_alt_deg,
-            site.min_alt_deg,
-        ));
-        if !sp.events.is_empty() {
-            let mut table = super::styled_table(
-                vec![
-                    "Night",
-                    "Target",
-                    "Verdict",
-                    "Cover",
-                    "Block",
-                    "Ingr  Mid   Egr",
-                    "+-sig",
-                    "Alt i/m/e",
-                    "Moon",
-                    "Notes",
-                ],
-                ContentArrangement::Dynamic,
-            );
-            table.set_width(120);
-            // The widest table of all: no padding, the column rules separate.
-            for col in table.column_iter_mut() {
-                col.set_padding((0, 0));
-            }
-            let mut previous_night = None;
-            for e in &sp.events {
-                let t = &targets[e.target_index];
-                if previous_night.is_some() && previous_night != Some(e.night_of) {
-                    table.add_row(vec![""; 10]);
-                }
-                let night_cell = if previous_night != Some(e.night_of) {
-                    e.night_of.format("%a %m-%d").to_string()
-                } else {
-                    String::new()
-                };
-                previous_night = Some(e.night_of);
-                let mut notes = Vec::new();
-                if let Some(m) = e.meridian_utc {
-                    notes.push(format!("flip {}", hhmm(m, site, utc)));
-                }
-                let limits: Vec<&str> = e.reasons.iter().map(|r| reason_note(*r)).collect();
-                if !limits.is_empty() {
-                    notes.push(limits.join(", "));
-                }
-                let mut cells = super::event_cells(night_cell, &t.name, e, site, utc);
-                cells.extend([
-                    Cell::new(format!("{:.1}m", e.sigma_min)).set_alignment(CellAlignment::Right),
-                    Cell::new(format!(
-                        "{:.0}/{:.0}/{:.0}",
-                        e.alt_ingress_deg, e.alt_mid_deg, e.alt_egress_deg
-                    )),
-                    Cell::new(format!(
-                        "{:.0}d {:.0}%",
-                        e.moon_sep_deg,
-                        e.moon_illum * 100.0
-                    )),
-                    Cell::new(notes.join(" ")),
-                ]);
-                table.add_row(cells);
-            }
-            let last = table.column_count() - 1;
-            for (i, col) in table.column_iter_mut().enumerate() {
-                if i != last {
-                    col.set_constraint(comfy_table::ColumnConstraint::ContentWidth);
-                }
-            }
-            out.push_str(&table.to_string());
-            out.push('\n');
-        }
-        let no_dark: Vec<chrono::NaiveDate> = sp
-            .nights
-            .iter()
-            .filter(|n| n.dark.is_none())
-            .map(|n| n.night_of)
-            .collect();
-        if !no_dark.is_empty() {
-            out.push_str(&format!(
-                "\n  No dark time at {} (the Sun stays above {} deg) on: {}\n",
-                site.name,
-                site.darkness_alt_deg,
-                date_runs(&no_dark).join(", ")
-            ));
-        }
-        if sp.events.is_empty() {
-            out.push_str(&format!(
-                "\n  Nothing observable at {} in this range{}.\n",
-                site.name,
-                if opts.include_unobservable {
-                    ""
-                } else {
-                    " (--include-unobservable lists every transit with its reasons)"
-                }
-            ));
-        }
+        push_site_section(&mut out, sp, &sites[sp.site_index], targets, opts, utc);
     }
     if !plan.lost.is_empty() {
         out.push_str("\nEphemeris lost (timing sigma over 1/8 of the period; transits not listed, new observations needed):\n");
@@ -233,21 +131,15 @@ pub fn plan_table(
             ));
         }
     }
+    let all = || plan.sites.iter().flat_map(|s| &s.events);
+    let n_events = all().count();
     if n_events > 0 {
         out.push('\n');
         out.push_str(LEGEND);
         out.push('\n');
     }
-    let observable = plan
-        .sites
-        .iter()
-        .flat_map(|s| &s.events)
-        .filter(|e| e.observable)
-        .count();
-    let whole = plan
-        .sites
-        .iter()
-        .flat_map(|s| &s.events)
+    let observable = all().filter(|e| e.observable).count();
+    let whole = all()
         .filter(|e| e.observable && e.verdict == Verdict::Whole)
         .count();
     out.push_str(&format!(
@@ -259,4 +151,131 @@ pub fn plan_table(
         }
     ));
     out
+}
+
+/// One site's part of the table: its heading, the events by night, nights without darkness, or why nothing is
+/// listed.
+fn push_site_section(
+    out: &mut String,
+    sp: &SitePlan,
+    site: &Site,
+    targets: &[Target],
+    opts: &PlanOptions,
+    utc: bool,
+) {
+    out.push_str(&format!(
+        "\n{}  {:+.3} {:+.3}  times {}\n  dark when the Sun is below {} deg; target above {:.1} deg\n",
+        site.name,
+        site.lat_deg,
+        site.lon_deg,
+        super::clock_label(sp.nights.iter().map(|n| n.window), site, utc),
+        site.darkness_alt_deg,
+        site.min_alt_deg,
+    ));
+    if !sp.events.is_empty() {
+        out.push_str(&events_table(&sp.events, site, targets, utc));
+        out.push('\n');
+    }
+    let no_dark: Vec<chrono::NaiveDate> = sp
+        .nights
+        .iter()
+        .filter(|n| n.dark.is_none())
+        .map(|n| n.night_of)
+        .collect();
+    if !no_dark.is_empty() {
+        out.push_str(&format!(
+            "\n  No dark time at {} (the Sun stays above {} deg) on: {}\n",
+            site.name,
+            site.darkness_alt_deg,
+            date_runs(&no_dark).join(", ")
+        ));
+    }
+    if sp.events.is_empty() {
+        out.push_str(&format!(
+            "\n  Nothing observable at {} in this range{}.\n",
+            site.name,
+            if opts.include_unobservable {
+                ""
+            } else {
+                " (--include-unobservable lists every transit with its reasons)"
+            }
+        ));
+    }
+}
+
+/// The events of one site as a table of 120 columns, rows grouped by night.
+fn events_table(events: &[Event], site: &Site, targets: &[Target], utc: bool) -> String {
+    let mut table = super::styled_table(
+        vec![
+            "Night",
+            "Target",
+            "Verdict",
+            "Cover",
+            "Block",
+            "Ingr  Mid   Egr",
+            "+-sig",
+            "Alt i/m/e",
+            "Moon",
+            "Notes",
+        ],
+        ContentArrangement::Dynamic,
+    );
+    table.set_width(120);
+    // The widest table of all: no padding, the column rules separate.
+    for col in table.column_iter_mut() {
+        col.set_padding((0, 0));
+    }
+    let mut previous_night = None;
+    for e in events {
+        if previous_night.is_some() && previous_night != Some(e.night_of) {
+            table.add_row(vec![""; 10]);
+        }
+        let night_cell = if previous_night != Some(e.night_of) {
+            e.night_of.format("%a %m-%d").to_string()
+        } else {
+            String::new()
+        };
+        previous_night = Some(e.night_of);
+        table.add_row(event_row(e, night_cell, site, targets, utc));
+    }
+    let last = table.column_count() - 1;
+    for (i, col) in table.column_iter_mut().enumerate() {
+        if i != last {
+            col.set_constraint(comfy_table::ColumnConstraint::ContentWidth);
+        }
+    }
+    table.to_string()
+}
+
+/// The cells of one event's row.
+fn event_row(
+    e: &Event,
+    night_cell: String,
+    site: &Site,
+    targets: &[Target],
+    utc: bool,
+) -> Vec<Cell> {
+    let mut notes = Vec::new();
+    if let Some(m) = e.meridian_utc {
+        notes.push(format!("flip {}", hhmm(m, site, utc)));
+    }
+    let limits: Vec<&str> = e.reasons.iter().map(|r| reason_note(*r)).collect();
+    if !limits.is_empty() {
+        notes.push(limits.join(", "));
+    }
+    let mut cells = super::event_cells(night_cell, &targets[e.target_index].name, e, site, utc);
+    cells.extend([
+        Cell::new(format!("{:.1}m", e.sigma_min)).set_alignment(CellAlignment::Right),
+        Cell::new(format!(
+            "{:.0}/{:.0}/{:.0}",
+            e.alt_ingress_deg, e.alt_mid_deg, e.alt_egress_deg
+        )),
+        Cell::new(format!(
+            "{:.0}d {:.0}%",
+            e.moon_sep_deg,
+            e.moon_illum * 100.0
+        )),
+        Cell::new(notes.join(" ")),
+    ]);
+    cells
 }

@@ -77,146 +77,159 @@ pub fn refine_text(
 ) -> String {
     let mut out = String::new();
     for r in refinements {
-        let t = &targets[r.target_index];
-        let old = &t.ephemeris;
-        let n_obs = r.rows.len();
-        out.push_str(&format!(
-            "{}: {} observed transit{}\n",
-            t.name,
-            n_obs,
-            if n_obs == 1 { "" } else { "s" },
-        ));
-        out.push_str(&format!(
-            "  {:<18} T0 {:.6} {} +- {:.6} d   P {:.9} +- {:.2e} d\n{}",
-            "catalogue",
-            old.t0,
-            old.system.name(),
-            old.t0_sigma_days,
-            old.period_days,
-            old.period_sigma_days,
-            if old.cov_t0_period_days2 == 0.0 {
-                String::new()
-            } else {
-                format!(
-                    "  {:<18} cov {} d^2\n",
-                    "",
-                    cov_text(old.cov_t0_period_days2)
-                )
-            }
-        ));
-        match &r.with_prior {
-            Some(f) => out.push_str(&fit_line(
-                "with prior",
-                f,
-                r.written == FitKind::WithPrior,
-            )),
-            None => out.push_str("  with prior         not possible: the catalogue gives no errors and the observations hold one epoch\n"),
-        }
-        match &r.observations_only {
-            Some(f) => out.push_str(&fit_line(
-                "observations only",
-                f,
-                r.written == FitKind::ObservationsOnly,
-            )),
-            None => out.push_str(
-                "  observations only  not possible: one epoch cannot fix T0 and P without the catalogue\n",
-            ),
-        }
-        out.push_str(&format!(
-            "  observations against the catalogue: {}{}\n",
-            tension_text(&r.tension),
-            if r.tension.is_serious() {
-                format!(
-                    " - MORE THAN {} SIGMA: the observations and the catalogue disagree; not written without --accept-tension",
-                    crate::engine::refine::TENSION_SIGMAS
-                )
-            } else {
-                String::new()
-            }
-        ));
-        let mut table = super::styled_table(
-            vec![
-                "Epoch",
-                "BJD_TDB",
-                "O-C min",
-                "+-sig",
-                "O-C/sig",
-                "O-cat min",
-                "+-comb",
-                "O-cat/sig",
-                "Flag",
-                "Source",
-            ],
-            ContentArrangement::Disabled,
-        );
-        for row in &r.rows {
-            let mut flags = Vec::new();
-            if row.outlier {
-                flags.push("beyond 3 sigma of the fit");
-            }
-            if row.cat_outlier {
-                flags.push("beyond 3 sigma of the catalogue");
-            }
-            table.add_row(vec![
-                Cell::new(row.epoch).set_alignment(CellAlignment::Right),
-                Cell::new(format!("{:.5}", row.bjd_tdb)),
-                Cell::new(format!("{:+.2}", row.o_minus_c_min)).set_alignment(CellAlignment::Right),
-                Cell::new(format!("{:.2}", row.sigma_min)).set_alignment(CellAlignment::Right),
-                Cell::new(format!("{:+.1}", row.n_sigma)).set_alignment(CellAlignment::Right),
-                Cell::new(format!("{:+.2}", row.o_minus_cat_min))
-                    .set_alignment(CellAlignment::Right),
-                Cell::new(format!("{:.2}", row.cat_sigma_min)).set_alignment(CellAlignment::Right),
-                Cell::new(format!("{:+.1}", row.cat_n_sigma)).set_alignment(CellAlignment::Right),
-                Cell::new(flags.join("; ")),
-                Cell::new(match row.line {
-                    Some(l) if row.source.is_empty() => format!("line {l}"),
-                    Some(l) => format!("{} (line {l})", row.source),
-                    None => row.source.clone(),
-                }),
-            ]);
-        }
-        for line in table.to_string().lines() {
-            out.push_str("  ");
-            out.push_str(line);
-            out.push('\n');
-        }
-        out.push_str("  O-C: against the refined ephemeris; O-cat: against the catalogue prediction, with the combined sigma of both.\n\n");
+        push_refinement(&mut out, r, &targets[r.target_index]);
     }
     if !stale.is_empty() {
-        out.push_str(&format!(
-            "Ephemeris age on {stale_at}: timing 1-sigma at the nearest transit, against the duration T14 (refresh first above {:.0}% of T14)\n",
-            fraction * 100.0
-        ));
-        let mut table = super::styled_table(
-            vec![
-                "Target",
-                "Ephemeris",
-                "Epoch",
-                "sigma min",
-                "T14 h",
-                "sigma/T14",
-                "Status",
-            ],
-            ContentArrangement::Disabled,
-        );
-        for s in stale {
-            let t = &targets[s.target_index];
-            table.add_row(vec![
-                Cell::new(&t.name),
-                Cell::new(if s.refined { "refined" } else { "catalogue" }),
-                Cell::new(s.staleness.epoch).set_alignment(CellAlignment::Right),
-                Cell::new(format!("{:.1}", s.staleness.sigma_min))
-                    .set_alignment(CellAlignment::Right),
-                Cell::new(format!("{:.2}", t.t14_hours)).set_alignment(CellAlignment::Right),
-                Cell::new(format!("{:.0}%", s.staleness.fraction_of_t14 * 100.0))
-                    .set_alignment(CellAlignment::Right),
-                Cell::new(stale_status(&s.staleness, fraction)),
-            ]);
-        }
-        out.push_str(&table.to_string());
-        out.push('\n');
+        push_staleness(&mut out, stale, targets, stale_at, fraction);
     }
     out
+}
+
+/// One refined target: the catalogue, both fits, the tension and the O-C table.
+fn push_refinement(out: &mut String, r: &TargetRefinement, t: &Target) {
+    let old = &t.ephemeris;
+    let n_obs = r.rows.len();
+    out.push_str(&format!(
+        "{}: {} observed transit{}\n",
+        t.name,
+        n_obs,
+        if n_obs == 1 { "" } else { "s" },
+    ));
+    out.push_str(&format!(
+        "  {:<18} T0 {:.6} {} +- {:.6} d   P {:.9} +- {:.2e} d\n{}",
+        "catalogue",
+        old.t0,
+        old.system.name(),
+        old.t0_sigma_days,
+        old.period_days,
+        old.period_sigma_days,
+        if old.cov_t0_period_days2 == 0.0 {
+            String::new()
+        } else {
+            format!(
+                "  {:<18} cov {} d^2\n",
+                "",
+                cov_text(old.cov_t0_period_days2)
+            )
+        }
+    ));
+    match &r.with_prior {
+        Some(f) => out.push_str(&fit_line(
+            "with prior",
+            f,
+            r.written == FitKind::WithPrior,
+        )),
+        None => out.push_str("  with prior         not possible: the catalogue gives no errors and the observations hold one epoch\n"),
+    }
+    match &r.observations_only {
+        Some(f) => out.push_str(&fit_line(
+            "observations only",
+            f,
+            r.written == FitKind::ObservationsOnly,
+        )),
+        None => out.push_str(
+            "  observations only  not possible: one epoch cannot fix T0 and P without the catalogue\n",
+        ),
+    }
+    out.push_str(&format!(
+        "  observations against the catalogue: {}{}\n",
+        tension_text(&r.tension),
+        if r.tension.is_serious() {
+            format!(
+                " - MORE THAN {} SIGMA: the observations and the catalogue disagree; not written without --accept-tension",
+                crate::engine::refine::TENSION_SIGMAS
+            )
+        } else {
+            String::new()
+        }
+    ));
+    let mut table = super::styled_table(
+        vec![
+            "Epoch",
+            "BJD_TDB",
+            "O-C min",
+            "+-sig",
+            "O-C/sig",
+            "O-cat min",
+            "+-comb",
+            "O-cat/sig",
+            "Flag",
+            "Source",
+        ],
+        ContentArrangement::Disabled,
+    );
+    for row in &r.rows {
+        let mut flags = Vec::new();
+        if row.outlier {
+            flags.push("beyond 3 sigma of the fit");
+        }
+        if row.cat_outlier {
+            flags.push("beyond 3 sigma of the catalogue");
+        }
+        table.add_row(vec![
+            Cell::new(row.epoch).set_alignment(CellAlignment::Right),
+            Cell::new(format!("{:.5}", row.bjd_tdb)),
+            Cell::new(format!("{:+.2}", row.o_minus_c_min)).set_alignment(CellAlignment::Right),
+            Cell::new(format!("{:.2}", row.sigma_min)).set_alignment(CellAlignment::Right),
+            Cell::new(format!("{:+.1}", row.n_sigma)).set_alignment(CellAlignment::Right),
+            Cell::new(format!("{:+.2}", row.o_minus_cat_min)).set_alignment(CellAlignment::Right),
+            Cell::new(format!("{:.2}", row.cat_sigma_min)).set_alignment(CellAlignment::Right),
+            Cell::new(format!("{:+.1}", row.cat_n_sigma)).set_alignment(CellAlignment::Right),
+            Cell::new(flags.join("; ")),
+            Cell::new(match row.line {
+                Some(l) if row.source.is_empty() => format!("line {l}"),
+                Some(l) => format!("{} (line {l})", row.source),
+                None => row.source.clone(),
+            }),
+        ]);
+    }
+    for line in table.to_string().lines() {
+        out.push_str("  ");
+        out.push_str(line);
+        out.push('\n');
+    }
+    out.push_str("  O-C: against the refined ephemeris; O-cat: against the catalogue prediction, with the combined sigma of both.\n\n");
+}
+
+/// The staleness table, stalest first.
+fn push_staleness(
+    out: &mut String,
+    stale: &[StaleRow],
+    targets: &[Target],
+    stale_at: &str,
+    fraction: f64,
+) {
+    out.push_str(&format!(
+        "Ephemeris age on {stale_at}: timing 1-sigma at the nearest transit, against the duration T14 (refresh first above {:.0}% of T14)\n",
+        fraction * 100.0
+    ));
+    let mut table = super::styled_table(
+        vec![
+            "Target",
+            "Ephemeris",
+            "Epoch",
+            "sigma min",
+            "T14 h",
+            "sigma/T14",
+            "Status",
+        ],
+        ContentArrangement::Disabled,
+    );
+    for s in stale {
+        let t = &targets[s.target_index];
+        table.add_row(vec![
+            Cell::new(&t.name),
+            Cell::new(if s.refined { "refined" } else { "catalogue" }),
+            Cell::new(s.staleness.epoch).set_alignment(CellAlignment::Right),
+            Cell::new(format!("{:.1}", s.staleness.sigma_min)).set_alignment(CellAlignment::Right),
+            Cell::new(format!("{:.2}", t.t14_hours)).set_alignment(CellAlignment::Right),
+            Cell::new(format!("{:.0}%", s.staleness.fraction_of_t14 * 100.0))
+                .set_alignment(CellAlignment::Right),
+            Cell::new(stale_status(&s.staleness, fraction)),
+        ]);
+    }
+    out.push_str(&table.to_string());
+    out.push('\n');
 }
 
 fn eph_json(e: &Ephemeris) -> serde_json::Value {
