@@ -131,81 +131,101 @@ pub fn tonight_text(
         out.push_str("\nNothing observable tonight.\n");
     }
     for e in &observable {
-        let t = &targets[e.target_index];
-        let sig = format!("+-{:.1} min", e.sigma_min);
-        out.push_str(&format!(
-            "\n{}  epoch {}  {}, {} of the transit{}{}\n",
-            t.name,
-            e.epoch,
-            e.verdict.label(),
-            crate::outputs::percent_floor(e.coverage),
-            t.depth_ppt
-                .map(|d| format!(", depth {d} ppt"))
-                .unwrap_or_default(),
-            now.map(|n| format!("  [{}]", countdown(e, n)))
-                .unwrap_or_default()
-        ));
-        let rows = [
-            (
-                "block start",
-                e.block_start_utc,
-                e.alt_block_start_deg,
-                String::new(),
-            ),
-            ("ingress", e.ingress_utc, e.alt_ingress_deg, sig.clone()),
-            ("mid-transit", e.mid_utc, e.alt_mid_deg, sig.clone()),
-            ("egress", e.egress_utc, e.alt_egress_deg, sig),
-            (
-                "block end",
-                e.block_end_utc,
-                e.alt_block_end_deg,
-                String::new(),
-            ),
-        ];
-        for (label, jd, alt, sigma) in rows {
-            out.push_str(&format!(
-                "  {label:<12} {}  {sigma:<12} alt {:>5.1} deg  {}\n",
-                hhmm(jd, site, utc),
-                alt,
-                airmass_text(alt)
-            ));
-        }
-        let mut extra = vec![format!(
-            "Moon {:.0} deg away ({})",
-            e.moon_sep_deg,
-            if e.moon_alt_mid_deg > 0.0 {
-                "up"
-            } else {
-                "down"
-            }
-        )];
-        if let Some(m) = e.meridian_utc {
-            extra.push(format!(
-                "meridian crossing {} (equatorial mounts flip)",
-                hhmm(m, site, utc)
-            ));
-        }
-        if e.verdict != Verdict::Whole {
-            extra.push(format!(
-                "usable baseline {:.0}/{:.0} min",
-                e.baseline_before_min, e.baseline_after_min
-            ));
-        }
-        if !e.reasons.is_empty() {
-            extra.push(format!(
-                "cut by: {}",
-                e.reasons
-                    .iter()
-                    .map(|r| r.label())
-                    .collect::<Vec<_>>()
-                    .join(", ")
-            ));
-        }
-        out.push_str(&format!("  {}\n", extra.join("; ")));
+        push_event(&mut out, e, &targets[e.target_index], site, now, utc);
     }
     // Named targets: say why nothing is shown.
+    push_explanations(&mut out, asked, events, absences, targets, site, utc);
+    out
+}
+
+/// One observable event: heading with verdict, coverage and countdown, the five instants with altitude and
+/// airmass, then the Moon, the meridian crossing, baselines and limits.
+fn push_event(out: &mut String, e: &Event, t: &Target, site: &Site, now: Option<f64>, utc: bool) {
+    let sig = format!("+-{:.1} min", e.sigma_min);
+    out.push_str(&format!(
+        "\n{}  epoch {}  {}, {} of the transit{}{}\n",
+        t.name,
+        e.epoch,
+        e.verdict.label(),
+        crate::outputs::percent_floor(e.coverage),
+        t.depth_ppt
+            .map(|d| format!(", depth {d} ppt"))
+            .unwrap_or_default(),
+        now.map(|n| format!("  [{}]", countdown(e, n)))
+            .unwrap_or_default()
+    ));
+    let rows = [
+        (
+            "block start",
+            e.block_start_utc,
+            e.alt_block_start_deg,
+            String::new(),
+        ),
+        ("ingress", e.ingress_utc, e.alt_ingress_deg, sig.clone()),
+        ("mid-transit", e.mid_utc, e.alt_mid_deg, sig.clone()),
+        ("egress", e.egress_utc, e.alt_egress_deg, sig),
+        (
+            "block end",
+            e.block_end_utc,
+            e.alt_block_end_deg,
+            String::new(),
+        ),
+    ];
+    for (label, jd, alt, sigma) in rows {
+        out.push_str(&format!(
+            "  {label:<12} {}  {sigma:<12} alt {:>5.1} deg  {}\n",
+            hhmm(jd, site, utc),
+            alt,
+            airmass_text(alt)
+        ));
+    }
+    let mut extra = vec![format!(
+        "Moon {:.0} deg away ({})",
+        e.moon_sep_deg,
+        if e.moon_alt_mid_deg > 0.0 {
+            "up"
+        } else {
+            "down"
+        }
+    )];
+    if let Some(m) = e.meridian_utc {
+        extra.push(format!(
+            "meridian crossing {} (equatorial mounts flip)",
+            hhmm(m, site, utc)
+        ));
+    }
+    if e.verdict != Verdict::Whole {
+        extra.push(format!(
+            "usable baseline {:.0}/{:.0} min",
+            e.baseline_before_min, e.baseline_after_min
+        ));
+    }
+    if !e.reasons.is_empty() {
+        extra.push(format!(
+            "cut by: {}",
+            e.reasons
+                .iter()
+                .map(|r| r.label())
+                .collect::<Vec<_>>()
+                .join(", ")
+        ));
+    }
+    out.push_str(&format!("  {}\n", extra.join("; ")));
+}
+
+/// For each target asked for by name with nothing observable: why (never high enough, the limits that block
+/// its transit, or no transit this night and when the next one is).
+fn push_explanations(
+    out: &mut String,
+    asked: &[usize],
+    events: &[Event],
+    absences: &[Absence],
+    targets: &[Target],
+    site: &Site,
+    utc: bool,
+) {
     for &ti in asked {
-        if observable.iter().any(|e| e.target_index == ti) {
+        if events.iter().any(|e| e.observable && e.target_index == ti) {
             continue;
         }
         let name = &targets[ti].name;
@@ -246,7 +266,6 @@ pub fn tonight_text(
             }
         }
     }
-    out
 }
 
 /// JSON for one night: `{"site", "night": {...}, "events": [...], "absent": [...]}`.
