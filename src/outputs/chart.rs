@@ -557,28 +557,7 @@ pub fn season_svg_linked(
         &title,
         &format!(r##"font-size="16" font-weight="bold" fill="{INK}""##),
     );
-    // Moon strip: bar height = illuminated fraction.
-    svg.text(12.0, 74.0, "Moon lit", &format!(r##"fill="{SLATE}""##));
-    for (i, (d, f)) in moon_illum.iter().enumerate() {
-        let x = label_w + i as f64 * cell;
-        svg.rect(
-            x + 2.0,
-            80.0 - 24.0 * f,
-            cell - 4.0,
-            24.0 * f,
-            &format!(r##"fill="{SLATE}" fill-opacity="0.55""##),
-            "moon",
-        );
-        if i % 7 == 0 {
-            svg.text(
-                x,
-                46.0,
-                &d.format("%m-%d").to_string(),
-                &format!(r##"fill="{INK}" font-size="11""##),
-            );
-            svg.line(x, 50.0, x, 54.0, &format!(r##"stroke="{INK}""##), "tick");
-        }
-    }
+    draw_moon_strip(&mut svg, moon_illum, label_w, cell);
     let mut y = top;
     for (sp, rows) in plan.sites.iter().zip(&rows_per_site) {
         let site = &sites[sp.site_index];
@@ -607,46 +586,107 @@ pub fn season_svg_linked(
                 &targets[ti].name,
                 &format!(r##"fill="{INK}" font-size="11""##),
             );
-            for (ci, d) in nights.iter().enumerate() {
-                let evs: Vec<&Event> = sp
-                    .events
-                    .iter()
-                    .filter(|e| e.target_index == ti && e.night_of == *d)
-                    .collect();
-                let m = evs.len();
-                for (j, e) in evs.iter().enumerate() {
-                    let s = (cell - 3.0) / m as f64;
-                    let x = label_w + ci as f64 * cell + 1.5 + j as f64 * s;
-                    let tip = format!(
-                        "{} epoch {} on {}: {} {}",
-                        targets[ti].name,
-                        e.epoch,
-                        d,
-                        e.verdict.label(),
-                        crate::outputs::percent_floor(e.coverage)
-                    );
-                    if let Some(link) = link {
-                        svg.raw(&format!(r##"<a href="{}">"##, esc(&link(e))));
-                    }
-                    glyph(
-                        &mut svg,
-                        e.verdict,
-                        x,
-                        ry + 1.5 + (cell - 3.0 - s) / 2.0,
-                        s,
-                        &tip,
-                    );
-                    if link.is_some() {
-                        svg.raw("</a>");
-                    }
-                }
-            }
+            let row = GridRow {
+                ti,
+                y: ry,
+                label_w,
+                cell,
+            };
+            draw_grid_row(&mut svg, &row, sp, targets, &nights, link);
         }
         y += rows.len() as f64 * cell + cell;
     }
-    // Legend.
+    draw_verdict_legend(&mut svg, y + 16.0);
+    svg.finish()
+}
+
+/// The Moon strip above the grid: one bar per night, its height the illuminated fraction.
+fn draw_moon_strip(
+    svg: &mut Svg,
+    moon_illum: &[(chrono::NaiveDate, f64)],
+    label_w: f64,
+    cell: f64,
+) {
+    svg.text(12.0, 74.0, "Moon lit", &format!(r##"fill="{SLATE}""##));
+    for (i, (d, f)) in moon_illum.iter().enumerate() {
+        let x = label_w + i as f64 * cell;
+        svg.rect(
+            x + 2.0,
+            80.0 - 24.0 * f,
+            cell - 4.0,
+            24.0 * f,
+            &format!(r##"fill="{SLATE}" fill-opacity="0.55""##),
+            "moon",
+        );
+        if i % 7 == 0 {
+            svg.text(
+                x,
+                46.0,
+                &d.format("%m-%d").to_string(),
+                &format!(r##"fill="{INK}" font-size="11""##),
+            );
+            svg.line(x, 50.0, x, 54.0, &format!(r##"stroke="{INK}""##), "tick");
+        }
+    }
+}
+
+/// One row of the season grid: a target at a site, its place on the page.
+struct GridRow {
+    ti: usize,
+    y: f64,
+    label_w: f64,
+    cell: f64,
+}
+
+/// The glyphs of one grid row, one per event (several events in a night share the cell), each linked to its
+/// night chart when `link` is given.
+fn draw_grid_row(
+    svg: &mut Svg,
+    row: &GridRow,
+    sp: &crate::engine::plan::SitePlan,
+    targets: &[Target],
+    nights: &[chrono::NaiveDate],
+    link: Option<&dyn Fn(&Event) -> String>,
+) {
+    for (ci, d) in nights.iter().enumerate() {
+        let evs: Vec<&Event> = sp
+            .events
+            .iter()
+            .filter(|e| e.target_index == row.ti && e.night_of == *d)
+            .collect();
+        let m = evs.len();
+        for (j, e) in evs.iter().enumerate() {
+            let s = (row.cell - 3.0) / m as f64;
+            let x = row.label_w + ci as f64 * row.cell + 1.5 + j as f64 * s;
+            let tip = format!(
+                "{} epoch {} on {}: {} {}",
+                targets[row.ti].name,
+                e.epoch,
+                d,
+                e.verdict.label(),
+                crate::outputs::percent_floor(e.coverage)
+            );
+            if let Some(link) = link {
+                svg.raw(&format!(r##"<a href="{}">"##, esc(&link(e))));
+            }
+            glyph(
+                svg,
+                e.verdict,
+                x,
+                row.y + 1.5 + (row.cell - 3.0 - s) / 2.0,
+                s,
+                &tip,
+            );
+            if link.is_some() {
+                svg.raw("</a>");
+            }
+        }
+    }
+}
+
+/// The legend of the verdict glyphs, at height `ly`.
+fn draw_verdict_legend(svg: &mut Svg, ly: f64) {
     let mut lx = 12.0;
-    let ly = y + 16.0;
     for v in [
         Verdict::Whole,
         Verdict::WholeShortBaseline,
@@ -665,7 +705,6 @@ pub fn season_svg_linked(
         );
         lx += 16.0 + 7.0 * v.label().len() as f64 + 16.0;
     }
-    svg.finish()
 }
 
 /// File name of an event's night chart inside the HTML bundle: `<site>-<target>-<night>.svg`, slugged.
