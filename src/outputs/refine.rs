@@ -143,6 +143,11 @@ fn push_refinement(out: &mut String, r: &TargetRefinement, t: &Target) {
             String::new()
         }
     ));
+    push_oc_table(out, r);
+}
+
+/// The O-C table of one refined target: against the refined ephemeris and against the catalogue.
+fn push_oc_table(out: &mut String, r: &TargetRefinement) {
     let mut table = super::styled_table(
         vec![
             "Epoch",
