@@ -544,47 +544,26 @@ fn usable_intervals_on_track(
 }
 
 /// Evaluate one transit at one site. Pure: everything it needs is passed in.
-#[allow(clippy::too_many_arguments)]
-fn evaluate(
+/// One target at one site, with the options and sky tables of the run: what judging its transits needs.
+struct Pairing<'a> {
     target_index: usize,
-    target: &Target,
+    target: &'a Target,
     site_index: usize,
-    site: &Site,
+    site: &'a Site,
+    opts: &'a PlanOptions,
+    tables: &'a SkyTables,
+}
+
+/// One predicted transit: epoch, mid-transit at the site (UTC JD) and its timing sigma (days).
+#[derive(Clone, Copy)]
+struct Predicted {
     epoch: i64,
     mid_utc: f64,
     sigma_days: f64,
-    night: &Night,
-    opts: &PlanOptions,
-    tables: &SkyTables,
-) -> Option<Event> {
-    let half = target.t14_hours / 48.0;
-    let ingress = mid_utc - half;
-    let egress = mid_utc + half;
-    let margin = opts.sigma_k * sigma_days;
-    let block = Interval {
-        start: ingress - margin - opts.baseline_before_min / 1440.0,
-        end: egress + margin + opts.baseline_after_min / 1440.0,
-    };
-    let track = Track::new(&target.icrs_at(mid_utc), mid_utc, site, tables);
-    if !opts.include_unobservable {
-        // Quick rejection: no in-transit dark time with the target above the altitude limit means no event to
-        // list, whatever the other constraints say.
-        let transit_dark = night.dark.and_then(|d| {
-            d.intersect(&Interval {
-                start: ingress,
-                end: egress,
-            })
-        });
-        match transit_dark {
-            Some(w) if !alt_intervals(&track, site.min_alt_deg, &w).is_empty() => {}
-            _ => return None,
-        }
-    }
-    let (usable, mut reasons) = usable_intervals_on_track(&track, site, night, &block, tables);
-    let upper = track.culminations(block.start, block.end).0;
-    let lost = sigma_days > LOST_SIGMA_FRACTION_OF_PERIOD * target.ephemeris.period_days;
+}
 
-    // The usable run overlapping the transit most (ties: the earlier).
+/// The usable run overlapping [ingress, egress] most (ties: the earlier), with the coverage it gives.
+fn best_run(usable: &[Interval], ingress: f64, egress: f64) -> (f64, Option<Interval>) {
     let transit = Interval {
         start: ingress,
         end: egress,
@@ -602,50 +581,111 @@ fn evaluate(
             Some(a) if a.0 >= cur.0 => Some(a),
             _ => Some(cur),
         });
-    let (coverage, run) = match best {
+    match best {
         Some((o, run)) => ((o / (egress - ingress)).clamp(0.0, 1.0), Some(run)),
         None => (0.0, None),
+    }
+}
+
+/// The verdict of a usable run and its baselines before and after, minutes: a contact is seen when the run
+/// holds it with its timing margin on both sides.
+fn judge_run(
+    run: Option<Interval>,
+    ingress: f64,
+    egress: f64,
+    margin: f64,
+    opts: &PlanOptions,
+) -> (Verdict, f64, f64) {
+    let Some(run) = run else {
+        return (Verdict::NotObservable, 0.0, 0.0);
     };
-    let (verdict, before_min, after_min) = match run {
-        None => (Verdict::NotObservable, 0.0, 0.0),
-        Some(run) => {
-            let lo = ingress - margin;
-            let hi = egress + margin;
-            // A contact is seen when the run holds it with its timing margin on both sides.
-            let ingress_seen =
-                run.start <= lo + EDGE_SLACK_DAYS && run.end >= ingress + margin - EDGE_SLACK_DAYS;
-            let egress_seen =
-                run.end >= hi - EDGE_SLACK_DAYS && run.start <= egress - margin + EDGE_SLACK_DAYS;
-            let before = ((lo - run.start) * 1440.0).max(0.0);
-            let after = ((run.end - hi) * 1440.0).max(0.0);
-            let full_base = before >= opts.baseline_before_min - 1.0 / 60.0
-                && after >= opts.baseline_after_min - 1.0 / 60.0;
-            let v = match (ingress_seen, egress_seen) {
-                (true, true) if full_base => Verdict::Whole,
-                (true, true) => Verdict::WholeShortBaseline,
-                (true, false) => Verdict::IngressOnly,
-                (false, true) => Verdict::EgressOnly,
-                (false, false) => Verdict::MiddleOnly,
-            };
-            (v, before, after)
-        }
+    let lo = ingress - margin;
+    let hi = egress + margin;
+    let ingress_seen =
+        run.start <= lo + EDGE_SLACK_DAYS && run.end >= ingress + margin - EDGE_SLACK_DAYS;
+    let egress_seen =
+        run.end >= hi - EDGE_SLACK_DAYS && run.start <= egress - margin + EDGE_SLACK_DAYS;
+    let before = ((lo - run.start) * 1440.0).max(0.0);
+    let after = ((run.end - hi) * 1440.0).max(0.0);
+    let full_base = before >= opts.baseline_before_min - 1.0 / 60.0
+        && after >= opts.baseline_after_min - 1.0 / 60.0;
+    let v = match (ingress_seen, egress_seen) {
+        (true, true) if full_base => Verdict::Whole,
+        (true, true) => Verdict::WholeShortBaseline,
+        (true, false) => Verdict::IngressOnly,
+        (false, true) => Verdict::EgressOnly,
+        (false, false) => Verdict::MiddleOnly,
     };
+    (v, before, after)
+}
+
+/// Whether a judged event meets the run's criteria; adds the reasons when it does not.
+fn meets_criteria(
+    p: &Pairing<'_>,
+    verdict: Verdict,
+    coverage: f64,
+    lost: bool,
+    reasons: &mut Vec<Reason>,
+) -> bool {
     if lost {
         reasons.push(Reason::EphemerisLost);
     }
     let mut observable = verdict != Verdict::NotObservable && !lost;
-    if observable && coverage < opts.min_coverage {
+    if observable && coverage < p.opts.min_coverage {
         reasons.push(Reason::CoverageBelowMinimum);
         observable = false;
     }
-    let in_transit_min = coverage * target.t14_hours * 60.0;
-    let needed_min = opts.min_in_transit_min.min(target.t14_hours * 60.0);
+    let in_transit_min = coverage * p.target.t14_hours * 60.0;
+    let needed_min = p.opts.min_in_transit_min.min(p.target.t14_hours * 60.0);
     if observable && in_transit_min < needed_min - EDGE_SLACK_DAYS * 1440.0 {
         reasons.push(Reason::InTransitBelowMinimum);
         observable = false;
     }
     reasons.sort();
     reasons.dedup();
+    observable
+}
+
+/// Quick rejection when unobservable events are not listed: no in-transit dark time with the target above the
+/// altitude limit means no event to list, whatever the other constraints say.
+fn cannot_be_listed(
+    p: &Pairing<'_>,
+    track: &Track,
+    night: &Night,
+    ingress: f64,
+    egress: f64,
+) -> bool {
+    if p.opts.include_unobservable {
+        return false;
+    }
+    let transit_dark = night.dark.and_then(|d| {
+        d.intersect(&Interval {
+            start: ingress,
+            end: egress,
+        })
+    });
+    !matches!(transit_dark, Some(w) if !alt_intervals(track, p.site.min_alt_deg, &w).is_empty())
+}
+
+/// Judge one transit at one site. Pure: everything it needs is passed in.
+fn evaluate(p: &Pairing<'_>, t: Predicted, night: &Night) -> Option<Event> {
+    let (site, opts, tables) = (p.site, p.opts, p.tables);
+    let half = p.target.half_duration_days();
+    let (ingress, egress) = (t.mid_utc - half, t.mid_utc + half);
+    let margin = opts.sigma_k * t.sigma_days;
+    let block = Interval {
+        start: ingress - margin - opts.baseline_before_min / 1440.0,
+        end: egress + margin + opts.baseline_after_min / 1440.0,
+    };
+    let track = Track::new(&p.target.icrs_at(t.mid_utc), t.mid_utc, site, tables);
+    if cannot_be_listed(p, &track, night, ingress, egress) {
+        return None;
+    }
+    let (usable, mut reasons) = usable_intervals_on_track(&track, site, night, &block, tables);
+    let lost = t.sigma_days > LOST_SIGMA_FRACTION_OF_PERIOD * p.target.ephemeris.period_days;
+    let (coverage, run) = best_run(&usable, ingress, egress);
+    let (verdict, before_min, after_min) = judge_run(run, ingress, egress, margin, opts);
+    let observable = meets_criteria(p, verdict, coverage, lost, &mut reasons);
     if !observable && !opts.include_unobservable {
         // Not listed: skip the geometry.
         return None;
@@ -655,9 +695,9 @@ fn evaluate(
     // that no printed start or end (HH:MM, calendar seconds, countdown) lies outside what is possible.
     let acted = inward_to_minutes(run.unwrap_or(block));
     let alt_in = track.alt_deg(ingress);
-    let (alt_mid, az_mid) = track.alt_az_deg(mid_utc);
+    let (alt_mid, az_mid) = track.alt_az_deg(t.mid_utc);
     let alt_eg = track.alt_deg(egress);
-    let (sun_alt, moon_topo, moon_alt, moon_illum) = tables.sun_moon(mid_utc, &site.observer);
+    let (sun_alt, moon_topo, moon_alt, moon_illum) = tables.sun_moon(t.mid_utc, &site.observer);
     let moon_sep = separation_rad(
         track.ra_rad,
         track.dec_rad,
@@ -666,13 +706,13 @@ fn evaluate(
     )
     .to_degrees();
     Some(Event {
-        target_index,
-        site_index,
-        epoch,
+        target_index: p.target_index,
+        site_index: p.site_index,
+        epoch: t.epoch,
         verdict,
         observable,
         coverage,
-        mid_utc,
+        mid_utc: t.mid_utc,
         ingress_utc: ingress,
         egress_utc: egress,
         block_start_utc: acted.start,
@@ -680,7 +720,7 @@ fn evaluate(
         full_block_start_utc: block.start,
         full_block_end_utc: block.end,
         usable: run,
-        sigma_min: sigma_days * 1440.0,
+        sigma_min: t.sigma_days * 1440.0,
         baseline_before_min: before_min,
         baseline_after_min: after_min,
         night_of: night.night_of,
@@ -698,7 +738,11 @@ fn evaluate(
         moon_alt_mid_deg: moon_alt,
         moon_sep_deg: moon_sep,
         moon_illum,
-        meridian_utc: upper.first().copied(),
+        meridian_utc: track
+            .culminations(block.start, block.end)
+            .0
+            .first()
+            .copied(),
         reasons,
     })
 }
@@ -815,17 +859,15 @@ impl<'a> Planner<'a> {
             .par_iter()
             .enumerate()
             .map(|(ti, target)| {
-                events_of_target(
-                    ti,
+                let pairing = Pairing {
+                    target_index: ti,
                     target,
-                    &self.mids[ti],
-                    si,
+                    site_index: si,
                     site,
-                    &nights,
-                    &range,
-                    self.opts,
+                    opts: self.opts,
                     tables,
-                )
+                };
+                events_of_target(&pairing, &self.mids[ti], &nights, &range)
             })
             .collect();
         let total: usize = per_target.iter().map(|(e, _)| e.len()).sum();
@@ -858,21 +900,16 @@ impl<'a> Planner<'a> {
 /// The events of one target at one site over the nights; and the timing sigma (minutes) if its ephemeris is
 /// lost in the range. Transits whose block misses the night's dark time are dropped before any geometry unless
 /// the options ask for unobservable events.
-#[allow(clippy::too_many_arguments)]
 fn events_of_target(
-    ti: usize,
-    target: &Target,
+    p: &Pairing<'_>,
     mids: &[(i64, f64)],
-    si: usize,
-    site: &Site,
     nights: &[Night],
     range: &Interval,
-    opts: &PlanOptions,
-    tables: &SkyTables,
 ) -> (Vec<Event>, Option<f64>) {
+    let (target, site, opts) = (p.target, p.site, p.opts);
     let icrs = target.icrs_at(range.start);
     let eph = &target.ephemeris;
-    let half = target.t14_hours / 48.0;
+    let half = target.half_duration_days();
     let mut events = Vec::new();
     let mut lost_sigma = None;
     let first = mids.partition_point(|&(_, t)| t < range.start - 0.001);
@@ -923,7 +960,12 @@ fn events_of_target(
                 continue;
             }
         }
-        if let Some(ev) = evaluate(ti, target, si, site, n, mid, sigma, night, opts, tables) {
+        let predicted = Predicted {
+            epoch: n,
+            mid_utc: mid,
+            sigma_days: sigma,
+        };
+        if let Some(ev) = evaluate(p, predicted, night) {
             events.push(ev);
         }
     }
@@ -1018,7 +1060,7 @@ pub fn brute_force_site(
             else {
                 continue;
             };
-            let half = t.t14_hours / 48.0;
+            let half = t.half_duration_days();
             let margin = opts.sigma_k * eph.sigma_days(n);
             let start = mid - half - margin - opts.baseline_before_min / 1440.0;
             let end = mid + half + margin + opts.baseline_after_min / 1440.0;

@@ -41,6 +41,11 @@ pub struct Target {
 }
 
 impl Target {
+    /// Half the total duration T14, days: the time from ingress (or egress) to mid-transit.
+    pub fn half_duration_days(&self) -> f64 {
+        self.t14_hours / 48.0
+    }
+
     /// ICRS unit vector of the target at `jd` (any time scale: a day changes nothing), with its proper motion
     /// applied from the coordinate epoch ([`crate::astro::frames::apply_proper_motion`]).
     pub fn icrs_at(&self, jd: f64) -> crate::astro::frames::Vec3 {
