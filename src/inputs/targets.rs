@@ -66,7 +66,18 @@ impl Target {
     }
 }
 
-/// One column dipwatch reads: its canonical name, whether it is required, and what it holds.
+/// The accepted range of a numeric column and how it is described in messages.
+pub struct NumberRule {
+    /// Smallest accepted value.
+    pub lo: f64,
+    /// Largest accepted value.
+    pub hi: f64,
+    /// What is expected, for messages (`found X, expected ...`).
+    pub expected: &'static str,
+}
+
+/// One column dipwatch reads: its canonical name, whether it is required, what it holds, and for a number its
+/// accepted range. Validation of every numeric column is driven by this table.
 pub struct ColumnSpec {
     /// Canonical header name.
     pub name: &'static str,
@@ -74,6 +85,8 @@ pub struct ColumnSpec {
     pub required: bool,
     /// What the column holds (used in messages and the README).
     pub meaning: &'static str,
+    /// The accepted range, for numeric columns.
+    pub number: Option<NumberRule>,
 }
 
 /// Every column dipwatch reads from a targets file.
@@ -82,86 +95,151 @@ pub const COLUMNS: &[ColumnSpec] = &[
         name: "name",
         required: true,
         meaning: "target name, unique",
+        number: None,
     },
     ColumnSpec {
         name: "ra",
         required: true,
         meaning: "right ascension, ICRS: hh:mm:ss.s or decimal degrees",
+        number: None,
     },
     ColumnSpec {
         name: "dec",
         required: true,
         meaning: "declination, ICRS: +dd:mm:ss.s or decimal degrees",
+        number: None,
     },
     ColumnSpec {
         name: "t0",
         required: true,
         meaning: "reference mid-transit time, full Julian Date in time_system",
+        number: Some(NumberRule {
+            lo: MIN_FULL_JD,
+            hi: MAX_FULL_JD,
+            expected: "a full Julian Date between 2400000 and 2600000 (reduced dates such as BJD-2457000 need the offset added)",
+        }),
     },
     ColumnSpec {
         name: "t0_sigma_days",
         required: true,
         meaning: "1-sigma error of t0, days",
+        number: Some(NumberRule {
+            lo: 0.0,
+            hi: 1e3,
+            expected: "a 1-sigma error in days, >= 0",
+        }),
     },
     ColumnSpec {
         name: "period_days",
         required: true,
         meaning: "orbital period, days",
+        number: Some(NumberRule {
+            lo: 1e-6,
+            hi: 1e6,
+            expected: "a period in days, > 0",
+        }),
     },
     ColumnSpec {
         name: "period_sigma_days",
         required: true,
         meaning: "1-sigma error of the period, days",
+        number: Some(NumberRule {
+            lo: 0.0,
+            hi: 1e3,
+            expected: "a 1-sigma error in days, >= 0",
+        }),
     },
     ColumnSpec {
         name: "t0_period_cov_days2",
         required: false,
         meaning: "covariance of t0 and period, days^2 (default 0)",
+        number: Some(NumberRule {
+            lo: -1e6,
+            hi: 1e6,
+            expected: "a covariance in days^2",
+        }),
     },
     ColumnSpec {
         name: "t14_hours",
         required: true,
         meaning: "total transit duration, first to fourth contact, hours",
+        number: Some(NumberRule {
+            lo: 1e-6,
+            hi: 1e6,
+            expected: "a duration in hours, > 0",
+        }),
     },
     ColumnSpec {
         name: "depth_ppt",
         required: false,
         meaning: "transit depth, parts per thousand",
+        number: Some(NumberRule {
+            lo: 0.0,
+            hi: 1000.0,
+            expected: "a depth in parts per thousand within 0..1000",
+        }),
     },
     ColumnSpec {
         name: "time_system",
         required: false,
         meaning: "BJD_TDB (default), HJD_UTC or JD_UTC",
+        number: None,
     },
     ColumnSpec {
         name: "mag",
         required: false,
         meaning: "magnitude",
+        number: Some(NumberRule {
+            lo: -30.0,
+            hi: 40.0,
+            expected: "a magnitude within -30..40",
+        }),
     },
     ColumnSpec {
         name: "priority",
         required: false,
         meaning: "priority, larger is more important (default 1)",
+        number: Some(NumberRule {
+            lo: 0.0,
+            hi: 1e9,
+            expected: "a priority, a number >= 0",
+        }),
     },
     ColumnSpec {
         name: "notes",
         required: false,
         meaning: "free text",
+        number: None,
     },
     ColumnSpec {
         name: "pm_ra_mas_per_yr",
         required: false,
         meaning: "proper motion in RA times cos(dec), mas/yr (default 0)",
+        number: Some(NumberRule {
+            lo: -2e4,
+            hi: 2e4,
+            expected: "a proper motion within +-20000 mas/yr",
+        }),
     },
     ColumnSpec {
         name: "pm_dec_mas_per_yr",
         required: false,
         meaning: "proper motion in Dec, mas/yr (default 0)",
+        number: Some(NumberRule {
+            lo: -2e4,
+            hi: 2e4,
+            expected: "a proper motion within +-20000 mas/yr",
+        }),
     },
     ColumnSpec {
         name: "coord_epoch",
         required: false,
         meaning: "epoch of ra/dec, Julian year (default 2000.0)",
+        number: Some(NumberRule {
+            lo: 1900.0,
+            hi: 2100.0,
+            expected: "a Julian year within 1900..2100",
+        }),
     },
 ];
 
@@ -262,24 +340,23 @@ pub(crate) fn detect_delimiter(text: &str) -> u8 {
     }
 }
 
-/// Parse and validate a targets file.
-///
-/// Given: `file` label for messages, `text` the file's content, `map` column renames. Returns targets in
-/// file order, or every problem found (up to the cap).
-pub fn parse_targets(file: &str, text: &str, map: &ColumnMap) -> Result<Vec<Target>, InputError> {
-    let CsvInput {
-        mut reader,
-        headers: lowered,
-        header_line,
-    } = open_csv(
-        file,
-        text,
-        "a header line and one row per target (see targets.example.csv)",
-    )?;
-    let mut index = HashMap::new();
-    // Second ("minus") columns of two-sided errors mapped as `ours=PLUS|MINUS`.
-    let mut minus_index: HashMap<&str, usize> = HashMap::new();
-    let mut problems = Problems::default();
+/// Where each of our columns is in the file: the column index, and for a two-sided error the minus column.
+struct ColumnIndex {
+    index: HashMap<&'static str, usize>,
+    minus: HashMap<&'static str, usize>,
+}
+
+/// Find every column of [`COLUMNS`] in the header (through the mapping), reporting each missing required one.
+fn resolve_columns(
+    lowered: &[String],
+    header_line: usize,
+    map: &ColumnMap,
+    problems: &mut Problems,
+) -> ColumnIndex {
+    let mut cols = ColumnIndex {
+        index: HashMap::new(),
+        minus: HashMap::new(),
+    };
     for spec in COLUMNS {
         let mapped = map
             .0
@@ -293,7 +370,7 @@ pub fn parse_targets(file: &str, text: &str, map: &ColumnMap) -> Result<Vec<Targ
         if let Some(m) = minus {
             match lowered.iter().position(|h| *h == m) {
                 Some(j) => {
-                    minus_index.insert(spec.name, j);
+                    cols.minus.insert(spec.name, j);
                 }
                 None => problems.push(
                     Some(header_line),
@@ -307,7 +384,7 @@ pub fn parse_targets(file: &str, text: &str, map: &ColumnMap) -> Result<Vec<Targ
         }
         match lowered.iter().position(|h| *h == wanted) {
             Some(i) => {
-                index.insert(spec.name, i);
+                cols.index.insert(spec.name, i);
             }
             None if spec.required => problems.push(
                 Some(header_line),
@@ -322,6 +399,193 @@ pub fn parse_targets(file: &str, text: &str, map: &ColumnMap) -> Result<Vec<Targ
             None => {}
         }
     }
+    cols
+}
+
+/// The text of each of our columns in one row; a two-sided error becomes the larger of its two magnitudes
+/// (never the optimistic side).
+struct RowCells<'r> {
+    record: &'r csv::StringRecord,
+    cols: &'r ColumnIndex,
+    two_sided: HashMap<&'static str, String>,
+}
+
+impl<'r> RowCells<'r> {
+    fn new(record: &'r csv::StringRecord, cols: &'r ColumnIndex) -> RowCells<'r> {
+        let raw = |i: usize| record.get(i).unwrap_or("").trim();
+        let two_sided = cols
+            .minus
+            .iter()
+            .map(|(&name, &j)| {
+                let plus = cols.index.get(name).map_or("", |&i| raw(i));
+                let minus = raw(j);
+                let combined = match (plus.parse::<f64>(), minus.parse::<f64>()) {
+                    (Ok(a), Ok(b)) => format!("{}", a.abs().max(b.abs())),
+                    (Ok(_), Err(_)) => minus.to_string(),
+                    _ => plus.to_string(),
+                };
+                (name, combined)
+            })
+            .collect();
+        RowCells {
+            record,
+            cols,
+            two_sided,
+        }
+    }
+
+    fn get(&self, name: &str) -> &str {
+        if let Some(v) = self.two_sided.get(name) {
+            return v.as_str();
+        }
+        self.cols
+            .index
+            .get(name)
+            .and_then(|&i| self.record.get(i))
+            .map(str::trim)
+            .unwrap_or("")
+    }
+}
+
+/// Every numeric column of a row checked against its [`NumberRule`]: the values found (empty optional cells
+/// are left out), or false when any was wrong (each problem reported).
+fn row_numbers(
+    cells: &RowCells<'_>,
+    line: Option<usize>,
+    problems: &mut Problems,
+) -> (HashMap<&'static str, f64>, bool) {
+    let mut values = HashMap::new();
+    let mut ok = true;
+    for spec in COLUMNS {
+        let Some(rule) = &spec.number else {
+            continue;
+        };
+        let raw = cells.get(spec.name);
+        if raw.is_empty() && !spec.required {
+            continue;
+        }
+        match parse_finite(raw, rule.expected) {
+            Ok(v) if v >= rule.lo && v <= rule.hi => {
+                values.insert(spec.name, v);
+            }
+            Ok(v) => {
+                let msg = if spec.name == "t0" {
+                    not_a_full_jd(v)
+                } else {
+                    format!("found {v}, expected {}", rule.expected)
+                };
+                problems.push(line, spec.name, msg);
+                ok = false;
+            }
+            Err(msg) => {
+                problems.push(line, spec.name, msg);
+                ok = false;
+            }
+        }
+    }
+    (values, ok)
+}
+
+/// One target from one row, or None with every problem of the row reported.
+fn parse_row(
+    cells: &RowCells<'_>,
+    line: Option<usize>,
+    seen: &mut HashMap<String, usize>,
+    problems: &mut Problems,
+) -> Option<Target> {
+    let (nums, mut ok) = row_numbers(cells, line, problems);
+    let name = cells.get("name").to_string();
+    if name.is_empty() {
+        problems.push(line, "name", "found an empty name; expected text".into());
+        ok = false;
+    } else if let Some(prev) = seen.insert(name.to_lowercase(), line.unwrap_or(0)) {
+        problems.push(
+            line,
+            "name",
+            format!("found {name:?} again (first at line {prev}); expected unique target names"),
+        );
+        ok = false;
+    }
+    let ra = parse_ra_deg(cells.get("ra"))
+        .map_err(|m| problems.push(line, "ra", m))
+        .ok();
+    let dec = parse_dec_deg(cells.get("dec"))
+        .map_err(|m| problems.push(line, "dec", m))
+        .ok();
+    let system = TimeSystem::parse(cells.get("time_system"));
+    if system.is_none() {
+        problems.push(
+            line,
+            "time_system",
+            format!(
+                "found {:?}, expected BJD_TDB, HJD_UTC or JD_UTC",
+                cells.get("time_system")
+            ),
+        );
+    }
+    if let (Some(p), Some(d)) = (nums.get("period_days"), nums.get("t14_hours")) {
+        if d / 24.0 >= *p {
+            problems.push(
+                line,
+                "t14_hours",
+                format!(
+                    "found {d} h, expected a duration shorter than the period ({:.3} h)",
+                    p * 24.0
+                ),
+            );
+            ok = false;
+        }
+    }
+    let num = |k: &str| nums.get(k).copied();
+    let required = [
+        "t0",
+        "t0_sigma_days",
+        "period_days",
+        "period_sigma_days",
+        "t14_hours",
+    ];
+    if !ok || required.iter().any(|k| num(k).is_none()) {
+        return None;
+    }
+    Some(Target {
+        name,
+        ra_deg: ra?,
+        dec_deg: dec?,
+        ephemeris: Ephemeris {
+            t0: num("t0")?,
+            t0_sigma_days: num("t0_sigma_days")?,
+            period_days: num("period_days")?,
+            period_sigma_days: num("period_sigma_days")?,
+            cov_t0_period_days2: num("t0_period_cov_days2").unwrap_or(0.0),
+            system: system?,
+        },
+        t14_hours: num("t14_hours")?,
+        depth_ppt: num("depth_ppt"),
+        mag: num("mag"),
+        priority: num("priority").unwrap_or(1.0),
+        notes: cells.get("notes").to_string(),
+        pm_ra_cosdec_mas_per_yr: num("pm_ra_mas_per_yr").unwrap_or(0.0),
+        pm_dec_mas_per_yr: num("pm_dec_mas_per_yr").unwrap_or(0.0),
+        coord_epoch_jyear: num("coord_epoch").unwrap_or(2000.0),
+    })
+}
+
+/// Parse and validate a targets file.
+///
+/// Given: `file` label for messages, `text` the file's content, `map` column renames. Returns targets in
+/// file order, or every problem found (up to the cap).
+pub fn parse_targets(file: &str, text: &str, map: &ColumnMap) -> Result<Vec<Target>, InputError> {
+    let CsvInput {
+        mut reader,
+        headers: lowered,
+        header_line,
+    } = open_csv(
+        file,
+        text,
+        "a header line and one row per target (see targets.example.csv)",
+    )?;
+    let mut problems = Problems::default();
+    let cols = resolve_columns(&lowered, header_line, map, &mut problems);
     if !problems.list_is_empty() {
         return problems.into_result(file, Vec::new());
     }
@@ -340,229 +604,10 @@ pub fn parse_targets(file: &str, text: &str, map: &ColumnMap) -> Result<Vec<Targ
         if record.iter().all(|f| f.trim().is_empty()) {
             continue;
         }
-        // Two-sided errors: the larger of the two magnitudes (never the optimistic side).
-        let two_sided: HashMap<&str, String> = minus_index
-            .iter()
-            .map(|(&name, &j)| {
-                let plus = index
-                    .get(name)
-                    .and_then(|&i| record.get(i))
-                    .unwrap_or("")
-                    .trim();
-                let minus = record.get(j).unwrap_or("").trim();
-                let combined = match (plus.parse::<f64>(), minus.parse::<f64>()) {
-                    (Ok(a), Ok(b)) => format!("{}", a.abs().max(b.abs())),
-                    (Ok(_), Err(_)) => minus.to_string(),
-                    _ => plus.to_string(),
-                };
-                (name, combined)
-            })
-            .collect();
-        let cell = |name: &str| {
-            if let Some(v) = two_sided.get(name) {
-                return v.as_str();
-            }
-            index
-                .get(name)
-                .and_then(|&i| record.get(i))
-                .map(str::trim)
-                .unwrap_or("")
-        };
-        let mut ok = true;
-        let mut num = |name: &str,
-                       expected: &str,
-                       lo: f64,
-                       hi: f64,
-                       problems: &mut Problems|
-         -> Option<f64> {
-            let raw = cell(name);
-            match parse_finite(raw, expected) {
-                Ok(v) if v >= lo && v <= hi => Some(v),
-                Ok(v) if name == "t0" => {
-                    problems.push(line, name, not_a_full_jd(v));
-                    ok = false;
-                    None
-                }
-                Ok(v) => {
-                    problems.push(line, name, format!("found {v}, expected {expected}"));
-                    ok = false;
-                    None
-                }
-                Err(msg) => {
-                    problems.push(line, name, msg);
-                    ok = false;
-                    None
-                }
-            }
-        };
-        let name = cell("name").to_string();
-        let t0 = num("t0", "a full Julian Date between 2400000 and 2600000 (reduced dates such as BJD-2457000 need the offset added)", MIN_FULL_JD, MAX_FULL_JD, &mut problems);
-        let t0_sigma = num(
-            "t0_sigma_days",
-            "a 1-sigma error in days, >= 0",
-            0.0,
-            1e3,
-            &mut problems,
-        );
-        let period = num(
-            "period_days",
-            "a period in days, > 0",
-            1e-6,
-            1e6,
-            &mut problems,
-        );
-        let period_sigma = num(
-            "period_sigma_days",
-            "a 1-sigma error in days, >= 0",
-            0.0,
-            1e3,
-            &mut problems,
-        );
-        let t14 = num(
-            "t14_hours",
-            "a duration in hours, > 0",
-            1e-6,
-            1e6,
-            &mut problems,
-        );
-        let mut optional =
-            |col: &str, expected: &str, lo: f64, hi: f64, problems: &mut Problems| -> Option<f64> {
-                if cell(col).is_empty() {
-                    None
-                } else {
-                    num(col, expected, lo, hi, problems)
-                }
-            };
-        let cov = optional(
-            "t0_period_cov_days2",
-            "a covariance in days^2",
-            -1e6,
-            1e6,
-            &mut problems,
-        );
-        let depth = optional(
-            "depth_ppt",
-            "a depth in parts per thousand within 0..1000",
-            0.0,
-            1000.0,
-            &mut problems,
-        );
-        let mag = optional(
-            "mag",
-            "a magnitude within -30..40",
-            -30.0,
-            40.0,
-            &mut problems,
-        );
-        let priority = optional(
-            "priority",
-            "a priority, a number >= 0",
-            0.0,
-            1e9,
-            &mut problems,
-        );
-        let pm_ra = optional(
-            "pm_ra_mas_per_yr",
-            "a proper motion within +-20000 mas/yr",
-            -2e4,
-            2e4,
-            &mut problems,
-        );
-        let pm_dec = optional(
-            "pm_dec_mas_per_yr",
-            "a proper motion within +-20000 mas/yr",
-            -2e4,
-            2e4,
-            &mut problems,
-        );
-        let coord_epoch = optional(
-            "coord_epoch",
-            "a Julian year within 1900..2100",
-            1900.0,
-            2100.0,
-            &mut problems,
-        );
-        if name.is_empty() {
-            problems.push(line, "name", "found an empty name; expected text".into());
-            ok = false;
-        } else if let Some(prev) = seen.insert(name.to_lowercase(), line.unwrap_or(0)) {
-            problems.push(
-                line,
-                "name",
-                format!(
-                    "found {name:?} again (first at line {prev}); expected unique target names"
-                ),
-            );
-            ok = false;
+        let cells = RowCells::new(&record, &cols);
+        if let Some(t) = parse_row(&cells, line, &mut seen, &mut problems) {
+            targets.push(t);
         }
-        let ra = parse_ra_deg(cell("ra"))
-            .map_err(|m| problems.push(line, "ra", m))
-            .ok();
-        let dec = parse_dec_deg(cell("dec"))
-            .map_err(|m| problems.push(line, "dec", m))
-            .ok();
-        let system = match TimeSystem::parse(cell("time_system")) {
-            Some(s) => Some(s),
-            None => {
-                problems.push(
-                    line,
-                    "time_system",
-                    format!(
-                        "found {:?}, expected BJD_TDB, HJD_UTC or JD_UTC",
-                        cell("time_system")
-                    ),
-                );
-                None
-            }
-        };
-        if let (Some(p), Some(d)) = (period, t14) {
-            if d / 24.0 >= p {
-                problems.push(
-                    line,
-                    "t14_hours",
-                    format!(
-                        "found {d} h, expected a duration shorter than the period ({:.3} h)",
-                        p * 24.0
-                    ),
-                );
-                ok = false;
-            }
-        }
-        let (
-            Some(ra),
-            Some(dec),
-            Some(system),
-            Some(t0),
-            Some(t0_sigma),
-            Some(period),
-            Some(period_sigma),
-            Some(t14),
-            true,
-        ) = (ra, dec, system, t0, t0_sigma, period, period_sigma, t14, ok)
-        else {
-            continue;
-        };
-        targets.push(Target {
-            name,
-            ra_deg: ra,
-            dec_deg: dec,
-            ephemeris: Ephemeris {
-                t0,
-                t0_sigma_days: t0_sigma,
-                period_days: period,
-                period_sigma_days: period_sigma,
-                cov_t0_period_days2: cov.unwrap_or(0.0),
-                system,
-            },
-            t14_hours: t14,
-            depth_ppt: depth,
-            mag,
-            priority: priority.unwrap_or(1.0),
-            notes: cell("notes").to_string(),
-            pm_ra_cosdec_mas_per_yr: pm_ra.unwrap_or(0.0),
-            pm_dec_mas_per_yr: pm_dec.unwrap_or(0.0),
-            coord_epoch_jyear: coord_epoch.unwrap_or(2000.0),
-        });
     }
     if targets.is_empty() && problems.list_is_empty() {
         problems.push(
