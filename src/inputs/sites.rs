@@ -88,7 +88,7 @@ struct RawSite {
     darkness: Option<Spanned<toml::Value>>,
     min_moon_sep_deg: Option<Spanned<f64>>,
     hour_angle_limits_h: Option<Spanned<Vec<f64>>>,
-    horizon: Option<Spanned<Vec<Vec<f64>>>>,
+    horizon: Option<Spanned<Vec<Spanned<Vec<f64>>>>>,
     telescopes: Option<Spanned<toml::Value>>,
     allow_far_zone: Option<Spanned<bool>>,
 }
@@ -183,277 +183,361 @@ pub fn parse_sites(file: &str, text: &str) -> Result<Vec<Site>, InputError> {
     let mut sites = Vec::new();
     let mut seen = std::collections::HashMap::new();
     for spanned in &raw_sites {
-        let site_line = line_of(text, spanned.span().start);
-        let r = spanned.get_ref();
-        let at = |s: &std::ops::Range<usize>| Some(line_of(text, s.start));
-        macro_rules! required {
-            ($field:ident, $what:expr) => {
-                match &r.$field {
-                    Some(v) => Some(v),
-                    None => {
-                        problems.push(
-                            Some(site_line),
-                            stringify!($field),
-                            format!("missing; expected {}", $what),
-                        );
-                        None
-                    }
-                }
-            };
-        }
-        let name = required!(name, "the site's name");
-        let lat = required!(latitude_deg, "latitude in degrees, north +, -90..90");
-        let lon = required!(
-            longitude_deg,
-            "longitude in degrees, east +, -180..180 (or 0..360 east)"
-        );
-        let tz_text = required!(timezone, "an IANA time zone name such as \"Europe/Madrid\"");
-        let mut ok = name.is_some() && lat.is_some() && lon.is_some() && tz_text.is_some();
-        if let Some(n) = name {
-            let trimmed = n.get_ref().trim().to_string();
-            if trimmed.is_empty() {
-                problems.push(
-                    at(&n.span()),
-                    "name",
-                    "found an empty name; expected text".into(),
-                );
-                ok = false;
-            } else if let Some(prev) = seen.insert(trimmed.to_lowercase(), site_line) {
-                problems.push(
-                    at(&n.span()),
-                    "name",
-                    format!("found {trimmed:?} again (first at line {prev}); expected unique site names"),
-                );
-                ok = false;
-            }
-        }
-        let mut check =
-            |v: Option<&Spanned<f64>>, field: &str, lo: f64, hi: f64, what: &str| -> bool {
-                if let Some(v) = v {
-                    let x = *v.get_ref();
-                    if !x.is_finite() || x < lo || x > hi {
-                        problems.push(at(&v.span()), field, format!("found {x}, expected {what}"));
-                        return false;
-                    }
-                }
-                true
-            };
-        ok &= check(
-            lat,
-            "latitude_deg",
-            -90.0,
-            90.0,
-            "a latitude within -90..90 deg",
-        );
-        ok &= check(
-            lon,
-            "longitude_deg",
-            -180.0,
-            360.0,
-            "a longitude within -180..180 deg (or 0..360 east)",
-        );
-        ok &= check(
-            r.elevation_m.as_ref(),
-            "elevation_m",
-            -500.0,
-            9000.0,
-            "an elevation within -500..9000 m",
-        );
-        ok &= check(
-            r.min_alt_deg.as_ref(),
-            "min_alt_deg",
-            -5.0,
-            89.0,
-            "a lowest altitude within -5..89 deg",
-        );
-        ok &= check(
-            r.max_alt_deg.as_ref(),
-            "max_alt_deg",
-            30.0,
-            90.0,
-            "a highest trackable altitude within 30..90 deg",
-        );
-        ok &= check(
-            r.max_airmass.as_ref(),
-            "max_airmass",
-            1.0,
-            38.0,
-            "a highest airmass within 1..38",
-        );
-        ok &= check(
-            r.min_moon_sep_deg.as_ref(),
-            "min_moon_sep_deg",
-            0.0,
-            180.0,
-            "a separation within 0..180 deg",
-        );
-        let tz = match tz_text {
-            Some(t) => match t.get_ref().trim().parse::<chrono_tz::Tz>() {
-                Ok(tz) => Some(tz),
-                Err(_) => {
-                    problems.push(
-                        at(&t.span()),
-                        "timezone",
-                        match offset_zone_hint(t.get_ref()) {
-                            Some(hint) => format!(
-                                "found {:?}, expected an IANA time zone name; {hint}",
-                                t.get_ref()
-                            ),
-                            None => format!(
-                                "found {:?}, expected an IANA time zone name; nearest valid names: {}",
-                                t.get_ref(),
-                                nearest_zone_names(t.get_ref(), 3).join(", ")
-                            ),
-                        },
-                    );
-                    None
-                }
-            },
-            None => None,
+        let ctx = SiteCtx {
+            text,
+            site_line: line_of(text, spanned.span().start),
         };
-        let (darkness_alt_deg, darkness_label) = match &r.darkness {
-            None => (NAUTICAL_TWILIGHT_ALT_DEG, "nautical".to_string()),
-            Some(v) => match parse_darkness(v.get_ref()) {
-                Ok(x) => x,
-                Err(msg) => {
-                    problems.push(at(&v.span()), "darkness", msg);
-                    ok = false;
-                    (0.0, String::new())
-                }
-            },
-        };
-        let hour_angle_limits_h = match &r.hour_angle_limits_h {
-            None => None,
-            Some(v) => match v.get_ref().as_slice() {
-                [a, b] if a.is_finite() && b.is_finite() && -12.0 <= *a && a < b && *b <= 12.0 => {
-                    Some((*a, *b))
-                }
-                other => {
-                    problems.push(
-                        at(&v.span()),
-                        "hour_angle_limits_h",
-                        format!("found {other:?}, expected [east, west] hours with -12 <= east < west <= 12"),
-                    );
-                    ok = false;
-                    None
-                }
-            },
-        };
-        let horizon = match &r.horizon {
-            None => HorizonProfile::default(),
-            Some(v) => {
-                let mut pairs = Vec::new();
-                for p in v.get_ref() {
-                    match p.as_slice() {
-                        [az, alt]
-                            if az.is_finite()
-                                && alt.is_finite()
-                                && (-90.0..=90.0).contains(alt) =>
-                        {
-                            pairs.push((*az, *alt))
-                        }
-                        other => {
-                            problems.push(
-                                at(&v.span()),
-                                "horizon",
-                                format!("found {other:?}, expected [azimuth_deg, altitude_deg] pairs with altitude within -90..90"),
-                            );
-                            ok = false;
-                        }
-                    }
-                }
-                HorizonProfile::new(&pairs)
-            }
-        };
-        let telescopes = match &r.telescopes {
-            None => vec![Telescope {
-                name: "main".into(),
-                min_alt_deg: None,
-                max_alt_deg: None,
-            }],
-            Some(v) => match parse_telescopes(v.get_ref()) {
-                Ok(t) => t,
-                Err(msg) => {
-                    problems.push(at(&v.span()), "telescopes", msg);
-                    ok = false;
-                    Vec::new()
-                }
-            },
-        };
-        if !ok || tz.is_none() {
-            continue;
+        if let Some(site) = parse_site(&ctx, spanned.get_ref(), &mut seen, &mut problems) {
+            sites.push(site);
         }
-        let lon_span = lon.unwrap().span();
-        let (lat, mut lon) = (*lat.unwrap().get_ref(), *lon.unwrap().get_ref());
-        if lon > 180.0 {
-            lon -= 360.0;
-        }
-        let allow_far_zone = r.allow_far_zone.as_ref().is_some_and(|v| *v.get_ref());
-        if !allow_far_zone {
-            if let Some(msg) = far_zone_problem(lon, tz.unwrap()) {
-                problems.push(at(&lon_span), "longitude_deg", msg);
-                continue;
-            }
-        }
-        let elevation_m = r.elevation_m.as_ref().map(|v| *v.get_ref()).unwrap_or(0.0);
-        let from_alt = r.min_alt_deg.as_ref().map(|v| *v.get_ref());
-        let from_airmass = r
-            .max_airmass
-            .as_ref()
-            .map(|v| alt_deg_for_airmass(*v.get_ref()));
-        let min_alt_deg = match (from_alt, from_airmass) {
-            (Some(a), Some(b)) => a.max(b),
-            (Some(a), None) => a,
-            (None, Some(b)) => b,
-            (None, None) => 30.0,
-        };
-        let max_alt_deg = r.max_alt_deg.as_ref().map(|v| *v.get_ref());
-        if let Some(v) = &r.max_alt_deg {
-            if *v.get_ref() <= min_alt_deg {
-                problems.push(
-                    at(&v.span()),
-                    "max_alt_deg",
-                    format!(
-                        "found {}, expected more than the lowest usable altitude ({min_alt_deg:.1} deg)",
-                        v.get_ref()
-                    ),
-                );
-                continue;
-            }
-        }
-        let inverted = telescopes.iter().find(|t| {
-            t.min_alt_deg.unwrap_or(min_alt_deg) >= t.max_alt_deg.or(max_alt_deg).unwrap_or(90.0)
-        });
-        if let (Some(t), Some(list)) = (inverted, &r.telescopes) {
-            problems.push(
-                at(&list.span()),
-                "telescopes",
-                format!(
-                    "telescope {:?}: found a highest altitude at or below its lowest, expected max_alt_deg above \
-                     min_alt_deg",
-                    t.name
-                ),
-            );
-            continue;
-        }
-        sites.push(Site {
-            name: name.unwrap().get_ref().trim().to_string(),
-            observer: Observer::from_deg(lat, lon, elevation_m),
-            lat_deg: lat,
-            lon_deg: lon,
-            elevation_m,
-            tz: tz.unwrap(),
-            min_alt_deg,
-            max_alt_deg,
-            darkness_alt_deg,
-            darkness_label,
-            horizon,
-            hour_angle_limits_h,
-            min_moon_sep_deg: r.min_moon_sep_deg.as_ref().map(|v| *v.get_ref()),
-            telescopes,
-        });
     }
     problems.into_result(file, sites)
+}
+
+/// Where a site table sits in its file, to name lines in messages.
+struct SiteCtx<'t> {
+    text: &'t str,
+    site_line: usize,
+}
+
+impl SiteCtx<'_> {
+    /// The line of a span.
+    fn at(&self, s: &std::ops::Range<usize>) -> Option<usize> {
+        Some(line_of(self.text, s.start))
+    }
+}
+
+/// The numeric keys of a site with their accepted ranges: validation is driven by this table.
+const SITE_NUMBERS: [(&str, f64, f64, &str); 7] = [
+    ("latitude_deg", -90.0, 90.0, "a latitude within -90..90 deg"),
+    (
+        "longitude_deg",
+        -180.0,
+        360.0,
+        "a longitude within -180..180 deg (or 0..360 east)",
+    ),
+    (
+        "elevation_m",
+        -500.0,
+        9000.0,
+        "an elevation within -500..9000 m",
+    ),
+    (
+        "min_alt_deg",
+        -5.0,
+        89.0,
+        "a lowest altitude within -5..89 deg",
+    ),
+    (
+        "max_alt_deg",
+        30.0,
+        90.0,
+        "a highest trackable altitude within 30..90 deg",
+    ),
+    ("max_airmass", 1.0, 38.0, "a highest airmass within 1..38"),
+    (
+        "min_moon_sep_deg",
+        0.0,
+        180.0,
+        "a separation within 0..180 deg",
+    ),
+];
+
+impl RawSite {
+    /// The numeric key `name` of [`SITE_NUMBERS`], if given.
+    fn number(&self, name: &str) -> Option<&Spanned<f64>> {
+        match name {
+            "latitude_deg" => self.latitude_deg.as_ref(),
+            "longitude_deg" => self.longitude_deg.as_ref(),
+            "elevation_m" => self.elevation_m.as_ref(),
+            "min_alt_deg" => self.min_alt_deg.as_ref(),
+            "max_alt_deg" => self.max_alt_deg.as_ref(),
+            "max_airmass" => self.max_airmass.as_ref(),
+            "min_moon_sep_deg" => self.min_moon_sep_deg.as_ref(),
+            _ => None,
+        }
+    }
+}
+
+/// Report every missing required key and out-of-range number; true when all are fine.
+fn check_keys(ctx: &SiteCtx<'_>, r: &RawSite, problems: &mut Problems) -> bool {
+    let mut ok = true;
+    for (present, field, what) in [
+        (r.name.is_some(), "name", "the site's name"),
+        (
+            r.latitude_deg.is_some(),
+            "latitude_deg",
+            "latitude in degrees, north +, -90..90",
+        ),
+        (
+            r.longitude_deg.is_some(),
+            "longitude_deg",
+            "longitude in degrees, east +, -180..180 (or 0..360 east)",
+        ),
+        (
+            r.timezone.is_some(),
+            "timezone",
+            "an IANA time zone name such as \"Europe/Madrid\"",
+        ),
+    ] {
+        if !present {
+            problems.push(
+                Some(ctx.site_line),
+                field,
+                format!("missing; expected {what}"),
+            );
+            ok = false;
+        }
+    }
+    for (field, lo, hi, what) in SITE_NUMBERS {
+        if let Some(v) = r.number(field) {
+            let x = *v.get_ref();
+            if !x.is_finite() || x < lo || x > hi {
+                problems.push(
+                    ctx.at(&v.span()),
+                    field,
+                    format!("found {x}, expected {what}"),
+                );
+                ok = false;
+            }
+        }
+    }
+    ok
+}
+
+/// The site's name, unique in the file (case-insensitive).
+fn check_name(
+    ctx: &SiteCtx<'_>,
+    n: &Spanned<String>,
+    seen: &mut std::collections::HashMap<String, usize>,
+    problems: &mut Problems,
+) -> Option<String> {
+    let trimmed = n.get_ref().trim().to_string();
+    if trimmed.is_empty() {
+        problems.push(
+            ctx.at(&n.span()),
+            "name",
+            "found an empty name; expected text".into(),
+        );
+        return None;
+    }
+    if let Some(prev) = seen.insert(trimmed.to_lowercase(), ctx.site_line) {
+        problems.push(
+            ctx.at(&n.span()),
+            "name",
+            format!("found {trimmed:?} again (first at line {prev}); expected unique site names"),
+        );
+        return None;
+    }
+    Some(trimmed)
+}
+
+/// The IANA zone, or a problem with the nearest names (or the Etc name of a UTC offset).
+fn parse_zone(
+    ctx: &SiteCtx<'_>,
+    t: &Spanned<String>,
+    problems: &mut Problems,
+) -> Option<chrono_tz::Tz> {
+    if let Ok(tz) = t.get_ref().trim().parse::<chrono_tz::Tz>() {
+        return Some(tz);
+    }
+    let msg = match offset_zone_hint(t.get_ref()) {
+        Some(hint) => format!(
+            "found {:?}, expected an IANA time zone name; {hint}",
+            t.get_ref()
+        ),
+        None => format!(
+            "found {:?}, expected an IANA time zone name; nearest valid names: {}",
+            t.get_ref(),
+            nearest_zone_names(t.get_ref(), 3).join(", ")
+        ),
+    };
+    problems.push(ctx.at(&t.span()), "timezone", msg);
+    None
+}
+
+/// The optional structured keys of a site.
+struct SiteExtras {
+    darkness_alt_deg: f64,
+    darkness_label: String,
+    hour_angle_limits_h: Option<(f64, f64)>,
+    horizon: HorizonProfile,
+    telescopes: Vec<Telescope>,
+}
+
+/// Darkness level, hour-angle limits, horizon profile (each bad pair named by its own line) and telescopes.
+fn parse_extras(ctx: &SiteCtx<'_>, r: &RawSite, problems: &mut Problems) -> Option<SiteExtras> {
+    let mut ok = true;
+    let (darkness_alt_deg, darkness_label) = match &r.darkness {
+        None => (NAUTICAL_TWILIGHT_ALT_DEG, "nautical".to_string()),
+        Some(v) => parse_darkness(v.get_ref()).unwrap_or_else(|msg| {
+            problems.push(ctx.at(&v.span()), "darkness", msg);
+            ok = false;
+            (0.0, String::new())
+        }),
+    };
+    let hour_angle_limits_h = match &r.hour_angle_limits_h {
+        None => None,
+        Some(v) => match v.get_ref().as_slice() {
+            [a, b] if a.is_finite() && b.is_finite() && -12.0 <= *a && a < b && *b <= 12.0 => {
+                Some((*a, *b))
+            }
+            other => {
+                problems.push(
+                    ctx.at(&v.span()),
+                    "hour_angle_limits_h",
+                    format!("found {other:?}, expected [east, west] hours with -12 <= east < west <= 12"),
+                );
+                ok = false;
+                None
+            }
+        },
+    };
+    let mut pairs = Vec::new();
+    for p in r
+        .horizon
+        .as_ref()
+        .map(|v| v.get_ref().as_slice())
+        .unwrap_or(&[])
+    {
+        match p.get_ref().as_slice() {
+            [az, alt] if az.is_finite() && alt.is_finite() && (-90.0..=90.0).contains(alt) => {
+                pairs.push((*az, *alt))
+            }
+            other => {
+                problems.push(
+                    ctx.at(&p.span()),
+                    "horizon",
+                    format!("found {other:?}, expected [azimuth_deg, altitude_deg] pairs with altitude within -90..90"),
+                );
+                ok = false;
+            }
+        }
+    }
+    let telescopes = match &r.telescopes {
+        None => vec![Telescope {
+            name: "main".into(),
+            min_alt_deg: None,
+            max_alt_deg: None,
+        }],
+        Some(v) => parse_telescopes(v.get_ref()).unwrap_or_else(|msg| {
+            problems.push(ctx.at(&v.span()), "telescopes", msg);
+            ok = false;
+            Vec::new()
+        }),
+    };
+    ok.then(|| SiteExtras {
+        darkness_alt_deg,
+        darkness_label,
+        hour_angle_limits_h,
+        horizon: HorizonProfile::new(&pairs),
+        telescopes,
+    })
+}
+
+/// The lowest usable altitude (from `min_alt_deg` or `max_airmass`, the stricter; default 30 deg) and the
+/// highest trackable one, checked against each other for the site and every telescope.
+fn altitude_limits(
+    ctx: &SiteCtx<'_>,
+    r: &RawSite,
+    telescopes: &[Telescope],
+    problems: &mut Problems,
+) -> Option<(f64, Option<f64>)> {
+    let from_alt = r.min_alt_deg.as_ref().map(|v| *v.get_ref());
+    let from_airmass = r
+        .max_airmass
+        .as_ref()
+        .map(|v| alt_deg_for_airmass(*v.get_ref()));
+    let min_alt_deg = match (from_alt, from_airmass) {
+        (Some(a), Some(b)) => a.max(b),
+        (Some(a), None) => a,
+        (None, Some(b)) => b,
+        (None, None) => 30.0,
+    };
+    let max_alt_deg = r.max_alt_deg.as_ref().map(|v| *v.get_ref());
+    if let Some(v) = &r.max_alt_deg {
+        if *v.get_ref() <= min_alt_deg {
+            problems.push(
+                ctx.at(&v.span()),
+                "max_alt_deg",
+                format!(
+                    "found {}, expected more than the lowest usable altitude ({min_alt_deg:.1} deg)",
+                    v.get_ref()
+                ),
+            );
+            return None;
+        }
+    }
+    let inverted = telescopes.iter().find(|t| {
+        t.min_alt_deg.unwrap_or(min_alt_deg) >= t.max_alt_deg.or(max_alt_deg).unwrap_or(90.0)
+    });
+    if let (Some(t), Some(list)) = (inverted, &r.telescopes) {
+        problems.push(
+            ctx.at(&list.span()),
+            "telescopes",
+            format!(
+                "telescope {:?}: found a highest altitude at or below its lowest, expected max_alt_deg above \
+                 min_alt_deg",
+                t.name
+            ),
+        );
+        return None;
+    }
+    Some((min_alt_deg, max_alt_deg))
+}
+
+/// One site from its table, or None with every problem of the table reported.
+fn parse_site(
+    ctx: &SiteCtx<'_>,
+    r: &RawSite,
+    seen: &mut std::collections::HashMap<String, usize>,
+    problems: &mut Problems,
+) -> Option<Site> {
+    let mut ok = check_keys(ctx, r, problems);
+    let name = r
+        .name
+        .as_ref()
+        .and_then(|n| check_name(ctx, n, seen, problems));
+    ok &= name.is_some() || r.name.is_none();
+    let tz = r
+        .timezone
+        .as_ref()
+        .and_then(|t| parse_zone(ctx, t, problems));
+    let extras = parse_extras(ctx, r, problems);
+    let (Some(name), Some(lat), Some(lon), Some(tz), Some(extras), true) =
+        (name, &r.latitude_deg, &r.longitude_deg, tz, extras, ok)
+    else {
+        return None;
+    };
+    let (lat, mut lon_deg) = (*lat.get_ref(), *lon.get_ref());
+    if lon_deg > 180.0 {
+        lon_deg -= 360.0;
+    }
+    let allow_far_zone = r.allow_far_zone.as_ref().is_some_and(|v| *v.get_ref());
+    if !allow_far_zone {
+        if let Some(msg) = far_zone_problem(lon_deg, tz) {
+            problems.push(ctx.at(&lon.span()), "longitude_deg", msg);
+            return None;
+        }
+    }
+    let (min_alt_deg, max_alt_deg) = altitude_limits(ctx, r, &extras.telescopes, problems)?;
+    let elevation_m = r.elevation_m.as_ref().map(|v| *v.get_ref()).unwrap_or(0.0);
+    Some(Site {
+        name,
+        observer: Observer::from_deg(lat, lon_deg, elevation_m),
+        lat_deg: lat,
+        lon_deg,
+        elevation_m,
+        tz,
+        min_alt_deg,
+        max_alt_deg,
+        darkness_alt_deg: extras.darkness_alt_deg,
+        darkness_label: extras.darkness_label,
+        horizon: extras.horizon,
+        hour_angle_limits_h: extras.hour_angle_limits_h,
+        min_moon_sep_deg: r.min_moon_sep_deg.as_ref().map(|v| *v.get_ref()),
+        telescopes: extras.telescopes,
+    })
 }
 
 fn parse_telescopes(v: &toml::Value) -> Result<Vec<Telescope>, String> {
@@ -700,6 +784,17 @@ horizon = [[0, 10], [180, 20]]
             msg.contains("s.toml:7: timezone: found \"UTC-10\"") && msg.contains("Etc/GMT+10"),
             "{msg}"
         );
+    }
+
+    #[test]
+    fn a_bad_horizon_pair_is_named_by_its_own_line() {
+        let text = GOOD.replace(
+            "horizon = [[0, 10], [180, 20]]",
+            "horizon = [\n  [0, 10],\n  [90, 95],\n  [180, 20],\n  [270],\n]",
+        );
+        let msg = parse_sites("s.toml", &text).unwrap_err().to_string();
+        assert!(msg.contains("s.toml:12: horizon: found [90.0, 95.0]"), "{msg}");
+        assert!(msg.contains("s.toml:14: horizon: found [270.0]"), "{msg}");
     }
 
     #[test]
