@@ -6,6 +6,8 @@
 //! [`outputs`] (tables, CSV, JSON, calendars, charts). The library only computes; files, the clock and the
 //! terminal belong to the binary.
 
+#![warn(clippy::too_many_lines, missing_docs)]
+
 pub mod astro;
 pub mod constants;
 pub mod engine;

@@ -1,5 +1,7 @@
 //! dipwatch command-line entry point: parse arguments, run the command, print an error once.
 
+#![warn(clippy::too_many_lines)]
+
 mod cli;
 
 fn main() {

@@ -73,69 +73,8 @@ pub fn parse_observed(file: &str, text: &str) -> Result<Vec<Observation>, InputE
         if record.iter().all(|f| f.trim().is_empty()) {
             continue;
         }
-        let cell = |name: &str| {
-            index
-                .get(name)
-                .and_then(|&i| record.get(i))
-                .map(str::trim)
-                .unwrap_or("")
-        };
-        let target = cell("target").to_string();
-        if target.is_empty() {
-            problems.push(
-                Some(line),
-                "target",
-                "found an empty name; expected a target name from the targets file".into(),
-            );
-        }
-        let tc = match parse_finite(cell("tc"), "a full Julian Date between 2400000 and 2600000") {
-            Ok(v) if (2_400_000.0..2_600_000.0).contains(&v) => Some(v),
-            Ok(v) => {
-                problems.push(Some(line), "tc", crate::inputs::targets::not_a_full_jd(v));
-                None
-            }
-            Err(m) => {
-                problems.push(Some(line), "tc", m);
-                None
-            }
-        };
-        let sigma = match parse_finite(cell("tc_sigma_days"), "a 1-sigma error in days, > 0") {
-            Ok(v) if v > 0.0 && v < 10.0 => Some(v),
-            Ok(v) => {
-                problems.push(
-                    Some(line),
-                    "tc_sigma_days",
-                    format!("found {v}, expected a 1-sigma error in days, > 0"),
-                );
-                None
-            }
-            Err(m) => {
-                problems.push(Some(line), "tc_sigma_days", m);
-                None
-            }
-        };
-        let system = TimeSystem::parse(cell("time_system"));
-        if system.is_none() {
-            problems.push(
-                Some(line),
-                "time_system",
-                format!(
-                    "found {:?}, expected BJD_TDB, HJD_UTC or JD_UTC",
-                    cell("time_system")
-                ),
-            );
-        }
-        if let (false, Some(tc), Some(sigma_days), Some(system)) =
-            (target.is_empty(), tc, sigma, system)
-        {
-            out.push(Observation {
-                target,
-                tc,
-                sigma_days,
-                system,
-                source: cell("source").to_string(),
-                line,
-            });
+        if let Some(o) = parse_row(&record, &index, line, &mut problems) {
+            out.push(o);
         }
     }
     if out.is_empty() && problems.list_is_empty() {
@@ -146,4 +85,76 @@ pub fn parse_observed(file: &str, text: &str) -> Result<Vec<Observation>, InputE
         );
     }
     problems.into_result(file, out)
+}
+
+/// One observation from one row, or None with every problem of the row reported.
+fn parse_row(
+    record: &csv::StringRecord,
+    index: &HashMap<&str, usize>,
+    line: usize,
+    problems: &mut Problems,
+) -> Option<Observation> {
+    let cell = |name: &str| {
+        index
+            .get(name)
+            .and_then(|&i| record.get(i))
+            .map(str::trim)
+            .unwrap_or("")
+    };
+    let target = cell("target").to_string();
+    if target.is_empty() {
+        problems.push(
+            Some(line),
+            "target",
+            "found an empty name; expected a target name from the targets file".into(),
+        );
+    }
+    let tc = match parse_finite(cell("tc"), "a full Julian Date between 2400000 and 2600000") {
+        Ok(v) if (2_400_000.0..2_600_000.0).contains(&v) => Some(v),
+        Ok(v) => {
+            problems.push(Some(line), "tc", crate::inputs::targets::not_a_full_jd(v));
+            None
+        }
+        Err(m) => {
+            problems.push(Some(line), "tc", m);
+            None
+        }
+    };
+    let sigma = match parse_finite(cell("tc_sigma_days"), "a 1-sigma error in days, > 0") {
+        Ok(v) if v > 0.0 && v < 10.0 => Some(v),
+        Ok(v) => {
+            problems.push(
+                Some(line),
+                "tc_sigma_days",
+                format!("found {v}, expected a 1-sigma error in days, > 0"),
+            );
+            None
+        }
+        Err(m) => {
+            problems.push(Some(line), "tc_sigma_days", m);
+            None
+        }
+    };
+    let system = TimeSystem::parse(cell("time_system"));
+    if system.is_none() {
+        problems.push(
+            Some(line),
+            "time_system",
+            format!(
+                "found {:?}, expected BJD_TDB, HJD_UTC or JD_UTC",
+                cell("time_system")
+            ),
+        );
+    }
+    if target.is_empty() {
+        return None;
+    }
+    Some(Observation {
+        target,
+        tc: tc?,
+        sigma_days: sigma?,
+        system: system?,
+        source: cell("source").to_string(),
+        line,
+    })
 }

@@ -793,7 +793,10 @@ horizon = [[0, 10], [180, 20]]
             "horizon = [\n  [0, 10],\n  [90, 95],\n  [180, 20],\n  [270],\n]",
         );
         let msg = parse_sites("s.toml", &text).unwrap_err().to_string();
-        assert!(msg.contains("s.toml:12: horizon: found [90.0, 95.0]"), "{msg}");
+        assert!(
+            msg.contains("s.toml:12: horizon: found [90.0, 95.0]"),
+            "{msg}"
+        );
         assert!(msg.contains("s.toml:14: horizon: found [270.0]"), "{msg}");
     }
 

@@ -10,21 +10,37 @@ use serde::Serialize;
 /// One night as written to CSV and JSON. Field names are documented in the README.
 #[derive(Debug, Clone, Serialize)]
 pub struct NightRecord {
+    /// Local date on which the night begins, YYYY-MM-DD.
     pub night_of: String,
+    /// Sunset (Sun centre at -0.833 deg), RFC 3339 UTC.
     pub sunset_utc: Option<String>,
+    /// Sunrise, RFC 3339 UTC.
     pub sunrise_utc: Option<String>,
+    /// Sun at -6 deg in the evening.
     pub civil_dusk_utc: Option<String>,
+    /// Sun at -6 deg in the morning.
     pub civil_dawn_utc: Option<String>,
+    /// Sun at -12 deg in the evening.
     pub nautical_dusk_utc: Option<String>,
+    /// Sun at -12 deg in the morning.
     pub nautical_dawn_utc: Option<String>,
+    /// Sun at -18 deg in the evening.
     pub astronomical_dusk_utc: Option<String>,
+    /// Sun at -18 deg in the morning.
     pub astronomical_dawn_utc: Option<String>,
+    /// Start of darkness at the site's own level.
     pub dark_start_utc: Option<String>,
+    /// End of darkness at the site's own level.
     pub dark_end_utc: Option<String>,
+    /// Hours of darkness at the site's level.
     pub dark_hours: f64,
+    /// First moonrise in the night window.
     pub moonrise_utc: Option<String>,
+    /// First moonset in the night window.
     pub moonset_utc: Option<String>,
+    /// Moon illuminated fraction at local mean solar midnight, 0-1.
     pub moon_illum: f64,
+    /// Why an event is missing (polar day or night, Moon up or down all night).
     pub notes: Vec<String>,
 }
 
