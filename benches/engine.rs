@@ -2,14 +2,15 @@
 //!
 //! - `plan/1000x3x30`: the engine on 1000 synthetic targets, 3 sites, 30 nights.
 //! - `subset/engine` vs `subset/brute_force`: the same job (20 targets, 1 site, 30 nights) through the engine
-//!   and through the brute-force 1-minute sampler `dipwatch::engine::plan::brute_force_site`; the ratio of the two
+//!   and through the brute-force 1-minute sampler `dipwatch::testing::oracle::brute_force_site`; the ratio of the two
 //!   medians is the speed-up the README reports.
 
 use chrono::NaiveDate;
 use criterion::{criterion_group, criterion_main, Criterion};
-use dipwatch::engine::plan::{brute_force_site, plan, PlanOptions};
+use dipwatch::engine::plan::{plan, PlanOptions};
 use dipwatch::inputs::sites::parse_sites;
 use dipwatch::inputs::targets::{parse_targets, ColumnMap};
+use dipwatch::testing::oracle::brute_force_site;
 use std::hint::black_box;
 
 const SITES: &str = include_str!("sites.bench.toml");

@@ -7,12 +7,11 @@ use dipwatch::astro::civil::{local_noon_jd, night_of};
 use dipwatch::astro::crossings::Interval;
 use dipwatch::astro::sky::sun_moon_at;
 use dipwatch::astro::time::JdUtc;
-use dipwatch::engine::plan::{
-    nights_at, plan, usable_intervals, usable_minutes_oracle, Reason, Verdict,
-};
+use dipwatch::engine::plan::{nights_at, plan, usable_intervals, Reason, Verdict};
 use dipwatch::ephemeris::Ephemeris;
 use dipwatch::inputs::sites::Site;
 use dipwatch::inputs::targets::Target;
+use dipwatch::testing::oracle::usable_minutes_oracle;
 use proptest::prelude::*;
 
 mod common;

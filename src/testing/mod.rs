@@ -1,4 +1,5 @@
-//! Support for tests and benchmarks, not for users: a deterministic invented catalogue. (The brute-force
-//! 1-minute planner that checks the engine lives beside it in `engine::plan`.)
+//! Support for tests and benchmarks, not for users: the brute-force 1-minute references the engine is checked
+//! and timed against, and a deterministic invented catalogue.
 
+pub mod oracle;
 pub mod synthetic;
