@@ -5,11 +5,7 @@ use super::*;
 #[derive(Args, Debug)]
 pub(super) struct CalendarArgs {
     #[command(flatten)]
-    pub(super) input: InputArgs,
-    #[command(flatten)]
-    pub(super) range: RangeArgs,
-    #[command(flatten)]
-    pub(super) block: BlockArgs,
+    pub(super) selection: Selection,
     /// Calendar file to write (atomically), or - for standard output
     #[arg(long, value_name = "FILE")]
     pub(super) out: PathBuf,
@@ -53,12 +49,10 @@ pub(super) fn site_file_name(out: &Path, site: &str) -> PathBuf {
 }
 
 pub(super) fn run_calendar(args: CalendarArgs) -> Result<()> {
-    let (first_night, last_night) = resolve_range(&args.range)?;
-    let opts = args.block.options(first_night, last_night, false)?;
     if args.per_site && args.out.as_os_str() == "-" {
         bail!("--per-site writes one file per site; expected --out FILE, not -");
     }
-    let (sites, targets) = load(&args.input)?;
+    let (sites, targets, opts) = args.selection.load(false)?;
     let previous = match &args.previous {
         None => Vec::new(),
         Some(p) => {

@@ -119,6 +119,29 @@ enum Format {
     Json,
 }
 
+/// What a run plans: the inputs and their selection, the nights, and how blocks are built and judged.
+#[derive(Args, Debug)]
+struct Selection {
+    #[command(flatten)]
+    input: InputArgs,
+    #[command(flatten)]
+    range: RangeArgs,
+    #[command(flatten)]
+    block: BlockArgs,
+}
+
+impl Selection {
+    /// The sites, the targets and the plan options of the run (unobservable events listed or not).
+    fn load(&self, include_unobservable: bool) -> Result<(Vec<Site>, Vec<Target>, PlanOptions)> {
+        let (first_night, last_night) = resolve_range(&self.range)?;
+        let opts = self
+            .block
+            .options(first_night, last_night, include_unobservable)?;
+        let (sites, targets) = load(&self.input)?;
+        Ok((sites, targets, opts))
+    }
+}
+
 /// How blocks are built and judged.
 #[derive(Args, Debug)]
 struct BlockArgs {

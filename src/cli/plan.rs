@@ -5,11 +5,7 @@ use super::*;
 #[derive(Args, Debug)]
 pub(super) struct PlanArgs {
     #[command(flatten)]
-    pub(super) input: InputArgs,
-    #[command(flatten)]
-    pub(super) range: RangeArgs,
-    #[command(flatten)]
-    pub(super) block: BlockArgs,
+    pub(super) selection: Selection,
     /// Also list transits that cannot be observed, with the reasons
     #[arg(long)]
     pub(super) include_unobservable: bool,
@@ -18,11 +14,7 @@ pub(super) struct PlanArgs {
 }
 
 pub(super) fn run_plan(args: PlanArgs) -> Result<()> {
-    let (first_night, last_night) = resolve_range(&args.range)?;
-    let opts = args
-        .block
-        .options(first_night, last_night, args.include_unobservable)?;
-    let (sites, targets) = load(&args.input)?;
+    let (sites, targets, opts) = args.selection.load(args.include_unobservable)?;
     if args.output.format == Format::Csv {
         return stream_plan_csv(&sites, &targets, &opts, args.output.out.as_deref());
     }

@@ -73,11 +73,7 @@ impl ChoiceArgs {
 #[derive(Args, Debug)]
 pub(super) struct ScheduleArgs {
     #[command(flatten)]
-    pub(super) input: InputArgs,
-    #[command(flatten)]
-    pub(super) range: RangeArgs,
-    #[command(flatten)]
-    pub(super) block: BlockArgs,
+    pub(super) selection: Selection,
     #[command(flatten)]
     pub(super) choice: ChoiceArgs,
     #[command(flatten)]
@@ -117,9 +113,7 @@ pub(super) fn make_schedule(
 }
 
 pub(super) fn run_schedule(args: ScheduleArgs) -> Result<()> {
-    let (first_night, last_night) = resolve_range(&args.range)?;
-    let opts = args.block.options(first_night, last_night, false)?;
-    let (sites, targets) = load(&args.input)?;
+    let (sites, targets, opts) = args.selection.load(false)?;
     let (tels, chosen) = make_schedule(&sites, &targets, &opts, &args.choice)?;
     let weights = args.choice.weights();
     let text = match args.output.format {

@@ -58,6 +58,24 @@ pub enum FitError {
     BadSigma(usize, f64),
 }
 
+/// Reduced chi-square (NaN with no degrees of freedom) and the factor applied to the sigmas: its square root
+/// when it exceeds 1, else 1 (common practice, no source).
+fn chi2_scale(chi2: f64, dof: usize) -> (f64, f64) {
+    let reduced = if dof > 0 { chi2 / dof as f64 } else { f64::NAN };
+    (reduced, if reduced > 1.0 { reduced.sqrt() } else { 1.0 })
+}
+
+/// The first point whose 1-sigma error is not a positive finite number, as an error.
+fn check_sigmas(points: &[TimingPoint]) -> Result<(), FitError> {
+    match points
+        .iter()
+        .position(|p| !(p.sigma_days > 0.0 && p.sigma_days.is_finite()))
+    {
+        Some(i) => Err(FitError::BadSigma(i + 1, points[i].sigma_days)),
+        None => Ok(()),
+    }
+}
+
 /// Weighted linear least-squares fit of Tc(n) = T_ref + (n - n_ref) P.
 ///
 /// Given: points (epoch, time, sigma > 0); `ref_epoch` to force the reference epoch (otherwise the rounded
@@ -68,11 +86,7 @@ pub fn fit_linear_ephemeris(
     points: &[TimingPoint],
     ref_epoch: Option<i64>,
 ) -> Result<LinearFit, FitError> {
-    for (i, p) in points.iter().enumerate() {
-        if !(p.sigma_days > 0.0 && p.sigma_days.is_finite()) {
-            return Err(FitError::BadSigma(i + 1, p.sigma_days));
-        }
-    }
+    check_sigmas(points)?;
     let mut epochs: Vec<i64> = points.iter().map(|p| p.epoch).collect();
     epochs.sort_unstable();
     epochs.dedup();
@@ -123,12 +137,7 @@ pub fn fit_linear_ephemeris(
         .map(|(r, p)| (r / p.sigma_days).powi(2))
         .sum();
     let dof = points.len() - 2;
-    let reduced_chi2 = if dof > 0 { chi2 / dof as f64 } else { f64::NAN };
-    let sigma_scale = if reduced_chi2 > 1.0 {
-        reduced_chi2.sqrt()
-    } else {
-        1.0
-    };
+    let (reduced_chi2, sigma_scale) = chi2_scale(chi2, dof);
     let k2 = sigma_scale * sigma_scale;
     Ok(LinearFit {
         ref_epoch: n_ref,
@@ -215,11 +224,7 @@ pub fn fit_with_prior(
     prior: &Prior,
     ref_epoch: Option<i64>,
 ) -> Result<LinearFit, FitError> {
-    for (i, p) in points.iter().enumerate() {
-        if !(p.sigma_days > 0.0 && p.sigma_days.is_finite()) {
-            return Err(FitError::BadSigma(i + 1, p.sigma_days));
-        }
-    }
+    check_sigmas(points)?;
     let (lambda, n_prior) = prior.precision();
     let w: Vec<f64> = points
         .iter()
@@ -289,12 +294,7 @@ pub fn fit_with_prior(
         .map(|a| (0..2).map(|b| rp[a] * lambda[a][b] * rp[b]).sum::<f64>())
         .sum::<f64>();
     let dof = (points.len() + n_prior).saturating_sub(2);
-    let reduced_chi2 = if dof > 0 { chi2 / dof as f64 } else { f64::NAN };
-    let sigma_scale = if reduced_chi2 > 1.0 {
-        reduced_chi2.sqrt()
-    } else {
-        1.0
-    };
+    let (reduced_chi2, sigma_scale) = chi2_scale(chi2, dof);
     let k2 = sigma_scale * sigma_scale;
     let n_ref = ref_epoch.unwrap_or(n_c.round() as i64);
     let d = n_ref as f64 - n_c;

@@ -103,6 +103,16 @@ fn clock_label(
     format!("{} ({})", zones.join(" then "), site.tz.name())
 }
 
+/// Let only the last column of `table` wrap: every other column keeps its content width.
+fn last_column_wraps(table: &mut comfy_table::Table) {
+    let last = table.column_count() - 1;
+    for (i, col) in table.column_iter_mut().enumerate() {
+        if i != last {
+            col.set_constraint(comfy_table::ColumnConstraint::ContentWidth);
+        }
+    }
+}
+
 /// The table style of every terminal table: a rule under the header and column separators, no outer frame
 /// (comfy-table preset string), columns padded by one space on the right.
 fn styled_table(

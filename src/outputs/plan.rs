@@ -238,12 +238,7 @@ fn events_table(events: &[Event], site: &Site, targets: &[Target], utc: bool) ->
         previous_night = Some(e.night_of);
         table.add_row(event_row(e, night_cell, site, targets, utc));
     }
-    let last = table.column_count() - 1;
-    for (i, col) in table.column_iter_mut().enumerate() {
-        if i != last {
-            col.set_constraint(comfy_table::ColumnConstraint::ContentWidth);
-        }
-    }
+    super::last_column_wraps(&mut table);
     table.to_string()
 }
 

@@ -160,9 +160,9 @@ pub fn schedule_table(
             prev = Some(e.night_of);
             let note = match c.pair {
                 Some((other, cov)) => format!(
-                    "paired with {} for {:.0}% together",
+                    "paired with {} for {} together",
                     tel_label(tels, sites, other),
-                    cov * 100.0
+                    super::percent_floor(cov)
                 ),
                 None => String::new(),
             };
