@@ -4,11 +4,9 @@
 
 mod common;
 
-use dipwatch::astro::barycentric::TimeSystem;
 use dipwatch::astro::sky::sun_alt_deg;
 use dipwatch::astro::time::JdUtc;
-use dipwatch::engine::plan::{nights_at, plan, PlanOptions};
-use dipwatch::ephemeris::Ephemeris;
+use dipwatch::engine::plan::{nights_at, plan};
 use dipwatch::inputs::sites::{parse_sites, Site};
 use dipwatch::inputs::targets::Target;
 use proptest::prelude::*;
@@ -43,27 +41,14 @@ fn site(lat: f64, lon: f64, zone: &str, darkness: f64) -> Site {
 }
 
 fn target(ra: f64, dec: f64, period: f64, phase: f64) -> Target {
-    Target {
-        name: "Random b".into(),
-        ra_deg: ra,
-        dec_deg: dec,
-        ephemeris: Ephemeris {
-            t0: 2_461_000.0 + phase * period,
-            t0_sigma_days: 0.001,
-            period_days: period,
-            period_sigma_days: 1e-6,
-            cov_t0_period_days2: 0.0,
-            system: TimeSystem::BjdTdb,
-        },
-        t14_hours: 2.5,
-        depth_ppt: Some(5.0),
-        mag: None,
-        priority: 1.0,
-        notes: String::new(),
-        pm_ra_cosdec_mas_per_yr: 0.0,
-        pm_dec_mas_per_yr: 0.0,
-        coord_epoch_jyear: 2000.0,
-    }
+    common::plain_target(
+        "Random b",
+        ra,
+        dec,
+        2_461_000.0 + phase * period,
+        period,
+        2.5,
+    )
 }
 
 /// The highest Sun altitude sampled every minute over [start, end], deg.
@@ -106,16 +91,8 @@ proptest! {
                     night.night_of, ZONES[zone]);
             }
         }
-        let opts = PlanOptions {
-            first_night: first,
-            last_night: last,
-            sigma_k: 1.0,
-            baseline_before_min: 30.0,
-            baseline_after_min: 30.0,
-            min_coverage: 0.0,
-            min_in_transit_min: 0.0,
-            include_unobservable: false,
-        };
+        let mut opts = common::opts(first, last);
+        opts.include_unobservable = false;
         let p = plan(std::slice::from_ref(&s), &[target(ra, dec, period, phase)], &opts);
         for e in &p.sites[0].events {
             let run = e.usable.expect("an observable event has a usable run");

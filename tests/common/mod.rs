@@ -106,3 +106,35 @@ pub fn opts(first: NaiveDate, last: NaiveDate) -> PlanOptions {
 pub fn date(y: i32, m: u32, d: u32) -> NaiveDate {
     NaiveDate::from_ymd_opt(y, m, d).unwrap()
 }
+
+/// A target with a plain BJD_TDB ephemeris: T0 +- 0.001 d, P +- 1e-6 d, depth 5 ppt, priority 1.
+pub fn plain_target(
+    name: &str,
+    ra_deg: f64,
+    dec_deg: f64,
+    t0: f64,
+    period_days: f64,
+    t14_hours: f64,
+) -> Target {
+    Target {
+        name: name.into(),
+        ra_deg,
+        dec_deg,
+        ephemeris: Ephemeris {
+            t0,
+            t0_sigma_days: 0.001,
+            period_days,
+            period_sigma_days: 1e-6,
+            cov_t0_period_days2: 0.0,
+            system: TimeSystem::BjdTdb,
+        },
+        t14_hours,
+        depth_ppt: Some(5.0),
+        mag: None,
+        priority: 1.0,
+        notes: String::new(),
+        pm_ra_cosdec_mas_per_yr: 0.0,
+        pm_dec_mas_per_yr: 0.0,
+        coord_epoch_jyear: 2000.0,
+    }
+}
