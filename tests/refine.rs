@@ -609,3 +609,20 @@ fn two_sided_errors_are_read_conservatively_and_both_sides_are_updated() {
         .unwrap_err()
         .contains("accepted only for t0_sigma_days and period_sigma_days"));
 }
+
+#[test]
+fn every_bad_observed_row_is_reported_not_only_the_first() {
+    let (o, out) = refine_example(
+        "two-bad",
+        "target,tc,tc_sigma_days\nSaltmarsh d,2460807.03503,0.0011\nAmberfall b,2460741.02400,0.0005\nAmberfall b,2460740.12400,0.0005\n",
+        &[],
+    );
+    assert_eq!(o.status.code(), Some(2));
+    let err = String::from_utf8_lossy(&o.stderr);
+    assert!(
+        err.contains("obs.csv:2: Saltmarsh d") && err.contains("obs.csv:3: Amberfall b"),
+        "{err}"
+    );
+    assert_eq!(err.matches("dipwatch: ").count(), 2, "{err}");
+    assert!(!out.exists());
+}

@@ -28,6 +28,30 @@ struct Frame {
     tt_minus_utc_days: f64,
 }
 
+/// The Moon at a site at one instant (from [`SkyTables::moon_topo`]).
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct MoonAt {
+    /// Topocentric apparent place.
+    pub place: ApparentPlace,
+    /// Geometric altitude, deg.
+    pub alt_deg: f64,
+    /// Azimuth, deg (north 0, east 90).
+    pub az_deg: f64,
+}
+
+/// The Sun and the Moon at a site at one instant (from [`SkyTables::sun_moon`]).
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct SunMoonSky {
+    /// Sun altitude, deg.
+    pub sun_alt_deg: f64,
+    /// Topocentric apparent place of the Moon.
+    pub moon: ApparentPlace,
+    /// Moon geometric altitude, deg.
+    pub moon_alt_deg: f64,
+    /// Moon illuminated fraction, 0-1.
+    pub moon_illum: f64,
+}
+
 /// Tables covering a span of UTC Julian Dates.
 #[derive(Debug, Clone)]
 pub struct SkyTables {
@@ -173,12 +197,16 @@ impl SkyTables {
         }
     }
 
-    /// Topocentric place of the Moon and its (altitude deg, azimuth deg) at a site.
-    pub fn moon_topo(&self, t: f64, obs: &Observer) -> (ApparentPlace, f64, f64) {
+    /// Topocentric place of the Moon and its altitude and azimuth at a site, at UTC JD `t`.
+    pub fn moon_topo(&self, t: f64, obs: &Observer) -> MoonAt {
         let last = self.last_rad(t, obs.lon_rad);
         let topo = topocentric(&self.moon_geocentric(t), obs, last);
         let (alt, az) = alt_az_from_hadec(last - topo.ra_rad, topo.dec_rad, obs.lat_rad);
-        (topo, alt.to_degrees(), az.to_degrees())
+        MoonAt {
+            place: topo,
+            alt_deg: alt.to_degrees(),
+            az_deg: az.to_degrees(),
+        }
     }
 
     /// Illuminated fraction of the Moon, 0-1.
@@ -186,9 +214,9 @@ impl SkyTables {
         moon_illuminated_fraction(&self.sun(t), &self.moon_geocentric(t))
     }
 
-    /// The Sun's altitude (deg), the Moon's topocentric place and altitude (deg) and its illuminated
-    /// fraction at one instant, computing the Sun and the Moon once.
-    pub fn sun_moon(&self, t: f64, obs: &Observer) -> (f64, ApparentPlace, f64, f64) {
+    /// The Sun's altitude, the Moon's topocentric place and altitude and its illuminated fraction at UTC JD `t`,
+    /// computing the Sun and the Moon once.
+    pub fn sun_moon(&self, t: f64, obs: &Observer) -> SunMoonSky {
         let last = self.last_rad(t, obs.lon_rad);
         let sun = self.sun(t);
         let sun_alt =
@@ -199,12 +227,12 @@ impl SkyTables {
         let moon_alt =
             crate::astro::frames::alt_from_hadec(last - topo.ra_rad, topo.dec_rad, obs.lat_rad)
                 .to_degrees();
-        (
-            sun_alt,
-            topo,
-            moon_alt,
-            moon_illuminated_fraction(&sun, &geo),
-        )
+        SunMoonSky {
+            sun_alt_deg: sun_alt,
+            moon: topo,
+            moon_alt_deg: moon_alt,
+            moon_illum: moon_illuminated_fraction(&sun, &geo),
+        }
     }
 }
 
@@ -227,7 +255,8 @@ mod tests {
                 (tables.sun_alt_deg(t, &obs) - direct.sun_alt_deg).abs() < TOL_DEG,
                 "Sun at {t}"
             );
-            let (_, malt, maz) = tables.moon_topo(t, &obs);
+            let m = tables.moon_topo(t, &obs);
+            let (malt, maz) = (m.alt_deg, m.az_deg);
             assert!(
                 (malt - direct.moon_alt_deg).abs() < TOL_DEG,
                 "Moon alt at {t}: {malt} vs {}",

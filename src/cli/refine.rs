@@ -84,7 +84,7 @@ pub(super) fn refine_observed(
     observations: &[dipwatch::inputs::observed::Observation],
     targets_label: &str,
 ) -> Result<Vec<dipwatch::engine::refine::TargetRefinement>> {
-    use dipwatch::engine::refine::{refine_targets, FitKind, RefineError, RefineOptions};
+    use dipwatch::engine::refine::{refine_targets, FitKind, RefineOptions};
     let observed_label = args
         .observed
         .as_ref()
@@ -100,12 +100,15 @@ pub(super) fn refine_observed(
         epoch_sigmas: args.epoch_sigma,
     };
     let (refinements, skipped) =
-        refine_targets(targets, observations, &opts).map_err(|e| match e {
-            RefineError::Fit { .. } => anyhow::anyhow!("{e}"),
-            _ => anyhow::anyhow!(
-                "{observed_label}:{}",
-                e.to_string().trim_start_matches("line ")
-            ),
+        refine_targets(targets, observations, &opts).map_err(|errors| {
+            let lines: Vec<String> = errors
+                .iter()
+                .map(|e| match e.line() {
+                    Some(line) => format!("{observed_label}:{line}: {e}"),
+                    None => e.to_string(),
+                })
+                .collect();
+            anyhow::anyhow!("{}", lines.join("\ndipwatch: "))
         })?;
     if !observations.is_empty() && skipped.len() == observations.len() {
         let names: Vec<String> = skipped.iter().map(|s| format!("{:?}", s.target)).collect();

@@ -158,7 +158,7 @@ pub fn night_almanac(site: &Site, night_of: NaiveDate) -> NightAlmanac {
             SunCrossing::Crosses { .. } => {}
         }
     }
-    let f = |t: f64| tables.moon_topo(t, &site.observer).1 - MOONRISE_TOPO_ALT_DEG;
+    let f = |t: f64| tables.moon_topo(t, &site.observer).alt_deg - MOONRISE_TOPO_ALT_DEG;
     let up = intervals_where_nonnegative(&f, window.start, window.end, 20.0 / 1440.0, &[]);
     let moonrise = up.iter().map(|i| i.start).find(|&t| t > window.start);
     let moonset = up.iter().map(|i| i.end).find(|&t| t < window.end);

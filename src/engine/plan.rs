@@ -530,7 +530,7 @@ fn usable_intervals_on_track(
     }
     if let Some(min_sep) = site.min_moon_sep_deg {
         let f = |t: f64| {
-            let (m, _, _) = tables.moon_topo(t, &site.observer);
+            let m = tables.moon_topo(t, &site.observer).place;
             let (mra, mdec) = (m.ra_rad, m.dec_rad);
             separation_rad(track.ra_rad, track.dec_rad, mra, mdec).to_degrees() - min_sep
         };
@@ -694,7 +694,9 @@ fn evaluate(p: &Pairing<'_>, t: Predicted, night: &Night) -> Option<Event> {
     let alt_in = track.alt_deg(ingress);
     let (alt_mid, az_mid) = track.alt_az_deg(t.mid_utc);
     let alt_eg = track.alt_deg(egress);
-    let (sun_alt, moon_topo, moon_alt, moon_illum) = tables.sun_moon(t.mid_utc, &site.observer);
+    let sky = tables.sun_moon(t.mid_utc, &site.observer);
+    let (sun_alt, moon_topo, moon_alt, moon_illum) =
+        (sky.sun_alt_deg, sky.moon, sky.moon_alt_deg, sky.moon_illum);
     let moon_sep = separation_rad(
         track.ra_rad,
         track.dec_rad,

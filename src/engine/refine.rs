@@ -587,7 +587,7 @@ impl Default for RefineOptions {
 #[derive(Debug, Clone, PartialEq, thiserror::Error)]
 pub enum RefineError {
     /// An observation is more than P/4 from every predicted transit.
-    #[error("line {line}: {target} observed at {tc} is {offset_min:.1} min from the nearest predicted transit, more than a quarter of the period ({quarter_min:.1} min): the epoch is ambiguous; check the time and its time system, or the catalogue period")]
+    #[error("{target} observed at {tc} is {offset_min:.1} min from the nearest predicted transit, more than a quarter of the period ({quarter_min:.1} min): the epoch is ambiguous; check the time and its time system, or the catalogue period")]
     Ambiguous {
         /// Line in the observed file.
         line: usize,
@@ -601,7 +601,7 @@ pub enum RefineError {
         quarter_min: f64,
     },
     /// An observation is many combined sigmas from its predicted transit.
-    #[error("line {line}: {target} observed at {tc} is {offset_min:+.1} min from its predicted transit (epoch {epoch}), {n_sigma:.1} combined sigma (prediction +-{pred_sigma_min:.1} min, observation +-{obs_sigma_min:.1} min); expected within {limit} sigma: check the time, its time system and the catalogue ephemeris, or pass --epoch-sigma N if the catalogue errors are known to be too small")]
+    #[error("{target} observed at {tc} is {offset_min:+.1} min from its predicted transit (epoch {epoch}), {n_sigma:.1} combined sigma (prediction +-{pred_sigma_min:.1} min, observation +-{obs_sigma_min:.1} min); expected within {limit} sigma: check the time, its time system and the catalogue ephemeris, or pass --epoch-sigma N if the catalogue errors are known to be too small")]
     FarFromPrediction {
         /// Line in the observed file.
         line: usize,
@@ -632,6 +632,18 @@ pub enum RefineError {
     },
 }
 
+impl RefineError {
+    /// The line of the observed file the error is about, if any.
+    pub fn line(&self) -> Option<usize> {
+        match self {
+            RefineError::Ambiguous { line, .. } | RefineError::FarFromPrediction { line, .. } => {
+                Some(*line)
+            }
+            RefineError::Fit { .. } => None,
+        }
+    }
+}
+
 /// Convert a time in `system` to BJD_TDB for a target direction (geocentric: the site term, <= 21 ms, is
 /// dropped because observed-times files do not say where each transit was observed).
 pub fn to_bjd_tdb(system: TimeSystem, value: f64, target: &Target) -> f64 {
@@ -653,21 +665,25 @@ fn epochs_against_catalogue(
     obs: &[&Observation],
     times: &[f64],
     limit: f64,
-) -> Result<Vec<i64>, RefineError> {
-    let epochs = assign_epochs(cat, times).map_err(|(i, off)| RefineError::Ambiguous {
-        line: obs[i].line,
-        target: target.name.clone(),
-        tc: obs[i].tc,
-        offset_min: off * 1440.0,
-        quarter_min: cat.period_days / 4.0 * 1440.0,
-    })?;
+) -> Result<Vec<i64>, Vec<RefineError>> {
     let has_errors = cat.t0_sigma_days > 0.0 || cat.period_sigma_days > 0.0;
-    for (i, &n) in epochs.iter().enumerate() {
-        let off = times[i] - cat.mid_time(n);
+    let mut epochs = Vec::with_capacity(times.len());
+    let mut problems = Vec::new();
+    for (i, &t) in times.iter().enumerate() {
+        let n = ((t - cat.t0) / cat.period_days).round() as i64;
+        let off = t - cat.mid_time(n);
         let pred = cat.sigma_days(n);
         let comb = pred.hypot(obs[i].sigma_days);
-        if has_errors && off.abs() > limit * comb {
-            return Err(RefineError::FarFromPrediction {
+        if off.abs() > cat.period_days / 4.0 {
+            problems.push(RefineError::Ambiguous {
+                line: obs[i].line,
+                target: target.name.clone(),
+                tc: obs[i].tc,
+                offset_min: off * 1440.0,
+                quarter_min: cat.period_days / 4.0 * 1440.0,
+            });
+        } else if has_errors && off.abs() > limit * comb {
+            problems.push(RefineError::FarFromPrediction {
                 line: obs[i].line,
                 target: target.name.clone(),
                 tc: obs[i].tc,
@@ -679,8 +695,13 @@ fn epochs_against_catalogue(
                 limit,
             });
         }
+        epochs.push(n);
     }
-    Ok(epochs)
+    if problems.is_empty() {
+        Ok(epochs)
+    } else {
+        Err(problems)
+    }
 }
 
 /// Observations alone against the catalogue: T at the observations' reference epoch and P, each against the
@@ -710,12 +731,12 @@ fn tension_of(cat: &Ephemeris, obs_fit: Option<&LinearFit>, rows: &[OcRow]) -> T
 /// Both fits are made when possible: the observations with the catalogue ephemeris as a Gaussian prior on
 /// (T0, P) with its covariance ([`fit_with_prior`]), and the observations alone ([`fit_linear_ephemeris`]);
 /// `opts.fit` chooses the one reported as refined. Observations of targets not in `targets` are returned as
-/// skipped. Returns the refinements in target order, or the first problem (naming its line).
+/// skipped. Returns the refinements in target order, or every problem (each naming its line), by line.
 pub fn refine_targets(
     targets: &[Target],
     observations: &[Observation],
     opts: &RefineOptions,
-) -> Result<(Vec<TargetRefinement>, Vec<Skipped>), RefineError> {
+) -> Result<(Vec<TargetRefinement>, Vec<Skipped>), Vec<RefineError>> {
     let mut by_target: Vec<Vec<&Observation>> = vec![Vec::new(); targets.len()];
     let mut skipped = Vec::new();
     for o in observations {
@@ -731,13 +752,22 @@ pub fn refine_targets(
         }
     }
     let mut out = Vec::new();
+    let mut problems = Vec::new();
     for (ti, obs) in by_target.iter().enumerate() {
         if obs.is_empty() {
             continue;
         }
-        out.push(refine_one(ti, &targets[ti], obs, opts)?);
+        match refine_one(ti, &targets[ti], obs, opts) {
+            Ok(r) => out.push(r),
+            Err(mut e) => problems.append(&mut e),
+        }
     }
-    Ok((out, skipped))
+    if problems.is_empty() {
+        Ok((out, skipped))
+    } else {
+        problems.sort_by_key(|e| e.line());
+        Err(problems)
+    }
 }
 
 fn refine_one(
@@ -745,7 +775,7 @@ fn refine_one(
     target: &Target,
     obs: &[&Observation],
     opts: &RefineOptions,
-) -> Result<TargetRefinement, RefineError> {
+) -> Result<TargetRefinement, Vec<RefineError>> {
     let cat = &target.ephemeris;
     let cat_bjd = Ephemeris {
         t0: to_bjd_tdb(cat.system, cat.t0, target),
@@ -768,9 +798,11 @@ fn refine_one(
             label: o.source.clone(),
         })
         .collect();
-    let fit_err = |source| RefineError::Fit {
-        target: target.name.clone(),
-        source,
+    let fit_err = |source| {
+        vec![RefineError::Fit {
+            target: target.name.clone(),
+            source,
+        }]
     };
     let with_prior = fit_with_prior(&points, &Prior::of(&cat_bjd), None);
     let observations_only = fit_linear_ephemeris(&points, None);

@@ -165,7 +165,7 @@ pub fn night_track(
         .map(|i| {
             let t = start + (end - start) * i as f64 / n as f64;
             let (alt, az) = track.alt_az_deg(t);
-            let (_, _, moon_alt, _) = tables.sun_moon(t, &site.observer);
+            let moon_alt = tables.sun_moon(t, &site.observer).moon_alt_deg;
             TrackSample {
                 utc: t,
                 target_alt_deg: alt,

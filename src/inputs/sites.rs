@@ -420,8 +420,10 @@ fn parse_extras(ctx: &SiteCtx<'_>, r: &RawSite, problems: &mut Problems) -> Opti
             min_alt_deg: None,
             max_alt_deg: None,
         }],
-        Some(v) => parse_telescopes(v.get_ref()).unwrap_or_else(|msg| {
-            problems.push(ctx.at(&v.span()), "telescopes", msg);
+        Some(v) => parse_telescopes(v.get_ref()).unwrap_or_else(|msgs| {
+            for msg in msgs {
+                problems.push(ctx.at(&v.span()), "telescopes", msg);
+            }
             ok = false;
             Vec::new()
         }),
@@ -540,7 +542,8 @@ fn parse_site(
     })
 }
 
-fn parse_telescopes(v: &toml::Value) -> Result<Vec<Telescope>, String> {
+/// The telescopes of a site: a count, or a list of tables. Every bad item is reported.
+fn parse_telescopes(v: &toml::Value) -> Result<Vec<Telescope>, Vec<String>> {
     let expected =
         "a count (1-20) or a list of {name = \"...\", min_alt_deg = ..., max_alt_deg = ...} tables";
     match v {
@@ -553,47 +556,65 @@ fn parse_telescopes(v: &toml::Value) -> Result<Vec<Telescope>, String> {
             .collect()),
         toml::Value::Array(items) if !items.is_empty() => {
             let mut out: Vec<Telescope> = Vec::new();
+            let mut problems = Vec::new();
             for (i, item) in items.iter().enumerate() {
-                let table = item
-                    .as_table()
-                    .ok_or_else(|| format!("item {}: found {item}, expected {expected}", i + 1))?;
-                if let Some(k) = table
-                    .keys()
-                    .find(|k| !["name", "min_alt_deg", "max_alt_deg"].contains(&k.as_str()))
-                {
-                    return Err(format!(
-                        "item {}: unknown key {k:?}; expected name, min_alt_deg and max_alt_deg",
-                        i + 1
-                    ));
+                match parse_telescope(item, i, &out, expected) {
+                    Ok(t) => out.push(t),
+                    Err(m) => problems.push(m),
                 }
-                let name = match table.get("name") {
-                    None => format!("T{}", i + 1),
-                    Some(toml::Value::String(s)) if !s.trim().is_empty() => s.trim().to_string(),
-                    Some(other) => {
-                        return Err(format!(
-                            "item {}: name: found {other}, expected text",
-                            i + 1
-                        ))
-                    }
-                };
-                let min_alt_deg = telescope_limit(table, "min_alt_deg", -5.0, 89.0, i)?;
-                let max_alt_deg = telescope_limit(table, "max_alt_deg", 30.0, 90.0, i)?;
-                if out.iter().any(|t| t.name.eq_ignore_ascii_case(&name)) {
-                    return Err(format!(
-                        "item {}: found the name {name:?} twice; expected unique telescope names",
-                        i + 1
-                    ));
-                }
-                out.push(Telescope {
-                    name,
-                    min_alt_deg,
-                    max_alt_deg,
-                });
             }
-            Ok(out)
+            if problems.is_empty() {
+                Ok(out)
+            } else {
+                Err(problems)
+            }
         }
-        other => Err(format!("found {other}, expected {expected}")),
+        other => Err(vec![format!("found {other}, expected {expected}")]),
     }
+}
+
+/// Telescope item `i` (0-based) of a list, unique among those `before` it.
+fn parse_telescope(
+    item: &toml::Value,
+    i: usize,
+    before: &[Telescope],
+    expected: &str,
+) -> Result<Telescope, String> {
+    let table = item
+        .as_table()
+        .ok_or_else(|| format!("item {}: found {item}, expected {expected}", i + 1))?;
+    if let Some(k) = table
+        .keys()
+        .find(|k| !["name", "min_alt_deg", "max_alt_deg"].contains(&k.as_str()))
+    {
+        return Err(format!(
+            "item {}: unknown key {k:?}; expected name, min_alt_deg and max_alt_deg",
+            i + 1
+        ));
+    }
+    let name = match table.get("name") {
+        None => format!("T{}", i + 1),
+        Some(toml::Value::String(s)) if !s.trim().is_empty() => s.trim().to_string(),
+        Some(other) => {
+            return Err(format!(
+                "item {}: name: found {other}, expected text",
+                i + 1
+            ))
+        }
+    };
+    let min_alt_deg = telescope_limit(table, "min_alt_deg", -5.0, 89.0, i)?;
+    let max_alt_deg = telescope_limit(table, "max_alt_deg", 30.0, 90.0, i)?;
+    if before.iter().any(|t| t.name.eq_ignore_ascii_case(&name)) {
+        return Err(format!(
+            "item {}: found the name {name:?} twice; expected unique telescope names",
+            i + 1
+        ));
+    }
+    Ok(Telescope {
+        name,
+        min_alt_deg,
+        max_alt_deg,
+    })
 }
 
 /// An optional altitude limit `key` of telescope item `i` (0-based), within lo..hi deg.
@@ -784,6 +805,22 @@ horizon = [[0, 10], [180, 20]]
             msg.contains("s.toml:7: timezone: found \"UTC-10\"") && msg.contains("Etc/GMT+10"),
             "{msg}"
         );
+    }
+
+    #[test]
+    fn every_bad_telescope_is_reported() {
+        let text = format!(
+            "{GOOD}telescopes = [{{ name = \"a\", min_alt_deg = 95 }}, {{ name = \"b\", colour = 1 }}, {{ name = \"c\" }}, {{ name = \"C\" }}]\n"
+        );
+        let err = parse_sites("s.toml", &text).unwrap_err();
+        let msg = err.to_string();
+        assert_eq!(err.problems.len(), 3, "{msg}");
+        assert!(
+            msg.contains("item 1: min_alt_deg: found 95")
+                && msg.contains("item 2: unknown key \"colour\""),
+            "{msg}"
+        );
+        assert!(msg.contains("item 4: found the name \"C\" twice"), "{msg}");
     }
 
     #[test]
