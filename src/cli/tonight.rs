@@ -40,34 +40,16 @@ pub(super) fn run_tonight(args: TonightArgs) -> Result<()> {
     let opts = args.block.options(date, date, true)?;
     // The countdown only makes sense for the night in progress or about to begin.
     let now = (date == current_night).then_some(now_jd);
-    let sites = vec![site];
-    let result = plan(&sites, &targets, &opts);
-    let events = &result.sites[0].events;
-    let almanac = dipwatch::engine::almanac::night_almanac(&sites[0], date);
-    let asked: Vec<usize> = if args.target_names.is_empty() {
-        Vec::new()
-    } else {
-        (0..targets.len()).collect()
-    };
-    let absences: Vec<report::Absence> = asked
-        .iter()
-        .filter(|&&ti| !events.iter().any(|e| e.target_index == ti))
-        .map(|&ti| report::Absence::NoTransit {
-            target_index: ti,
-            next_mid_utc: dipwatch::engine::plan::next_mid_after(
-                &targets[ti],
-                &sites[0],
-                almanac.window.end,
-            ),
-        })
-        .collect();
+    let night = dipwatch::engine::tonight::tonight(
+        &site,
+        &targets,
+        &opts,
+        !args.target_names.is_empty(),
+        now,
+    );
     let text = match args.format {
-        TextFormat::Text => report::tonight_text(
-            &sites[0], &almanac, events, &targets, &asked, &absences, now, args.utc,
-        ),
-        TextFormat::Json => report::tonight_json(
-            &sites[0], &almanac, events, &sites, &targets, &absences, now,
-        ),
+        TextFormat::Text => report::tonight_text(&night, &targets, args.utc),
+        TextFormat::Json => report::tonight_json(&night, std::slice::from_ref(&site), &targets),
     };
     emit(&text, None)
 }

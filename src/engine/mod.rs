@@ -5,4 +5,5 @@ pub mod almanac;
 pub mod plan;
 pub mod refine;
 pub mod schedule;
+pub mod tonight;
 pub mod track;

@@ -20,7 +20,7 @@ pub use refine::{
     refine_csv, refine_json, refine_text, rewrite_targets_csv, stale_status, tension_text,
 };
 pub use schedule::{schedule_csv, schedule_json, schedule_table, ScheduledRow, SCHEDULE_COLUMNS};
-pub use tonight::{countdown, tonight_json, tonight_text, Absence};
+pub use tonight::{countdown, tonight_json, tonight_text};
 
 use crate::astro::civil::{local_hhmm, zone_abbreviation};
 use crate::inputs::sites::Site;

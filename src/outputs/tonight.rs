@@ -4,20 +4,9 @@ use super::{hhmm, round, zone_label};
 use crate::astro::atmosphere::airmass_kasten_young;
 use crate::engine::almanac::NightAlmanac;
 use crate::engine::plan::{Event, Verdict};
+use crate::engine::tonight::{Absence, Tonight};
 use crate::inputs::sites::Site;
 use crate::inputs::targets::Target;
-
-/// Why a target asked for by name has nothing to show tonight.
-#[derive(Debug, Clone, PartialEq)]
-pub enum Absence {
-    /// No transit during this night; the next mid-transit is at this UTC JD.
-    NoTransit {
-        /// Target index.
-        target_index: usize,
-        /// Next predicted mid-transit, UTC JD.
-        next_mid_utc: f64,
-    },
-}
 
 fn airmass_text(alt_deg: f64) -> String {
     let x = airmass_kasten_young(alt_deg);
@@ -107,17 +96,8 @@ fn header(site: &Site, a: &NightAlmanac, utc: bool) -> String {
 ///
 /// `events` are the night's events (observable and not); `now` is the current UTC JD when the report is for the
 /// night in progress or about to begin (adds "starts in ..."); `absences` explain named targets with no transit.
-#[allow(clippy::too_many_arguments)]
-pub fn tonight_text(
-    site: &Site,
-    almanac: &NightAlmanac,
-    events: &[Event],
-    targets: &[Target],
-    asked: &[usize],
-    absences: &[Absence],
-    now: Option<f64>,
-    utc: bool,
-) -> String {
+pub fn tonight_text(night: &Tonight<'_>, targets: &[Target], utc: bool) -> String {
+    let (site, almanac, events, now) = (night.site, &night.almanac, &night.events, night.now_utc);
     let mut out = header(site, almanac, utc);
     if let Some(n) = now {
         out.push_str(&format!(
@@ -134,7 +114,15 @@ pub fn tonight_text(
         push_event(&mut out, e, &targets[e.target_index], site, now, utc);
     }
     // Named targets: say why nothing is shown.
-    push_explanations(&mut out, asked, events, absences, targets, site, utc);
+    push_explanations(
+        &mut out,
+        &night.asked,
+        events,
+        &night.absences,
+        targets,
+        site,
+        utc,
+    );
     out
 }
 
@@ -269,15 +257,14 @@ fn push_explanations(
 }
 
 /// JSON for one night: `{"site", "night": {...}, "events": [...], "absent": [...]}`.
-pub fn tonight_json(
-    site: &Site,
-    almanac: &NightAlmanac,
-    events: &[Event],
-    sites: &[Site],
-    targets: &[Target],
-    absences: &[Absence],
-    now: Option<f64>,
-) -> String {
+pub fn tonight_json(night: &Tonight<'_>, sites: &[Site], targets: &[Target]) -> String {
+    let (site, almanac, events, absences, now) = (
+        night.site,
+        &night.almanac,
+        &night.events,
+        &night.absences,
+        night.now_utc,
+    );
     let recs: Vec<serde_json::Value> = events
         .iter()
         .map(|e| {

@@ -1,0 +1,76 @@
+//! One night at one site for the `tonight` report: the almanac, every event of the night (observable or not),
+//! and for targets asked for by name with no transit that night, when the next one is.
+
+use super::almanac::{night_almanac, NightAlmanac};
+use super::plan::{next_mid_after, plan, Event, PlanOptions};
+use crate::inputs::sites::Site;
+use crate::inputs::targets::Target;
+
+/// Why a target asked for by name has nothing to show tonight.
+#[derive(Debug, Clone, PartialEq)]
+pub enum Absence {
+    /// No transit during this night; the next mid-transit is at this UTC JD.
+    NoTransit {
+        /// Target index.
+        target_index: usize,
+        /// Next predicted mid-transit, UTC JD.
+        next_mid_utc: f64,
+    },
+}
+
+/// Everything the `tonight` report shows.
+#[derive(Debug, Clone)]
+pub struct Tonight<'a> {
+    /// The site.
+    pub site: &'a Site,
+    /// Sun and Moon events of the night.
+    pub almanac: NightAlmanac,
+    /// The night's events, observable and not.
+    pub events: Vec<Event>,
+    /// Targets asked for by name (indices), whose absence is explained.
+    pub asked: Vec<usize>,
+    /// Asked-for targets with no transit this night.
+    pub absences: Vec<Absence>,
+    /// The current instant (UTC JD) when the report is for the night in progress or about to begin.
+    pub now_utc: Option<f64>,
+}
+
+/// The night of `opts.first_night` at `site` for `targets` (all of them `asked` by name when `named`), with
+/// `now_utc` for the countdown.
+pub fn tonight<'a>(
+    site: &'a Site,
+    targets: &[Target],
+    opts: &PlanOptions,
+    named: bool,
+    now_utc: Option<f64>,
+) -> Tonight<'a> {
+    let result = plan(std::slice::from_ref(site), targets, opts);
+    let events = result
+        .sites
+        .into_iter()
+        .next()
+        .map(|sp| sp.events)
+        .unwrap_or_default();
+    let almanac = night_almanac(site, opts.first_night);
+    let asked: Vec<usize> = if named {
+        (0..targets.len()).collect()
+    } else {
+        Vec::new()
+    };
+    let absences = asked
+        .iter()
+        .filter(|&&ti| !events.iter().any(|e| e.target_index == ti))
+        .map(|&ti| Absence::NoTransit {
+            target_index: ti,
+            next_mid_utc: next_mid_after(&targets[ti], site, almanac.window.end),
+        })
+        .collect();
+    Tonight {
+        site,
+        almanac,
+        events,
+        asked,
+        absences,
+        now_utc,
+    }
+}
