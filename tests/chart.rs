@@ -299,3 +299,48 @@ fn night_chart_twilight_edges_are_the_almanac_crossings() {
     assert_eq!(track.twilight.first().unwrap().band.name(), "day");
     assert!(track.twilight.iter().any(|s| s.band.name() == "night"));
 }
+
+#[test]
+fn contact_labels_of_a_short_transit_do_not_collide() {
+    // Glasswater b lasts 1.38 h: at this scale ingress and egress are about 80 px apart, less than a label.
+    let d = temp("short");
+    let out = d.join("n.svg");
+    run(&[
+        "chart",
+        "night",
+        "--sites",
+        &repo("sites.example.toml"),
+        "--targets",
+        &repo("targets.example.csv"),
+        "--site",
+        "Quebrada Lenta",
+        "--target",
+        "Glasswater b",
+        "--date",
+        "2027-03-05",
+        "--out",
+        out.to_str().unwrap(),
+    ]);
+    let text = std::fs::read_to_string(&out).unwrap();
+    let doc = roxmltree::Document::parse(&text).unwrap();
+    let label = |prefix: &str| {
+        doc.descendants()
+            .find(|n| n.has_tag_name("text") && n.text().is_some_and(|t| t.starts_with(prefix)))
+            .map(|n| {
+                let f = |a: &str| n.attribute(a).unwrap().parse::<f64>().unwrap();
+                (
+                    f("x"),
+                    f("y"),
+                    n.text().unwrap().chars().count() as f64 * 7.0,
+                )
+            })
+            .unwrap_or_else(|| panic!("no {prefix} label"))
+    };
+    let (xi, yi, wi) = label("ingress ");
+    let (xe, ye, _) = label("egress ");
+    assert!(xe - xi < wi, "the scenario should be a short transit");
+    assert!(
+        (ye - yi).abs() >= 12.0,
+        "labels overlap: ingress at ({xi}, {yi}), egress at ({xe}, {ye})"
+    );
+}

@@ -72,6 +72,18 @@ fn readme_example_table() {
         out.lines().all(|l| l.chars().count() <= 120),
         "a line is wider than 120 columns:\n{out}"
     );
+    // Table rows: no blank separator rows and no row wrapped onto a second line (a row whose Night, Target and
+    // Verdict cells are all empty is a continuation or a blank).
+    let rows: Vec<&str> = out.lines().filter(|l| l.contains('\u{2502}')).collect();
+    assert!(rows.len() > 20);
+    for r in &rows {
+        let cells: Vec<&str> = r.split('\u{2502}').collect();
+        assert!(
+            !(cells[1].trim().is_empty() && cells[2].trim().is_empty()),
+            "blank or wrapped row:\n{r}\n{out}"
+        );
+    }
+    assert!(out.contains("Verdict: whole = "), "verdict legend missing");
 }
 
 #[test]

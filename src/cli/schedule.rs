@@ -117,7 +117,13 @@ pub(super) fn run_schedule(args: ScheduleArgs) -> Result<()> {
     let (tels, chosen) = make_schedule(&sites, &targets, &opts, &args.choice)?;
     let weights = args.choice.weights();
     let text = match args.output.format {
-        Format::Table => report::schedule_table(&chosen, &tels, &sites, &targets, args.output.utc),
+        Format::Table => report::schedule_table(
+            &chosen,
+            &tels,
+            &sites,
+            &targets,
+            (&weights, args.output.utc),
+        ),
         Format::Csv => report::schedule_csv(&chosen, &tels, &sites, &targets),
         Format::Json => report::schedule_json(
             &chosen,

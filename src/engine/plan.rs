@@ -71,6 +71,18 @@ pub enum Verdict {
 }
 
 impl Verdict {
+    /// The verdict as printed in a table's narrow Verdict column (its legend spells them out).
+    pub fn short_label(self) -> &'static str {
+        match self {
+            Verdict::Whole => "whole",
+            Verdict::WholeShortBaseline => "whole/sb",
+            Verdict::IngressOnly => "ingress",
+            Verdict::EgressOnly => "egress",
+            Verdict::MiddleOnly => "middle",
+            Verdict::NotObservable => "none",
+        }
+    }
+
     /// The verdict as written in every output.
     pub fn label(self) -> &'static str {
         match self {

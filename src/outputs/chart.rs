@@ -252,10 +252,18 @@ fn draw_event(c: &mut NightCanvas, e: &Event, site: &Site, sigma_k: f64) {
         "transit",
     );
     let s = e.sigma_min / 1440.0;
+    // Contact labels are about 7 px per character; on a short transit the egress label goes one line lower so
+    // that the two never overlap.
+    let ingress_label_end = c.xs(e.ingress_utc) + 3.0 + 7.0 * 14.0;
     for (t, label) in [(e.ingress_utc, "ingress"), (e.egress_utc, "egress")] {
         if t < c.start || t > c.end {
             continue;
         }
+        let label_y = if label == "egress" && c.xs(t) < ingress_label_end {
+            c.y0 + 28.0
+        } else {
+            c.y0 + 14.0
+        };
         c.band(
             t - s,
             t + s,
@@ -267,7 +275,7 @@ fn draw_event(c: &mut NightCanvas, e: &Event, site: &Site, sigma_k: f64) {
         c.svg.line(x, y0, x, y1, &stroke, "contact");
         c.svg.text(
             x + 3.0,
-            y0 + 14.0,
+            label_y,
             &format!("{label} {}", local_hhmm(t, site.tz)),
             &format!(r##"fill="{PLUM}" font-size="11""##),
         );

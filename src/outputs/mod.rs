@@ -130,6 +130,12 @@ fn styled_table(
     table
 }
 
+/// The legend of the short verdict labels of the tables.
+pub const VERDICT_LEGEND: &str = "\
+Verdict: whole = ingress to egress with their margins and both baselines; whole/sb = the same with less
+  baseline than asked; ingress, egress = only that contact with its margin; middle = in transit, neither contact;
+  none = not observable.";
+
 /// The first cells of a table row about an event: night (as given), target, verdict, coverage, block, and the
 /// ingress, mid-transit and egress times; shared by the plan and schedule tables.
 fn event_cells(
@@ -143,7 +149,7 @@ fn event_cells(
     vec![
         Cell::new(night),
         Cell::new(target),
-        Cell::new(e.verdict.label()),
+        Cell::new(e.verdict.short_label()),
         Cell::new(percent_floor(e.coverage)).set_alignment(CellAlignment::Right),
         Cell::new(block_text(e, site, utc)),
         Cell::new(format!(

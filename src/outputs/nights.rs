@@ -1,6 +1,6 @@
 //! `nights` outputs: one row per night with the Sun's and Moon's events.
 
-use super::{hhmm, round};
+use super::{hhmm, round, zone_label};
 use crate::astro::civil::rfc3339_utc;
 use crate::engine::almanac::NightAlmanac;
 use crate::inputs::sites::Site;
@@ -125,17 +125,47 @@ pub fn nights_table(site: &Site, nights: &[NightAlmanac], utc: bool) -> String {
         super::clock_label(nights.iter().map(|n| n.window), site, utc),
         site.darkness_alt_deg
     ));
+    let dark_header = format!("Dark {:.0}", site.darkness_alt_deg);
     let mut table = super::styled_table(
         vec![
-            "Night", "Sunset", "Civil", "Naut", "Astro", "Astro", "Naut", "Civil", "Sunrise",
-            "Dark h", "Moonrise", "Moonset", "Moon",
+            "Night",
+            "Sunset",
+            "dusk-6",
+            "dusk-12",
+            "dusk-18",
+            "dawn-18",
+            "dawn-12",
+            "dawn-6",
+            "Sunrise",
+            &dark_header,
+            "Hours",
+            "Moonrise",
+            "Moonset",
+            "Moon",
         ],
         ContentArrangement::Disabled,
     );
+    for col in table.column_iter_mut() {
+        col.set_padding((0, 0));
+    }
     let t = |x: Option<f64>| x.map(|v| hhmm(v, site, utc)).unwrap_or_else(|| "--".into());
+    let mut changes = Vec::new();
     for a in nights {
+        let mut night = a.night_of.format("%a %m-%d").to_string();
+        let (before, after) = (
+            zone_label(a.window.start, site, utc),
+            zone_label(a.window.end, site, utc),
+        );
+        if before != after {
+            night.push('*');
+            changes.push(format!("{} ({before} to {after})", a.night_of));
+        }
+        let dark = a
+            .dark
+            .map(|d| format!("{}-{}", hhmm(d.start, site, utc), hhmm(d.end, site, utc)))
+            .unwrap_or_else(|| "--".into());
         table.add_row(vec![
-            Cell::new(a.night_of.format("%a %Y-%m-%d")),
+            Cell::new(night),
             Cell::new(t(a.sun.dusk)),
             Cell::new(t(a.civil.dusk)),
             Cell::new(t(a.nautical.dusk)),
@@ -144,15 +174,22 @@ pub fn nights_table(site: &Site, nights: &[NightAlmanac], utc: bool) -> String {
             Cell::new(t(a.nautical.dawn)),
             Cell::new(t(a.civil.dawn)),
             Cell::new(t(a.sun.dawn)),
+            Cell::new(dark),
             Cell::new(format!("{:.1}", a.dark_hours)).set_alignment(CellAlignment::Right),
             Cell::new(t(a.moonrise)),
             Cell::new(t(a.moonset)),
             Cell::new(format!("{:.0}%", a.moon_illum * 100.0)).set_alignment(CellAlignment::Right),
         ]);
     }
-    out.push_str(
-        "          dusk: sunset, then the Sun at -6, -12, -18 deg; dawn: the same in reverse\n",
-    );
+    out.push_str(&format!(
+        "  dusk-N, dawn-N: the Sun at -N deg; {dark_header}: the dark interval at this site's level; Moon: lit fraction\n"
+    ));
+    if !changes.is_empty() {
+        out.push_str(&format!(
+            "  * the clocks change during the night of {}; each time is in the offset in force at that moment\n",
+            changes.join(", ")
+        ));
+    }
     out.push_str(&table.to_string());
     out.push('\n');
     let mut notes: Vec<String> = Vec::new();

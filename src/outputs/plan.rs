@@ -83,7 +83,7 @@ fn reason_note(r: Reason) -> &'static str {
         Reason::Daylight => "sun",
         Reason::BelowAltitudeLimit => "low",
         Reason::AboveAltitudeLimit => "high",
-        Reason::BelowHorizonProfile => "horizon",
+        Reason::BelowHorizonProfile => "hor",
         Reason::HourAngleLimit => "HA",
         Reason::MoonTooClose => "moon",
         Reason::CoverageBelowMinimum => "cov",
@@ -93,12 +93,13 @@ fn reason_note(r: Reason) -> &'static str {
 }
 
 const LEGEND: &str = "\
-Notes: flip HH:MM = meridian crossing inside the block (equatorial mounts flip). Limits that cut the block:
-  sun = twilight or daylight, low = below the altitude limit, high = above the mount's highest altitude,
-  horizon = behind the horizon profile, HA = outside the hour-angle limits, moon = too close to the Moon,
-  cov = under the minimum coverage, short = less in-transit time than the minimum, lost = ephemeris lost.
-  Block = the time that can be observed; ~ beside an edge: a limit clips the planned block there.
-  Coverage is rounded down.";
+Moon: its distance from the target and its lit fraction. Notes: flip HH:MM = meridian crossing inside the block
+  (equatorial mounts flip); limits that cut the block: sun = twilight or daylight, low = below the altitude limit,
+  high = above the mount's highest altitude, hor = behind the horizon profile, HA = outside the hour-angle limits,
+  moon = too close to the Moon, cov = under the minimum coverage, short = less in-transit time than the minimum,
+  lost = ephemeris lost.
+Block = the time that can be observed; ~ beside an edge: a limit clips the planned block there. Coverage is
+  rounded down.";
 
 /// The terminal table: one table per site, rows grouped by night, site local time (or UTC), fits 120
 /// columns.
@@ -134,6 +135,8 @@ pub fn plan_table(
     let all = || plan.sites.iter().flat_map(|s| &s.events);
     let n_events = all().count();
     if n_events > 0 {
+        out.push('\n');
+        out.push_str(super::VERDICT_LEGEND);
         out.push('\n');
         out.push_str(LEGEND);
         out.push('\n');
@@ -227,9 +230,6 @@ fn events_table(events: &[Event], site: &Site, targets: &[Target], utc: bool) ->
     }
     let mut previous_night = None;
     for e in events {
-        if previous_night.is_some() && previous_night != Some(e.night_of) {
-            table.add_row(vec![""; 10]);
-        }
         let night_cell = if previous_night != Some(e.night_of) {
             e.night_of.format("%a %m-%d").to_string()
         } else {
@@ -256,7 +256,7 @@ fn event_row(
     }
     let limits: Vec<&str> = e.reasons.iter().map(|r| reason_note(*r)).collect();
     if !limits.is_empty() {
-        notes.push(limits.join(", "));
+        notes.push(limits.join(","));
     }
     let mut cells = super::event_cells(night_cell, &targets[e.target_index].name, e, site, utc);
     cells.extend([
@@ -266,7 +266,7 @@ fn event_row(
             e.alt_ingress_deg, e.alt_mid_deg, e.alt_egress_deg
         )),
         Cell::new(format!(
-            "{:.0}d {:.0}%",
+            "{:.0}\u{b0} {:.0}%",
             e.moon_sep_deg,
             e.moon_illum * 100.0
         )),

@@ -3,7 +3,7 @@
 use super::columns::{
     event_json, insert_json, push_csv_fields, push_header, Column, EventRow, Value, EVENT_COLUMNS,
 };
-use crate::engine::schedule::{Chosen, TelescopeEvents};
+use crate::engine::schedule::{Chosen, ScoreWeights, TelescopeEvents};
 use crate::inputs::sites::Site;
 use crate::inputs::targets::Target;
 use comfy_table::{Cell, CellAlignment, ContentArrangement};
@@ -120,14 +120,17 @@ pub fn schedule_table(
     tels: &[TelescopeEvents],
     sites: &[Site],
     targets: &[Target],
-    utc: bool,
+    (weights, utc): (&ScoreWeights, bool),
 ) -> String {
     let mut out = String::new();
     for (ti, tel) in tels.iter().enumerate() {
         let site = &sites[tel.site_index];
         let rows: Vec<&Chosen> = chosen.iter().filter(|c| c.telescope_index == ti).collect();
+        if ti > 0 {
+            out.push('\n');
+        }
         out.push_str(&format!(
-            "\n{}: {} blocks chosen from {} candidates\n",
+            "{}: {} blocks chosen from {} candidates\n",
             tel_label(tels, sites, ti),
             rows.len(),
             tel.events.iter().filter(|e| e.observable).count()
@@ -149,6 +152,9 @@ pub fn schedule_table(
             ContentArrangement::Dynamic,
         );
         table.set_width(120);
+        for col in table.column_iter_mut() {
+            col.set_padding((0, 0));
+        }
         let mut prev = None;
         for c in rows {
             let e = &c.event;
@@ -160,7 +166,7 @@ pub fn schedule_table(
             prev = Some(e.night_of);
             let note = match c.pair {
                 Some((other, cov)) => format!(
-                    "paired with {} for {} together",
+                    "+ {} = {}",
                     tel_label(tels, sites, other),
                     super::percent_floor(cov)
                 ),
@@ -173,6 +179,14 @@ pub fn schedule_table(
         }
         out.push_str(&table.to_string());
         out.push('\n');
+    }
+    if !chosen.is_empty() {
+        out.push('\n');
+        out.push_str(super::VERDICT_LEGEND);
+        out.push_str(&format!(
+            "\nScore: priority x ({} x coverage + {} x verdict value + {} / airmass at mid-transit + {} x Moon distance/90 deg\n  + {} x timing sigma/30 min); verdict values whole 1, whole/sb 0.8, ingress or egress 0.5, middle 0.2.\n  Higher is better; each telescope-night takes the set of blocks with the highest total.\nNotes: + TELESCOPE = N%: paired with the other contact of the same transit there; together they cover N%.\n",
+            weights.coverage, weights.verdict, weights.airmass, weights.moon, weights.sigma
+        ));
     }
     out
 }
