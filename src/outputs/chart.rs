@@ -476,41 +476,44 @@ fn draw_legend(c: &mut NightCanvas, site: &Site) {
     }
 }
 
-/// Draw a verdict glyph in a cell of size `s` at (x, y).
-fn glyph(svg: &mut Svg, v: Verdict, x: f64, y: f64, s: f64, title: &str) {
+/// One event of the season grid in an `s` x `s` cell at (x, y): the *shape* tells the verdict (a plain frame for
+/// whole, a dashed frame for a short baseline, a heavy left edge for ingress only, a heavy right edge for egress
+/// only, heavy top and bottom edges for middle only) and the fill, rising from the bottom, how much of the
+/// transit is usable (`coverage`, rounded down to a tenth so it never looks fuller than it is). Colour only repeats
+/// the verdict, so the grid reads in greyscale.
+fn glyph(svg: &mut Svg, v: Verdict, coverage: f64, (x, y, s): (f64, f64, f64), title: &str) {
     let t = format!("<title>{}</title>", esc(title));
     let class = format!("event verdict-{}", v.label());
-    let body = match v {
-        Verdict::Whole => format!(
-            r##"<rect x="{x:.1}" y="{y:.1}" width="{s:.1}" height="{s:.1}" fill="{TEAL}"/>"##
-        ),
-        Verdict::WholeShortBaseline => format!(
-            r##"<rect x="{:.1}" y="{:.1}" width="{:.1}" height="{:.1}" fill="white" stroke="{TEAL}" stroke-width="2"/><rect x="{:.1}" y="{:.1}" width="{:.1}" height="{:.1}" fill="{TEAL}"/>"##,
-            x + 1.0,
-            y + 1.0,
-            s - 2.0,
-            s - 2.0,
-            x + s * 0.3,
-            y + s * 0.3,
-            s * 0.4,
-            s * 0.4
-        ),
-        Verdict::IngressOnly => format!(
-            r##"<rect x="{x:.1}" y="{y:.1}" width="{s:.1}" height="{s:.1}" fill="white" stroke="{OCHRE}"/><rect x="{x:.1}" y="{y:.1}" width="{:.1}" height="{s:.1}" fill="{OCHRE}"/>"##,
-            s / 2.0
-        ),
-        Verdict::EgressOnly => format!(
-            r##"<rect x="{x:.1}" y="{y:.1}" width="{s:.1}" height="{s:.1}" fill="white" stroke="{PLUM}"/><rect x="{:.1}" y="{y:.1}" width="{:.1}" height="{s:.1}" fill="{PLUM}"/>"##,
-            x + s / 2.0,
-            s / 2.0
-        ),
-        Verdict::MiddleOnly | Verdict::NotObservable => format!(
-            r##"<rect x="{x:.1}" y="{y:.1}" width="{s:.1}" height="{s:.1}" fill="white" stroke="{SLATE}"/><rect x="{:.1}" y="{:.1}" width="{s:.1}" height="{:.1}" fill="{SLATE}"/>"##,
-            x,
-            y + s * 0.38,
-            s * 0.24
-        ),
+    let colour = match v {
+        Verdict::Whole | Verdict::WholeShortBaseline => TEAL,
+        Verdict::IngressOnly => OCHRE,
+        Verdict::EgressOnly => PLUM,
+        Verdict::MiddleOnly | Verdict::NotObservable => SLATE,
     };
+    let h = s * crate::outputs::floor_to(coverage.clamp(0.0, 1.0), 1);
+    let dash = if v == Verdict::WholeShortBaseline {
+        r##" stroke-dasharray="2,1.5""##
+    } else {
+        ""
+    };
+    let mut body = format!(
+        r##"<rect x="{x:.1}" y="{y:.1}" width="{s:.1}" height="{s:.1}" fill="white" stroke="{colour}" stroke-width="1"{dash}/><rect class="fill" x="{x:.1}" y="{:.1}" width="{s:.1}" height="{h:.1}" fill="{colour}" fill-opacity="0.8"/>"##,
+        y + s - h
+    );
+    let edge = |x1: f64, y1: f64, x2: f64, y2: f64| {
+        format!(
+            r##"<line x1="{x1:.1}" y1="{y1:.1}" x2="{x2:.1}" y2="{y2:.1}" stroke="{INK}" stroke-width="2.5"/>"##
+        )
+    };
+    match v {
+        Verdict::IngressOnly => body.push_str(&edge(x, y, x, y + s)),
+        Verdict::EgressOnly => body.push_str(&edge(x + s, y, x + s, y + s)),
+        Verdict::MiddleOnly | Verdict::NotObservable => {
+            body.push_str(&edge(x, y, x + s, y));
+            body.push_str(&edge(x, y + s, x + s, y + s));
+        }
+        Verdict::Whole | Verdict::WholeShortBaseline => {}
+    }
     svg.raw(&format!(r##"<g class="{class}">{t}{body}</g>"##));
 }
 
@@ -680,9 +683,8 @@ fn draw_grid_row(
             glyph(
                 svg,
                 e.verdict,
-                x,
-                row.y + 1.5 + (row.cell - 3.0 - s) / 2.0,
-                s,
+                e.coverage,
+                (x, row.y + 1.5 + (row.cell - 3.0 - s) / 2.0, s),
                 &tip,
             );
             if link.is_some() {
@@ -703,7 +705,7 @@ fn draw_verdict_legend(svg: &mut Svg, ly: f64) {
         Verdict::MiddleOnly,
     ] {
         let mut g = Svg { buf: String::new() };
-        glyph(&mut g, v, lx, ly - 10.0, 11.0, v.label());
+        glyph(&mut g, v, 1.0, (lx, ly - 10.0, 11.0), v.label());
         svg.raw(&g.buf.replace("class=\"event ", "class=\"legend "));
         svg.text(
             lx + 16.0,
@@ -713,6 +715,24 @@ fn draw_verdict_legend(svg: &mut Svg, ly: f64) {
         );
         lx += 16.0 + 7.0 * v.label().len() as f64 + 16.0;
     }
+    // The fill: how much of the transit is usable.
+    for (k, cov) in [0.25, 0.5, 1.0].into_iter().enumerate() {
+        let mut g = Svg { buf: String::new() };
+        glyph(
+            &mut g,
+            Verdict::Whole,
+            cov,
+            (lx + 14.0 * k as f64, ly - 10.0, 11.0),
+            "coverage",
+        );
+        svg.raw(&g.buf.replace("class=\"event ", "class=\"legend "));
+    }
+    svg.text(
+        lx + 46.0,
+        ly,
+        "fill = usable part of the transit",
+        &format!(r##"fill="{INK}" font-size="11""##),
+    );
 }
 
 /// File name of an event's night chart inside the HTML bundle: `<site>-<target>-<night>.svg`, slugged.
