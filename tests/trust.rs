@@ -247,3 +247,41 @@ fn tonight_needs_no_site_name_when_the_file_holds_one_site() {
         "{out}"
     );
 }
+
+#[test]
+fn tonight_on_the_day_puts_the_next_action_first() {
+    let sites = dipwatch::inputs::sites::parse_sites(
+        "s",
+        &std::fs::read_to_string(common::repo("sites.example.toml")).unwrap(),
+    )
+    .unwrap();
+    let targets = dipwatch::inputs::targets::parse_targets(
+        "t",
+        &std::fs::read_to_string(common::repo("targets.example.csv")).unwrap(),
+        &dipwatch::inputs::targets::ColumnMap::default(),
+    )
+    .unwrap();
+    let d = date(2027, 3, 2);
+    let mut o = opts(d, d);
+    o.min_in_transit_min = DEFAULT_MIN_IN_TRANSIT_MIN;
+    // At 17:00 UTC on 2027-03-02 at Kestrel Moor the next block is Moss Harbour b from 19:17 GMT.
+    let now = dipwatch::astro::time::jd_from_calendar(2027, 3, 2.0 + 17.0 / 24.0);
+    let night = dipwatch::engine::tonight::tonight(&sites[0], &targets, &o, false, Some(now));
+    let text = dipwatch::outputs::tonight_text(&night, &targets, false);
+    let first = text.lines().next().unwrap();
+    assert!(
+        first.starts_with("Next: start Moss Harbour b at 19:17 (starts in 2 h 17 min)"),
+        "{text}"
+    );
+    // During the block it says so; after the last block, that nothing is left.
+    let during =
+        dipwatch::engine::tonight::tonight(&sites[0], &targets, &o, false, Some(now + 3.0 / 24.0));
+    let t = dipwatch::outputs::tonight_text(&during, &targets, false);
+    assert!(t.starts_with("Next: Moss Harbour b is under way"), "{t}");
+    let late = dipwatch::engine::tonight::tonight(&sites[0], &targets, &o, false, Some(now + 0.6));
+    let t = dipwatch::outputs::tonight_text(&late, &targets, false);
+    assert!(
+        t.starts_with("Next: nothing more to observe tonight."),
+        "{t}"
+    );
+}

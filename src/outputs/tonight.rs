@@ -98,7 +98,12 @@ fn header(site: &Site, a: &NightAlmanac, utc: bool) -> String {
 /// night in progress or about to begin (adds "starts in ..."); `absences` explain named targets with no transit.
 pub fn tonight_text(night: &Tonight<'_>, targets: &[Target], utc: bool) -> String {
     let (site, almanac, events, now) = (night.site, &night.almanac, &night.events, night.now_utc);
-    let mut out = header(site, almanac, utc);
+    let observable: Vec<&Event> = events.iter().filter(|e| e.observable).collect();
+    let mut out = String::new();
+    if let Some(n) = now {
+        out.push_str(&next_action(&observable, targets, site, n, utc));
+    }
+    out.push_str(&header(site, almanac, utc));
     if let Some(n) = now {
         out.push_str(&format!(
             "  Now: {} {}\n",
@@ -106,7 +111,6 @@ pub fn tonight_text(night: &Tonight<'_>, targets: &[Target], utc: bool) -> Strin
             zone_label(n, site, utc)
         ));
     }
-    let observable: Vec<&Event> = events.iter().filter(|e| e.observable).collect();
     if observable.is_empty() {
         out.push_str("\nNothing observable tonight.\n");
     }
@@ -124,6 +128,40 @@ pub fn tonight_text(night: &Tonight<'_>, targets: &[Target], utc: bool) -> Strin
         utc,
     );
     out
+}
+
+/// The first line when run on the day: what to start when (or what is under way), so the next action comes
+/// before the almanac.
+fn next_action(
+    observable: &[&Event],
+    targets: &[Target],
+    site: &Site,
+    now: f64,
+    utc: bool,
+) -> String {
+    let next = observable
+        .iter()
+        .filter(|e| e.block_end_utc > now)
+        .min_by(|a, b| a.block_start_utc.total_cmp(&b.block_start_utc));
+    match next {
+        None => "Next: nothing more to observe tonight.\n\n".to_string(),
+        Some(e) if e.block_start_utc <= now => format!(
+            "Next: {} is under way ({}); the block ends at {}, {}.\n\n",
+            targets[e.target_index].name,
+            e.verdict.label(),
+            hhmm(e.block_end_utc, site, utc),
+            countdown(e, now).replace("in progress, ", "")
+        ),
+        Some(e) => format!(
+            "Next: start {} at {} ({}), {} of the transit usable; ingress {}, block ends {}.\n\n",
+            targets[e.target_index].name,
+            hhmm(e.block_start_utc, site, utc),
+            countdown(e, now),
+            crate::outputs::percent_floor(e.coverage),
+            hhmm(e.ingress_utc, site, utc),
+            hhmm(e.block_end_utc, site, utc)
+        ),
+    }
 }
 
 /// One observable event: heading with verdict, coverage and countdown, the five instants with altitude and
