@@ -166,10 +166,10 @@ fn push_oc_table(out: &mut String, r: &TargetRefinement) {
     for row in &r.rows {
         let mut flags = Vec::new();
         if row.outlier {
-            flags.push("beyond 3 sigma of the fit");
+            flags.push("fit>3sig");
         }
         if row.cat_outlier {
-            flags.push("beyond 3 sigma of the catalogue");
+            flags.push("cat>3sig");
         }
         table.add_row(vec![
             Cell::new(row.epoch).set_alignment(CellAlignment::Right),
@@ -193,7 +193,7 @@ fn push_oc_table(out: &mut String, r: &TargetRefinement) {
         out.push_str(line);
         out.push('\n');
     }
-    out.push_str("  O-C: against the refined ephemeris; O-cat: against the catalogue prediction, with the combined sigma of both.\n\n");
+    out.push_str("  O-C: against the refined ephemeris; O-cat: against the catalogue prediction, with the combined sigma of both;\n  fit>3sig, cat>3sig: beyond 3 sigma of either.\n\n");
 }
 
 /// The staleness table, stalest first.
@@ -205,7 +205,7 @@ fn push_staleness(
     fraction: f64,
 ) {
     out.push_str(&format!(
-        "Ephemeris age on {stale_at}: timing 1-sigma at the nearest transit, against the duration T14 (refresh first above {:.0}% of T14)\n",
+        "Ephemeris age on {stale_at}: timing 1-sigma at the nearest transit, against the duration T14\n  (refresh first above {:.0}% of T14)\n",
         fraction * 100.0
     ));
     let mut table = super::styled_table(

@@ -197,6 +197,9 @@ fn push_event(out: &mut String, e: &Event, t: &Target, site: &Site, now: Option<
             String::new(),
         ),
     ];
+    // In time order: a block clipped by dawn ends before the egress it could not reach.
+    let mut rows = rows;
+    rows.sort_by(|a, b| a.1.total_cmp(&b.1));
     for (label, jd, alt, sigma) in rows {
         out.push_str(&format!(
             "  {label:<12} {}  {sigma:<12} alt {:>5.1} deg  {}\n",
