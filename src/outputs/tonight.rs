@@ -8,6 +8,33 @@ use crate::engine::tonight::{Absence, Tonight};
 use crate::inputs::sites::Site;
 use crate::inputs::targets::Target;
 
+/// Width of the `tonight` screen: it reads on an 80-column terminal.
+const WIDTH: usize = 80;
+
+/// `text` folded at spaces into lines of at most [`WIDTH`] characters, the first prefixed with `first`, the
+/// others with `rest`; each line ends with a line break.
+fn wrap(text: &str, first: &str, rest: &str) -> String {
+    let mut out = String::new();
+    let mut line = first.to_string();
+    let mut empty = true;
+    for word in text.split(' ') {
+        if !empty && line.chars().count() + 1 + word.chars().count() > WIDTH {
+            out.push_str(line.trim_end());
+            out.push('\n');
+            line = rest.to_string();
+            empty = true;
+        }
+        if !empty {
+            line.push(' ');
+        }
+        line.push_str(word);
+        empty = false;
+    }
+    out.push_str(line.trim_end());
+    out.push('\n');
+    out
+}
+
 fn airmass_text(alt_deg: f64) -> String {
     let x = airmass_kasten_young(alt_deg);
     if x.is_finite() && alt_deg > 0.0 {
@@ -143,17 +170,17 @@ fn next_action(
         .iter()
         .filter(|e| e.block_end_utc > now)
         .min_by(|a, b| a.block_start_utc.total_cmp(&b.block_start_utc));
-    match next {
-        None => "Next: nothing more to observe tonight.\n\n".to_string(),
+    let text = match next {
+        None => "Next: nothing more to observe tonight.".to_string(),
         Some(e) if e.block_start_utc <= now => format!(
-            "Next: {} is under way ({}); the block ends at {}, {}.\n\n",
+            "Next: {} is under way ({}); the block ends at {}, {}.",
             targets[e.target_index].name,
             e.verdict.label(),
             hhmm(e.block_end_utc, site, utc),
             countdown(e, now).replace("in progress, ", "")
         ),
         Some(e) => format!(
-            "Next: start {} at {} ({}), {} of the transit usable; ingress {}, block ends {}.\n\n",
+            "Next: start {} at {} ({}), {} of the transit usable; ingress {}, block ends {}.",
             targets[e.target_index].name,
             hhmm(e.block_start_utc, site, utc),
             countdown(e, now),
@@ -161,7 +188,10 @@ fn next_action(
             hhmm(e.ingress_utc, site, utc),
             hhmm(e.block_end_utc, site, utc)
         ),
-    }
+    };
+    let mut out = wrap(&text, "", "      ");
+    out.push('\n');
+    out
 }
 
 /// One observable event: heading with verdict, coverage and countdown, the five instants with altitude and
@@ -239,7 +269,7 @@ fn push_event(out: &mut String, e: &Event, t: &Target, site: &Site, now: Option<
                 .join(", ")
         ));
     }
-    out.push_str(&format!("  {}\n", extra.join("; ")));
+    out.push_str(&wrap(&extra.join("; "), "  ", "  "));
 }
 
 /// For each target asked for by name with nothing observable: why (never high enough, the limits that block
@@ -261,25 +291,35 @@ fn push_explanations(
         // Highest altitude the target ever reaches here (upper culmination, catalogue place).
         let highest = 90.0 - (site.lat_deg - targets[ti].dec_deg).abs();
         if highest < site.min_alt_deg {
-            out.push_str(&format!(
-                "\n{name}: never rises above this site's limit of {:.1} deg (highest altitude {:.1} deg)\n",
-                site.min_alt_deg, highest
+            out.push('\n');
+            out.push_str(&wrap(
+                &format!(
+                    "{name}: never rises above this site's limit of {:.1} deg (highest altitude {:.1} deg)",
+                    site.min_alt_deg, highest
+                ),
+                "",
+                "  ",
             ));
             continue;
         }
         for e in events.iter().filter(|e| e.target_index == ti) {
-            out.push_str(&format!(
-                "\n{name}: the transit at {} (mid) cannot be observed: {}\n",
-                hhmm(e.mid_utc, site, utc),
-                if e.reasons.is_empty() {
-                    "no usable in-transit time".to_string()
-                } else {
-                    e.reasons
-                        .iter()
-                        .map(|r| r.label())
-                        .collect::<Vec<_>>()
-                        .join(", ")
-                }
+            out.push('\n');
+            out.push_str(&wrap(
+                &format!(
+                    "{name}: the transit at {} (mid) cannot be observed: {}",
+                    hhmm(e.mid_utc, site, utc),
+                    if e.reasons.is_empty() {
+                        "no usable in-transit time".to_string()
+                    } else {
+                        e.reasons
+                            .iter()
+                            .map(|r| r.label())
+                            .collect::<Vec<_>>()
+                            .join(", ")
+                    }
+                ),
+                "",
+                "  ",
             ));
         }
         for a in absences {
@@ -288,9 +328,14 @@ fn push_explanations(
                 next_mid_utc,
             } = a;
             if *target_index == ti {
-                out.push_str(&format!(
-                    "\n{name}: no transit during this night; the next mid-transit is at {} UTC\n",
-                    crate::astro::civil::rfc3339_utc(*next_mid_utc)
+                out.push('\n');
+                out.push_str(&wrap(
+                    &format!(
+                        "{name}: no transit during this night; the next mid-transit is at {} UTC",
+                        crate::astro::civil::rfc3339_utc(*next_mid_utc)
+                    ),
+                    "",
+                    "  ",
                 ));
             }
         }
