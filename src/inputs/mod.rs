@@ -8,6 +8,7 @@ pub mod angles;
 pub mod observed;
 pub mod sites;
 pub mod targets;
+pub mod units;
 
 use std::fmt;
 

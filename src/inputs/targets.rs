@@ -9,6 +9,7 @@ use super::angles::{parse_dec_deg, parse_ra_deg};
 use super::{open_csv, parse_finite, CsvInput, InputError, Problems};
 use crate::astro::barycentric::TimeSystem;
 use crate::ephemeris::Ephemeris;
+use crate::inputs::units::{self, Unit};
 use std::collections::HashMap;
 
 /// A resolved target.
@@ -248,14 +249,16 @@ pub const COLUMNS: &[ColumnSpec] = &[
 /// both, keeping the minus column's sign convention.
 pub const TWO_SIDED: [&str; 2] = ["t0_sigma_days", "period_sigma_days"];
 
-/// Our column name -> the header used in the user's file (`PLUS|MINUS` for a two-sided error).
+/// Our column name -> the header used in the user's file (`PLUS|MINUS` for a two-sided error); and our column
+/// name -> the unit of the user's column, when the mapping names one (`ours=theirs:unit`).
 #[derive(Debug, Clone, Default, PartialEq)]
-pub struct ColumnMap(pub HashMap<String, String>);
+pub struct ColumnMap(pub HashMap<String, String>, pub HashMap<String, Unit>);
 
 impl ColumnMap {
-    /// Parse `ours=theirs,ours=theirs` (as given to `--columns`).
+    /// Parse `ours=theirs[:unit],...` (as given to `--columns`); see [`crate::inputs::units`] for the units.
     pub fn parse(spec: &str) -> Result<ColumnMap, String> {
         let mut map = HashMap::new();
+        let mut units = HashMap::new();
         for part in spec.split(',').map(str::trim).filter(|p| !p.is_empty()) {
             let Some((ours, theirs)) = part.split_once('=') else {
                 return Err(format!(
@@ -276,9 +279,24 @@ impl ColumnMap {
                     names.join(", ")
                 ));
             }
-            map.insert(ours, theirs.trim().to_string());
+            let (theirs, unit) = split_unit(&ours, theirs.trim())?;
+            if let Some(u) = unit {
+                units.insert(ours.clone(), u);
+            }
+            map.insert(ours, theirs);
         }
-        Ok(ColumnMap(map))
+        Ok(ColumnMap(map, units))
+    }
+}
+
+/// Split `theirs[:unit]`: a suffix after the last `:` is a unit when our column takes units.
+fn split_unit(ours: &str, theirs: &str) -> Result<(String, Option<Unit>), String> {
+    match theirs.rsplit_once(':') {
+        Some((name, unit)) if units::accepted(ours).is_some() && !name.trim().is_empty() => Ok((
+            name.trim().to_string(),
+            Some(units::parse_unit(ours, unit)?),
+        )),
+        _ => Ok((theirs.to_string(), None)),
     }
 }
 
@@ -344,6 +362,7 @@ pub(crate) fn detect_delimiter(text: &str) -> u8 {
 struct ColumnIndex {
     index: HashMap<&'static str, usize>,
     minus: HashMap<&'static str, usize>,
+    units: HashMap<&'static str, Unit>,
 }
 
 /// Find every column of [`COLUMNS`] in the header (through the mapping), reporting each missing required one.
@@ -356,8 +375,12 @@ fn resolve_columns(
     let mut cols = ColumnIndex {
         index: HashMap::new(),
         minus: HashMap::new(),
+        units: HashMap::new(),
     };
     for spec in COLUMNS {
+        if let Some(u) = map.1.get(spec.name) {
+            cols.units.insert(spec.name, *u);
+        }
         let mapped = map
             .0
             .get(spec.name)
@@ -402,8 +425,25 @@ fn resolve_columns(
     cols
 }
 
-/// The text of each of our columns in one row; a two-sided error becomes the larger of its two magnitudes
-/// (never the optimistic side).
+/// A cell in dipwatch's own unit: numbers converted from the mapped unit (shortest exact text), sexagesimal
+/// angles passed to the angle parser, and text that cannot be read left as it is for the parser's message.
+fn in_our_unit(column: &str, unit: Option<Unit>, text: &str) -> String {
+    let sexagesimal = text.contains(':') || text.trim().contains(' ');
+    match unit {
+        None => text.to_string(),
+        Some(Unit::Hms) | Some(Unit::Dms) if sexagesimal => text.to_string(),
+        Some(Unit::Hms) => format!("{text} (expected hh:mm:ss in an hms column)"),
+        Some(Unit::Dms) => format!("{text} (expected dd:mm:ss in a dms column)"),
+        Some(_) if sexagesimal => format!("{text} (sexagesimal in a decimal column)"),
+        Some(u) => match text.parse::<f64>() {
+            Ok(v) => format!("{}", units::to_canonical(column, u, v)),
+            Err(_) => text.to_string(),
+        },
+    }
+}
+
+/// The text of each of our columns in one row, in dipwatch's own units; a two-sided error becomes the larger of
+/// its two magnitudes (never the optimistic side).
 struct RowCells<'r> {
     record: &'r csv::StringRecord,
     cols: &'r ColumnIndex,
@@ -413,20 +453,28 @@ struct RowCells<'r> {
 impl<'r> RowCells<'r> {
     fn new(record: &'r csv::StringRecord, cols: &'r ColumnIndex) -> RowCells<'r> {
         let raw = |i: usize| record.get(i).unwrap_or("").trim();
-        let two_sided = cols
-            .minus
-            .iter()
-            .map(|(&name, &j)| {
-                let plus = cols.index.get(name).map_or("", |&i| raw(i));
-                let minus = raw(j);
-                let combined = match (plus.parse::<f64>(), minus.parse::<f64>()) {
+        let mut two_sided: HashMap<&'static str, String> = HashMap::new();
+        for spec in COLUMNS {
+            let unit = cols.units.get(spec.name).copied();
+            let minus = cols.minus.get(spec.name).copied();
+            if unit.is_none() && minus.is_none() {
+                continue;
+            }
+            let Some(&i) = cols.index.get(spec.name) else {
+                continue;
+            };
+            let plus = in_our_unit(spec.name, unit, raw(i));
+            let value = match minus.map(|j| in_our_unit(spec.name, unit, raw(j))) {
+                // Two-sided errors: the larger of the two magnitudes (never the optimistic side).
+                Some(m) => match (plus.parse::<f64>(), m.parse::<f64>()) {
                     (Ok(a), Ok(b)) => format!("{}", a.abs().max(b.abs())),
-                    (Ok(_), Err(_)) => minus.to_string(),
-                    _ => plus.to_string(),
-                };
-                (name, combined)
-            })
-            .collect();
+                    (Ok(_), Err(_)) => m,
+                    _ => plus,
+                },
+                None => plus,
+            };
+            two_sided.insert(spec.name, value);
+        }
         RowCells {
             record,
             cols,
@@ -469,10 +517,14 @@ fn row_numbers(
                 values.insert(spec.name, v);
             }
             Ok(v) => {
-                let msg = if spec.name == "t0" {
-                    not_a_full_jd(v)
-                } else {
-                    format!("found {v}, expected {}", rule.expected)
+                let msg = match spec.name {
+                    "t0" => not_a_full_jd(v),
+                    "depth_ppt" => format!(
+                        "found {v}, expected {}{}",
+                        rule.expected,
+                        units::depth_hint(v).unwrap_or_default()
+                    ),
+                    _ => format!("found {v}, expected {}", rule.expected),
                 };
                 problems.push(line, spec.name, msg);
                 ok = false;
@@ -529,7 +581,8 @@ fn parse_row(
                 line,
                 "t14_hours",
                 format!(
-                    "found {d} h, expected a duration shorter than the period ({:.3} h)",
+                    "found {d} h, expected a duration shorter than the period ({:.3} h); if the column is in \
+                     minutes, map it with t14_hours=THEIRS:min",
                     p * 24.0
                 ),
             );
@@ -591,6 +644,8 @@ pub fn parse_targets(file: &str, text: &str, map: &ColumnMap) -> Result<Vec<Targ
     }
     let mut targets = Vec::new();
     let mut seen: HashMap<String, usize> = HashMap::new();
+    // Decimal right ascensions read as degrees with no unit named: if every one is below 24 they are likely hours.
+    let mut decimal_ra: Vec<f64> = Vec::new();
     for record in reader.records() {
         let record = match record {
             Ok(r) => r,
@@ -605,9 +660,28 @@ pub fn parse_targets(file: &str, text: &str, map: &ColumnMap) -> Result<Vec<Targ
             continue;
         }
         let cells = RowCells::new(&record, &cols);
+        let ra_text = cells.get("ra");
+        let unitless_decimal = !cols.units.contains_key("ra") && !ra_text.contains([':', ' ']);
         if let Some(t) = parse_row(&cells, line, &mut seen, &mut problems) {
+            if unitless_decimal {
+                decimal_ra.push(t.ra_deg);
+            }
             targets.push(t);
         }
+    }
+    if decimal_ra.len() >= 3
+        && decimal_ra.len() == targets.len()
+        && decimal_ra.iter().all(|&r| r < 24.0)
+    {
+        problems.push(
+            Some(header_line),
+            "ra",
+            format!(
+                "found only values below 24 (largest {:.4}) in a column read as decimal degrees; likely unit: hours. \
+                 Map it with ra=THEIRS:hours, or ra=THEIRS:deg if these really are degrees",
+                decimal_ra.iter().fold(0.0_f64, |a, &b| a.max(b))
+            ),
+        );
     }
     if targets.is_empty() && problems.list_is_empty() {
         problems.push(

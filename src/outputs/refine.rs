@@ -460,11 +460,16 @@ pub fn rewrite_targets_csv(
         else {
             continue;
         };
+        // Written in the catalogue's own units where the mapping names them.
+        let back = |col: &str, v: f64| match map.1.get(col) {
+            Some(u) => crate::inputs::units::from_canonical(col, *u, v),
+            None => v,
+        };
         let values = [
-            format!("{:.6}", e.t0),
-            format!("{:.3e}", e.t0_sigma_days),
-            format!("{:.9}", e.period_days),
-            format!("{:.3e}", e.period_sigma_days),
+            format!("{:.6}", back("t0", e.t0)),
+            format!("{:.3e}", back("t0_sigma_days", e.t0_sigma_days)),
+            format!("{:.9}", back("period_days", e.period_days)),
+            format!("{:.3e}", back("period_sigma_days", e.period_sigma_days)),
             format!("{:.3e}", e.cov_t0_period_days2),
             e.system.name().to_string(),
         ];
