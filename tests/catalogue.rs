@@ -184,3 +184,70 @@ fn refine_writes_back_in_the_catalogues_own_units() {
         "{plus} {minus}"
     );
 }
+
+#[test]
+fn ecsv_has_a_typed_self_describing_header() {
+    // ECSV 1.0 (astropy APE 6): `# %ECSV 1.0`, `# ---`, then YAML (delimiter, datatype list with name, unit,
+    // datatype, description) under "# ", then the CSV with the same column names.
+    let o = dipwatch(&[
+        "plan",
+        "--sites",
+        &repo("sites.example.toml"),
+        "--targets",
+        &repo("targets.example.csv"),
+        "--from",
+        "2027-03-01",
+        "--days",
+        "10",
+        "--format",
+        "ecsv",
+    ]);
+    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    let text = String::from_utf8(o.stdout).unwrap();
+    let mut lines = text.lines();
+    assert_eq!(lines.next(), Some("# %ECSV 1.0"));
+    assert_eq!(lines.next(), Some("# ---"));
+    let yaml: String = text
+        .lines()
+        .skip(2)
+        .take_while(|l| l.starts_with('#'))
+        .map(|l| format!("{}\n", l.strip_prefix("# ").unwrap_or("")))
+        .collect();
+    let header: serde_yaml::Value = serde_yaml::from_str(&yaml).unwrap();
+    assert_eq!(header["delimiter"], serde_yaml::Value::from(","));
+    let cols = header["datatype"].as_sequence().unwrap();
+    let names: Vec<&str> = cols.iter().map(|c| c["name"].as_str().unwrap()).collect();
+    assert_eq!(
+        names,
+        dipwatch::outputs::event_field_names().collect::<Vec<_>>()
+    );
+    let col = |n: &str| cols.iter().find(|c| c["name"].as_str() == Some(n)).unwrap();
+    assert_eq!(col("sigma_min")["unit"].as_str(), Some("min"));
+    assert_eq!(col("alt_mid_deg")["unit"].as_str(), Some("deg"));
+    assert_eq!(col("epoch")["datatype"].as_str(), Some("int64"));
+    assert_eq!(col("observable")["datatype"].as_str(), Some("bool"));
+    // The CSV part: a header of the same names, rows with as many fields, booleans True/False.
+    let data: Vec<&str> = text.lines().filter(|l| !l.starts_with('#')).collect();
+    assert_eq!(data[0].split(',').collect::<Vec<_>>(), names);
+    let joined = data.join("\n");
+    let mut rdr = csv::Reader::from_reader(joined.as_bytes());
+    let mut n = 0;
+    for r in rdr.records() {
+        let r = r.unwrap();
+        assert_eq!(r.len(), names.len());
+        assert!(&r[4] == "True" || &r[4] == "False");
+        n += 1;
+    }
+    assert!(n > 5);
+    // A command that prints no events refuses it.
+    let o = dipwatch(&[
+        "nights",
+        "--sites",
+        &repo("sites.example.toml"),
+        "--site",
+        "Kestrel Moor",
+        "--format",
+        "ecsv",
+    ]);
+    assert_eq!(o.status.code(), Some(2));
+}

@@ -117,6 +117,16 @@ enum Format {
     Table,
     Csv,
     Json,
+    /// Enhanced Character Separated Values (astropy APE 6): CSV with a YAML header of datatypes, units and
+    /// descriptions; for commands that print events
+    Ecsv,
+}
+
+/// The refusal of `--format ecsv` by a command that prints no events.
+fn no_ecsv(command: &str) -> anyhow::Error {
+    anyhow::anyhow!(
+        "--format ecsv: found ecsv for {command}, expected table, csv or json (ecsv is written by plan and schedule)"
+    )
 }
 
 /// What a run plans: the inputs and their selection, the nights, and how blocks are built and judged.

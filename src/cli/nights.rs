@@ -36,6 +36,7 @@ pub(super) fn run_nights(args: NightsArgs) -> Result<()> {
         Format::Table => report::nights_table(&site, &nights, args.output.utc),
         Format::Csv => report::nights_csv(&nights),
         Format::Json => report::nights_json(&site, &nights),
+        Format::Ecsv => return Err(no_ecsv("nights")),
     };
     emit(&text, args.output.out.as_deref())
 }

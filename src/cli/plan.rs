@@ -23,6 +23,14 @@ pub(super) fn run_plan(args: PlanArgs) -> Result<()> {
         Format::Table => report::plan_table(&result, &sites, &targets, &opts, args.output.utc),
         Format::Csv => report::plan_csv(&result, &sites, &targets),
         Format::Json => report::plan_json(&result, &sites, &targets, &opts),
+        Format::Ecsv => {
+            let events: Vec<&dipwatch::engine::plan::Event> = result
+                .sites
+                .iter()
+                .flat_map(|sp| sp.events.iter())
+                .collect();
+            report::events_ecsv(&events, &sites, &targets)
+        }
     };
     emit(&text, args.output.out.as_deref())
 }

@@ -254,6 +254,7 @@ pub(super) fn run_refine(args: RefineArgs) -> Result<()> {
         Format::Table => report::refine_text(&refinements, &targets, &stale, &stale_at, f),
         Format::Csv => report::refine_csv(&refinements, &targets, &stale, f),
         Format::Json => report::refine_json(&refinements, &targets, &stale, &stale_at, f),
+        Format::Ecsv => return Err(no_ecsv("refine")),
     };
     if let Some(chart) = &args.chart {
         write_oc_charts(chart, &refinements, &targets)?;

@@ -125,6 +125,7 @@ pub(super) fn run_schedule(args: ScheduleArgs) -> Result<()> {
             (&weights, args.output.utc),
         ),
         Format::Csv => report::schedule_csv(&chosen, &tels, &sites, &targets),
+        Format::Ecsv => report::schedule_ecsv(&chosen, &tels, &sites, &targets),
         Format::Json => report::schedule_json(
             &chosen,
             &tels,

@@ -62,10 +62,23 @@ pub enum Value<'a> {
     Null,
 }
 
-/// A column: its name (CSV header, JSON key) and the function giving its value for a row.
+/// What a column holds, for self-describing formats (ECSV): its datatype, unit and a short description.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Meta {
+    /// ECSV datatype: `string`, `int64`, `float64` or `bool`.
+    pub datatype: &'static str,
+    /// Unit (astropy spelling), if the column has one.
+    pub unit: Option<&'static str>,
+    /// One line saying what the column holds.
+    pub description: &'static str,
+}
+
+/// A column: its name (CSV header, JSON key), what it holds, and the function giving its value for a row.
 pub struct Column<F> {
     /// Name, as documented in the README.
     pub name: &'static str,
+    /// Datatype, unit and description.
+    pub meta: Meta,
     /// The value for one row.
     pub value: F,
 }
@@ -77,154 +90,192 @@ pub type EventValue = for<'r, 'a> fn(&'r EventRow<'a>) -> Value<'r>;
 pub const EVENT_COLUMNS: &[Column<EventValue>] = &[
     Column {
         name: "target",
+        meta: Meta { datatype: "string", unit: None, description: "target name" },
         value: |r| Value::Text(&r.target.name),
     },
     Column {
         name: "site",
+        meta: Meta { datatype: "string", unit: None, description: "site name" },
         value: |r| Value::Text(&r.site.name),
     },
     Column {
         name: "epoch",
+        meta: Meta { datatype: "int64", unit: None, description: "epoch number n since the catalogue T0" },
         value: |r| Value::Int(r.event.epoch),
     },
     Column {
         name: "verdict",
+        meta: Meta { datatype: "string", unit: None, description: "whole, whole-short-baseline, ingress-only, egress-only, middle-only or not-observable" },
         value: |r| Value::Text(r.event.verdict.label()),
     },
     Column {
         name: "observable",
+        meta: Meta { datatype: "bool", unit: None, description: "meets the run's criteria" },
         value: |r| Value::Bool(r.event.observable),
     },
     Column {
         name: "coverage",
+        meta: Meta { datatype: "float64", unit: None, description: "fraction of [ingress, egress] usable, rounded down" },
         value: |r| Value::FloorFixed(r.event.coverage, 3),
     },
     Column {
         name: "mid_utc",
+        meta: Meta { datatype: "string", unit: None, description: "predicted mid-transit, UTC (RFC 3339)" },
         value: |r| Value::Time(r.event.mid_utc),
     },
     Column {
         name: "ingress_utc",
+        meta: Meta { datatype: "string", unit: None, description: "predicted first contact, UTC" },
         value: |r| Value::Time(r.event.ingress_utc),
     },
     Column {
         name: "egress_utc",
+        meta: Meta { datatype: "string", unit: None, description: "predicted fourth contact, UTC" },
         value: |r| Value::Time(r.event.egress_utc),
     },
     Column {
         name: "block_start_utc",
+        meta: Meta { datatype: "string", unit: None, description: "start of the block as it can be observed, UTC" },
         value: |r| Value::Time(r.event.block_start_utc),
     },
     Column {
         name: "block_end_utc",
+        meta: Meta { datatype: "string", unit: None, description: "end of the block as it can be observed, UTC" },
         value: |r| Value::Time(r.event.block_end_utc),
     },
     Column {
         name: "full_block_start_utc",
+        meta: Meta { datatype: "string", unit: None, description: "start of the planned block, UTC" },
         value: |r| Value::Time(r.event.full_block_start_utc),
     },
     Column {
         name: "full_block_end_utc",
+        meta: Meta { datatype: "string", unit: None, description: "end of the planned block, UTC" },
         value: |r| Value::Time(r.event.full_block_end_utc),
     },
     Column {
         name: "usable_start_utc",
+        meta: Meta { datatype: "string", unit: None, description: "start of the usable run the verdict is based on, UTC" },
         value: |r| Value::OptTime(r.event.usable.map(|u| u.start)),
     },
     Column {
         name: "usable_end_utc",
+        meta: Meta { datatype: "string", unit: None, description: "end of the usable run, UTC" },
         value: |r| Value::OptTime(r.event.usable.map(|u| u.end)),
     },
     Column {
         name: "sigma_min",
+        meta: Meta { datatype: "float64", unit: Some("min"), description: "timing 1-sigma of this epoch" },
         value: |r| Value::Fixed(r.event.sigma_min, 2),
     },
     Column {
         name: "baseline_before_min",
+        meta: Meta { datatype: "float64", unit: Some("min"), description: "usable baseline before ingress - K sigma" },
         value: |r| Value::Fixed(r.event.baseline_before_min, 1),
     },
     Column {
         name: "baseline_after_min",
+        meta: Meta { datatype: "float64", unit: Some("min"), description: "usable baseline after egress + K sigma" },
         value: |r| Value::Fixed(r.event.baseline_after_min, 1),
     },
     Column {
         name: "night_of",
+        meta: Meta { datatype: "string", unit: None, description: "local date on which the night begins" },
         value: |r| Value::Date(r.event.night_of),
     },
     Column {
         name: "night_start_utc",
+        meta: Meta { datatype: "string", unit: None, description: "start of the night's dark interval, UTC" },
         value: |r| Value::OptTime(r.event.night_dark.map(|d| d.start)),
     },
     Column {
         name: "night_end_utc",
+        meta: Meta { datatype: "string", unit: None, description: "end of the night's dark interval, UTC" },
         value: |r| Value::OptTime(r.event.night_dark.map(|d| d.end)),
     },
     Column {
         name: "alt_ingress_deg",
+        meta: Meta { datatype: "float64", unit: Some("deg"), description: "geometric altitude at ingress" },
         value: |r| Value::Fixed(r.event.alt_ingress_deg, 2),
     },
     Column {
         name: "alt_mid_deg",
+        meta: Meta { datatype: "float64", unit: Some("deg"), description: "geometric altitude at mid-transit" },
         value: |r| Value::Fixed(r.event.alt_mid_deg, 2),
     },
     Column {
         name: "alt_egress_deg",
+        meta: Meta { datatype: "float64", unit: Some("deg"), description: "geometric altitude at egress" },
         value: |r| Value::Fixed(r.event.alt_egress_deg, 2),
     },
     Column {
         name: "alt_block_start_deg",
+        meta: Meta { datatype: "float64", unit: Some("deg"), description: "altitude at the block start" },
         value: |r| Value::Fixed(r.event.alt_block_start_deg, 2),
     },
     Column {
         name: "alt_block_end_deg",
+        meta: Meta { datatype: "float64", unit: Some("deg"), description: "altitude at the block end" },
         value: |r| Value::Fixed(r.event.alt_block_end_deg, 2),
     },
     Column {
         name: "airmass_ingress",
+        meta: Meta { datatype: "float64", unit: None, description: "Kasten-Young airmass at ingress" },
         value: |r| airmass(r.event.airmass_ingress),
     },
     Column {
         name: "airmass_mid",
+        meta: Meta { datatype: "float64", unit: None, description: "Kasten-Young airmass at mid-transit" },
         value: |r| airmass(r.event.airmass_mid),
     },
     Column {
         name: "airmass_egress",
+        meta: Meta { datatype: "float64", unit: None, description: "Kasten-Young airmass at egress" },
         value: |r| airmass(r.event.airmass_egress),
     },
     Column {
         name: "az_mid_deg",
+        meta: Meta { datatype: "float64", unit: Some("deg"), description: "azimuth at mid-transit, north 0, east 90" },
         value: |r| Value::Fixed(r.event.az_mid_deg, 2),
     },
     Column {
         name: "sun_alt_mid_deg",
+        meta: Meta { datatype: "float64", unit: Some("deg"), description: "Sun altitude at mid-transit" },
         value: |r| Value::Fixed(r.event.sun_alt_mid_deg, 2),
     },
     Column {
         name: "moon_alt_mid_deg",
+        meta: Meta { datatype: "float64", unit: Some("deg"), description: "topocentric Moon altitude at mid-transit" },
         value: |r| Value::Fixed(r.event.moon_alt_mid_deg, 2),
     },
     Column {
         name: "moon_sep_deg",
+        meta: Meta { datatype: "float64", unit: Some("deg"), description: "Moon separation from the target" },
         value: |r| Value::Fixed(r.event.moon_sep_deg, 2),
     },
     Column {
         name: "moon_illum",
+        meta: Meta { datatype: "float64", unit: None, description: "Moon illuminated fraction" },
         value: |r| Value::Fixed(r.event.moon_illum, 3),
     },
     Column {
         name: "meridian_utc",
+        meta: Meta { datatype: "string", unit: None, description: "upper meridian crossing inside the block, UTC" },
         value: |r| Value::OptTime(r.event.meridian_utc),
     },
     Column {
         name: "depth_ppt",
+        meta: Meta { datatype: "float64", unit: None, description: "transit depth, parts per thousand" },
         value: |r| Value::Input(r.target.depth_ppt),
     },
     Column {
         name: "priority",
+        meta: Meta { datatype: "float64", unit: None, description: "priority from the targets file" },
         value: |r| Value::Input(Some(r.target.priority)),
     },
     Column {
         name: "reasons",
+        meta: Meta { datatype: "string", unit: None, description: "limits that cut the block, separated by ;" },
         value: |r| Value::Reasons(&r.event.reasons),
     },
 ];
@@ -273,6 +324,68 @@ pub fn insert_json<'v, F>(
     for c in columns {
         map.insert(c.name.to_string(), json_value(&value(&c.value)));
     }
+}
+
+/// The ECSV 1.0 header (astropy APE 6, "Enhanced Character Separated Values"): each column's name, datatype,
+/// unit and description as YAML under `# `, comma-delimited, then the CSV header line; rows follow as CSV with
+/// booleans written `True`/`False` and missing values empty. `astropy.table.Table.read(path)` gives typed columns.
+pub fn push_ecsv_header<'m>(
+    metas: impl IntoIterator<Item = (&'m str, &'m Meta)>,
+    out: &mut String,
+) {
+    out.push_str("# %ECSV 1.0\n# ---\n# delimiter: ','\n# datatype:\n");
+    let mut names = Vec::new();
+    for (name, m) in metas {
+        out.push_str("# - {name: ");
+        out.push_str(name);
+        if let Some(u) = m.unit {
+            out.push_str(", unit: ");
+            out.push_str(u);
+        }
+        out.push_str(", datatype: ");
+        out.push_str(m.datatype);
+        out.push_str(", description: '");
+        out.push_str(&m.description.replace('\'', "''"));
+        out.push_str("'}\n");
+        names.push(name);
+    }
+    out.push_str("# schema: astropy-2.0\n");
+    out.push_str(&names.join(","));
+    out.push('\n');
+}
+
+/// The (name, meta) pairs of `columns`, for [`push_ecsv_header`].
+pub fn metas<F>(columns: &[Column<F>]) -> impl Iterator<Item = (&'static str, &Meta)> {
+    columns.iter().map(|c| (c.name, &c.meta))
+}
+
+/// Append the fields of one row as ECSV: as CSV, with booleans `True`/`False`.
+pub fn push_ecsv_fields<'v, F>(
+    columns: &[Column<F>],
+    value: impl Fn(&F) -> Value<'v>,
+    out: &mut String,
+) {
+    for (i, c) in columns.iter().enumerate() {
+        if i > 0 {
+            out.push(',');
+        }
+        match value(&c.value) {
+            Value::Bool(b) => out.push_str(if b { "True" } else { "False" }),
+            v => push_csv_value(&v, out),
+        }
+    }
+}
+
+/// ECSV of events: the header and one line per event.
+pub fn events_ecsv(events: &[&Event], sites: &[Site], targets: &[Target]) -> String {
+    let mut out = String::new();
+    push_ecsv_header(metas(EVENT_COLUMNS), &mut out);
+    for e in events {
+        let row = EventRow::of(e, sites, targets);
+        push_ecsv_fields(EVENT_COLUMNS, |f| f(&row), &mut out);
+        out.push('\n');
+    }
+    out
 }
 
 /// Append one CSV line per event: the fields of [`EVENT_COLUMNS`].

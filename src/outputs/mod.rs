@@ -11,15 +11,17 @@ mod schedule;
 mod tonight;
 
 pub use columns::{
-    csv_header, event_field_names, event_json, push_event_csv_rows, Column, EventRow, Value,
-    EVENT_COLUMNS,
+    csv_header, event_field_names, event_json, events_ecsv, push_event_csv_rows, Column, EventRow,
+    Meta, Value, EVENT_COLUMNS,
 };
 pub use nights::{nights_csv, nights_json, nights_table, NightRecord, NIGHT_FIELDS};
 pub use plan::{plan_csv, plan_json, plan_table};
 pub use refine::{
     refine_csv, refine_json, refine_text, rewrite_targets_csv, stale_status, tension_text,
 };
-pub use schedule::{schedule_csv, schedule_json, schedule_table, ScheduledRow, SCHEDULE_COLUMNS};
+pub use schedule::{
+    schedule_csv, schedule_ecsv, schedule_json, schedule_table, ScheduledRow, SCHEDULE_COLUMNS,
+};
 pub use tonight::{countdown, tonight_json, tonight_text};
 
 use crate::astro::civil::{local_hhmm, zone_abbreviation};

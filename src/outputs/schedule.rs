@@ -1,7 +1,8 @@
 //! `schedule` outputs: the chosen blocks per telescope and night.
 
 use super::columns::{
-    event_json, insert_json, push_csv_fields, push_header, Column, EventRow, Value, EVENT_COLUMNS,
+    event_json, insert_json, push_csv_fields, push_header, Column, EventRow, Meta, Value,
+    EVENT_COLUMNS,
 };
 use crate::engine::schedule::{Chosen, ScoreWeights, TelescopeEvents};
 use crate::inputs::sites::Site;
@@ -25,14 +26,29 @@ pub type ScheduledValue = for<'r, 'a> fn(&'r ScheduledRow<'a>) -> Value<'r>;
 pub const SCHEDULE_COLUMNS: &[Column<ScheduledValue>] = &[
     Column {
         name: "telescope",
+        meta: Meta {
+            datatype: "string",
+            unit: None,
+            description: "telescope name",
+        },
         value: |r| Value::Text(&r.tels[r.chosen.telescope_index].telescope),
     },
     Column {
         name: "score",
+        meta: Meta {
+            datatype: "float64",
+            unit: None,
+            description: "schedule score",
+        },
         value: |r| Value::Fixed(r.chosen.score, 4),
     },
     Column {
         name: "paired_with",
+        meta: Meta {
+            datatype: "string",
+            unit: None,
+            description: "the telescope holding the other contact of a complementary pair",
+        },
         value: |r| match r.chosen.pair {
             Some((t, _)) => Value::Owned(tel_label(r.tels, r.sites, t)),
             None => Value::Null,
@@ -40,6 +56,11 @@ pub const SCHEDULE_COLUMNS: &[Column<ScheduledValue>] = &[
     },
     Column {
         name: "combined_coverage",
+        meta: Meta {
+            datatype: "float64",
+            unit: None,
+            description: "coverage of the pair together, rounded down",
+        },
         value: |r| match r.chosen.pair {
             Some((_, cov)) => Value::FloorFixed(cov, 3),
             None => Value::Null,
@@ -109,6 +130,34 @@ pub fn schedule_csv(
             sites,
         };
         push_csv_fields(SCHEDULE_COLUMNS, |f| f(&extra), &mut out);
+        out.push('\n');
+    }
+    out
+}
+
+/// ECSV (astropy APE 6): the event columns, then `telescope`, `score`, `paired_with`, `combined_coverage`.
+pub fn schedule_ecsv(
+    chosen: &[Chosen],
+    tels: &[TelescopeEvents],
+    sites: &[Site],
+    targets: &[Target],
+) -> String {
+    use super::columns::{metas, push_ecsv_fields, push_ecsv_header};
+    let mut out = String::new();
+    push_ecsv_header(
+        metas(EVENT_COLUMNS).chain(metas(SCHEDULE_COLUMNS)),
+        &mut out,
+    );
+    for c in chosen {
+        let row = EventRow::of(&c.event, sites, targets);
+        push_ecsv_fields(EVENT_COLUMNS, |f| f(&row), &mut out);
+        out.push(',');
+        let extra = ScheduledRow {
+            chosen: c,
+            tels,
+            sites,
+        };
+        push_ecsv_fields(SCHEDULE_COLUMNS, |f| f(&extra), &mut out);
         out.push('\n');
     }
     out
