@@ -251,3 +251,73 @@ fn ecsv_has_a_typed_self_describing_header() {
     ]);
     assert_eq!(o.status.code(), Some(2));
 }
+
+#[test]
+fn a_project_file_holds_the_files_the_mapping_and_the_defaults() {
+    let d = temp("project");
+    std::fs::write(
+        d.join("dipwatch.toml"),
+        format!(
+            "# The example programme, read from a foreign catalogue export.\nsites = {:?}\ntargets = {:?}\ncolumns = {:?}\n\n[plan]\nsigma = 2\nformat = \"csv\"\n",
+            repo("sites.example.toml"),
+            repo("tests/data/foreign_catalogue.csv"),
+            MAP
+        ),
+    )
+    .unwrap();
+    let run_in = |args: &[&str]| {
+        std::process::Command::new(env!("CARGO_BIN_EXE_dipwatch"))
+            .args(args)
+            .current_dir(&d)
+            .output()
+            .unwrap()
+    };
+    // Found in the working folder: no file options, the mapping applied, CSV by default, sigma 2 from the file.
+    let o = run_in(&[
+        "plan",
+        "--from",
+        "2027-03-01",
+        "--days",
+        "30",
+        "--include-unobservable",
+    ]);
+    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    let with_file = String::from_utf8(o.stdout).unwrap();
+    let canonical_sigma2 = plan_csv(&repo("targets.example.csv"), &["--sigma", "2"]);
+    assert_eq!(with_file, canonical_sigma2);
+    // The command line wins over the file.
+    let o = run_in(&[
+        "plan",
+        "--from",
+        "2027-03-01",
+        "--days",
+        "30",
+        "--include-unobservable",
+        "--sigma",
+        "1",
+    ]);
+    assert_eq!(
+        String::from_utf8(o.stdout).unwrap(),
+        plan_csv(&repo("targets.example.csv"), &[])
+    );
+    // `config` says what is in effect and where it comes from.
+    let o = run_in(&["config"]);
+    let text = String::from_utf8(o.stdout).unwrap();
+    assert!(
+        text.contains("sigma            2") && text.contains("dipwatch.toml:7"),
+        "{text}"
+    );
+    assert!(
+        text.contains("baseline_before  30") && text.contains("from built-in default"),
+        "{text}"
+    );
+    // An unknown key is an error with its line.
+    std::fs::write(d.join("bad.toml"), "sites = \"x\"\n[plan]\nsigmaa = 2\n").unwrap();
+    let o = run_in(&["plan", "--config", "bad.toml"]);
+    assert_eq!(o.status.code(), Some(2));
+    let err = String::from_utf8_lossy(&o.stderr);
+    assert!(
+        err.contains("bad.toml:3:") && err.contains("sigmaa"),
+        "{err}"
+    );
+}

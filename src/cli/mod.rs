@@ -4,6 +4,7 @@ use anyhow::{bail, Context, Result};
 use chrono::{Duration, NaiveDate};
 use clap::{Args, Parser, Subcommand, ValueEnum};
 use dipwatch::engine::plan::{plan, PlanOptions};
+use dipwatch::inputs::project::{Project, Setting};
 use dipwatch::inputs::sites::{parse_sites, Site};
 use dipwatch::inputs::targets::{parse_targets, ColumnMap, Target};
 use dipwatch::inputs::InputError;
@@ -36,6 +37,9 @@ use tonight::*;
 struct Cli {
     #[command(subcommand)]
     command: Command,
+    /// Project file with the files, column mapping and option defaults. Default: ./dipwatch.toml if present
+    #[arg(long, global = true, value_name = "FILE")]
+    config: Option<PathBuf>,
 }
 
 #[derive(Subcommand, Debug)]
@@ -55,6 +59,8 @@ enum Command {
     /// Draw SVG charts: one night for one target, or a season grid of verdicts.
     #[command(subcommand)]
     Chart(ChartCommand),
+    /// Print the settings in effect (files, column mapping, option defaults) and where each comes from.
+    Config,
 }
 
 /// Where the sites and targets come from, and which of them to use.
@@ -87,15 +93,133 @@ struct FileArgs {
 /// Where and how a command writes its result.
 #[derive(Args, Debug)]
 struct OutputArgs {
-    /// Output format
-    #[arg(long, value_enum, default_value_t = Format::Table)]
-    format: Format,
+    /// Output format [default: table, or the project file's]
+    #[arg(long, value_enum)]
+    format: Option<Format>,
     /// Show UTC instead of site local time in the table
     #[arg(long)]
     utc: bool,
     /// Write to this file (atomically) instead of standard output
     #[arg(long, value_name = "FILE")]
     out: Option<PathBuf>,
+}
+
+impl OutputArgs {
+    /// The format: the command line, then the project file, then `table`.
+    fn format(&self) -> Format {
+        self.format
+            .or_else(|| {
+                project()
+                    .and_then(|p| p.project.format.as_ref())
+                    .and_then(|f| Format::from_str(&f.value, true).ok())
+            })
+            .unwrap_or(Format::Table)
+    }
+}
+
+/// A project file as loaded: its label, its folder (paths in it are relative to it) and its settings.
+struct LoadedProject {
+    label: String,
+    dir: PathBuf,
+    project: Project,
+}
+
+static PROJECT: std::sync::OnceLock<Option<LoadedProject>> = std::sync::OnceLock::new();
+
+/// The project file in effect, if any.
+fn project() -> Option<&'static LoadedProject> {
+    PROJECT.get().and_then(Option::as_ref)
+}
+
+/// Load `--config FILE`, or ./dipwatch.toml when it exists.
+fn load_project(given: &Option<PathBuf>) -> Result<Option<LoadedProject>> {
+    let path = match given {
+        Some(p) => p.clone(),
+        None if Path::new("dipwatch.toml").exists() => PathBuf::from("dipwatch.toml"),
+        None => return Ok(None),
+    };
+    let label = path.display().to_string();
+    let text = std::fs::read_to_string(&path)
+        .with_context(|| format!("cannot read project file {label}"))?;
+    let project = dipwatch::inputs::project::parse_project(&label, &text)?;
+    let dir = path.parent().map(Path::to_path_buf).unwrap_or_default();
+    Ok(Some(LoadedProject {
+        label,
+        dir,
+        project,
+    }))
+}
+
+/// `dipwatch config`: every setting in effect and where it comes from.
+fn run_config() -> Result<()> {
+    let p = project();
+    let from = |line: Option<usize>| match (p, line) {
+        (Some(p), Some(l)) => format!("{}:{l}", p.label),
+        _ => "built-in default".to_string(),
+    };
+    let mut out = match p {
+        Some(p) => format!("Project file: {}\n", p.label),
+        None => "No project file (./dipwatch.toml not found, no --config given).\n".to_string(),
+    };
+    let pr = p.map(|p| &p.project);
+    let text = |s: Option<&Setting<String>>, default: &str| {
+        (
+            s.map_or(default.to_string(), |s| s.value.clone()),
+            from(s.map(|s| s.line)),
+        )
+    };
+    let num = |s: Option<&Setting<f64>>, default: f64| {
+        (
+            s.map_or(default, |s| s.value).to_string(),
+            from(s.map(|s| s.line)),
+        )
+    };
+    let rows = [
+        (
+            "sites",
+            text(pr.and_then(|p| p.sites.as_ref()), "./sites.toml"),
+        ),
+        (
+            "targets",
+            text(pr.and_then(|p| p.targets.as_ref()), "./targets.csv"),
+        ),
+        (
+            "columns",
+            text(
+                pr.and_then(|p| p.columns.as_ref()),
+                "(none: canonical names)",
+            ),
+        ),
+        ("sigma", num(pr.and_then(|p| p.sigma.as_ref()), 1.0)),
+        (
+            "baseline_before",
+            num(pr.and_then(|p| p.baseline_before.as_ref()), 30.0),
+        ),
+        (
+            "baseline_after",
+            num(pr.and_then(|p| p.baseline_after.as_ref()), 30.0),
+        ),
+        (
+            "min_coverage",
+            num(pr.and_then(|p| p.min_coverage.as_ref()), 0.0),
+        ),
+        (
+            "min_in_transit",
+            num(
+                pr.and_then(|p| p.min_in_transit.as_ref()),
+                dipwatch::engine::plan::DEFAULT_MIN_IN_TRANSIT_MIN,
+            ),
+        ),
+        ("format", text(pr.and_then(|p| p.format.as_ref()), "table")),
+    ];
+    for (key, (value, source)) in rows {
+        out.push_str(&format!(
+            "  {key:<16} {value}\n  {:<16} from {source}\n",
+            ""
+        ));
+    }
+    out.push_str("Options given on the command line override these.\n");
+    emit(&out, None)
 }
 
 /// A range of "night of" dates.
@@ -155,46 +279,21 @@ impl Selection {
 /// How blocks are built and judged.
 #[derive(Args, Debug)]
 struct BlockArgs {
-    /// Smallest in-transit coverage (0-1) to list an event
-    #[arg(
-        long,
-        value_name = "F",
-        default_value_t = 0.0,
-        allow_negative_numbers = true
-    )]
-    min_coverage: f64,
-    /// Smallest usable in-transit time to list an event, minutes (at most the transit's duration)
-    #[arg(
-        long,
-        value_name = "MIN",
-        default_value_t = dipwatch::engine::plan::DEFAULT_MIN_IN_TRANSIT_MIN,
-        allow_negative_numbers = true
-    )]
-    min_in_transit: f64,
-    /// Timing margin around ingress and egress, in units of the epoch's sigma
-    #[arg(
-        long,
-        value_name = "K",
-        default_value_t = 1.0,
-        allow_negative_numbers = true
-    )]
-    sigma: f64,
-    /// Out-of-transit baseline wanted before ingress, minutes
-    #[arg(
-        long,
-        value_name = "MIN",
-        default_value_t = 30.0,
-        allow_negative_numbers = true
-    )]
-    baseline_before: f64,
-    /// Out-of-transit baseline wanted after egress, minutes
-    #[arg(
-        long,
-        value_name = "MIN",
-        default_value_t = 30.0,
-        allow_negative_numbers = true
-    )]
-    baseline_after: f64,
+    /// Smallest in-transit coverage (0-1) to list an event [default: 0]
+    #[arg(long, value_name = "F", allow_negative_numbers = true)]
+    min_coverage: Option<f64>,
+    /// Smallest usable in-transit time to list an event, minutes (at most the transit's duration) [default: 30]
+    #[arg(long, value_name = "MIN", allow_negative_numbers = true)]
+    min_in_transit: Option<f64>,
+    /// Timing margin around ingress and egress, in units of the epoch's sigma [default: 1]
+    #[arg(long, value_name = "K", allow_negative_numbers = true)]
+    sigma: Option<f64>,
+    /// Out-of-transit baseline wanted before ingress, minutes [default: 30]
+    #[arg(long, value_name = "MIN", allow_negative_numbers = true)]
+    baseline_before: Option<f64>,
+    /// Out-of-transit baseline wanted after egress, minutes [default: 30]
+    #[arg(long, value_name = "MIN", allow_negative_numbers = true)]
+    baseline_after: Option<f64>,
 }
 
 impl BlockArgs {
@@ -204,19 +303,46 @@ impl BlockArgs {
         last_night: NaiveDate,
         include_unobservable: bool,
     ) -> Result<PlanOptions> {
-        check_finite("min-coverage", self.min_coverage, 0.0, 1.0)?;
-        check_finite("min-in-transit", self.min_in_transit, 0.0, 1440.0)?;
-        check_finite("sigma", self.sigma, 0.0, 10.0)?;
-        check_finite("baseline-before", self.baseline_before, 0.0, 720.0)?;
-        check_finite("baseline-after", self.baseline_after, 0.0, 720.0)?;
+        // The command line, then the project file, then the built-in default.
+        let pick = |given: Option<f64>, key: fn(&Project) -> Option<f64>, default: f64| {
+            given
+                .or(project().and_then(|p| key(&p.project)))
+                .unwrap_or(default)
+        };
+        let min_coverage = pick(
+            self.min_coverage,
+            |p| p.min_coverage.as_ref().map(|s| s.value),
+            0.0,
+        );
+        let min_in_transit = pick(
+            self.min_in_transit,
+            |p| p.min_in_transit.as_ref().map(|s| s.value),
+            dipwatch::engine::plan::DEFAULT_MIN_IN_TRANSIT_MIN,
+        );
+        let sigma = pick(self.sigma, |p| p.sigma.as_ref().map(|s| s.value), 1.0);
+        let before = pick(
+            self.baseline_before,
+            |p| p.baseline_before.as_ref().map(|s| s.value),
+            30.0,
+        );
+        let after = pick(
+            self.baseline_after,
+            |p| p.baseline_after.as_ref().map(|s| s.value),
+            30.0,
+        );
+        check_finite("min-coverage", min_coverage, 0.0, 1.0)?;
+        check_finite("min-in-transit", min_in_transit, 0.0, 1440.0)?;
+        check_finite("sigma", sigma, 0.0, 10.0)?;
+        check_finite("baseline-before", before, 0.0, 720.0)?;
+        check_finite("baseline-after", after, 0.0, 720.0)?;
         Ok(PlanOptions {
             first_night,
             last_night,
-            sigma_k: self.sigma,
-            baseline_before_min: self.baseline_before,
-            baseline_after_min: self.baseline_after,
-            min_coverage: self.min_coverage,
-            min_in_transit_min: self.min_in_transit,
+            sigma_k: sigma,
+            baseline_before_min: before,
+            baseline_after_min: after,
+            min_coverage,
+            min_in_transit_min: min_in_transit,
             include_unobservable,
         })
     }
@@ -243,7 +369,10 @@ pub fn run() -> Result<()> {
             std::process::exit(code);
         }
     };
+    let loaded = load_project(&cli.config)?;
+    let _ = PROJECT.set(loaded);
     match cli.command {
+        Command::Config => run_config(),
         Command::Plan(args) => run_plan(args),
         Command::Tonight(args) => run_tonight(args),
         Command::Nights(args) => run_nights(args),
@@ -261,8 +390,16 @@ fn read_input(
     example: &str,
     what: &str,
 ) -> Result<(String, String)> {
-    let path = match given {
-        Some(p) => p.clone(),
+    let from_project = project().and_then(|p| {
+        let s = if what == "sites" {
+            &p.project.sites
+        } else {
+            &p.project.targets
+        };
+        s.as_ref().map(|s| p.dir.join(&s.value))
+    });
+    let path = match given.clone().or(from_project) {
+        Some(p) => p,
         None => {
             let p = PathBuf::from(default);
             if !p.exists() {
@@ -298,13 +435,22 @@ fn load_targets(
     columns: &Option<String>,
     names: &[String],
 ) -> Result<Vec<Target>> {
-    let map = match columns {
-        Some(spec) => ColumnMap::parse(spec).map_err(|m| anyhow::anyhow!("--columns: {m}"))?,
-        None => ColumnMap::default(),
-    };
+    let map = column_map(columns)?;
     let (label, text) = read_input(targets, "targets.csv", "targets.example.csv", "targets")?;
     let all = parse_targets(&label, &text, &map)?;
     select(all, names, |t| &t.name, "target", &label)
+}
+
+/// The column mapping: `--columns`, else the project file's `columns`, else none.
+fn column_map(columns: &Option<String>) -> Result<ColumnMap> {
+    if let Some(spec) = columns {
+        return ColumnMap::parse(spec).map_err(|m| anyhow::anyhow!("--columns: {m}"));
+    }
+    match project().and_then(|p| p.project.columns.as_ref().map(|c| (p, c))) {
+        Some((p, c)) => ColumnMap::parse(&c.value)
+            .map_err(|m| anyhow::anyhow!("{}:{}: columns: {m}", p.label, c.line)),
+        None => Ok(ColumnMap::default()),
+    }
 }
 
 /// Load, parse and select sites and targets.

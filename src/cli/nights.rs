@@ -32,7 +32,7 @@ pub(super) fn run_nights(args: NightsArgs) -> Result<()> {
         .take_while(|d| *d <= last)
         .map(|d| dipwatch::engine::almanac::night_almanac(&site, d))
         .collect();
-    let text = match args.output.format {
+    let text = match args.output.format() {
         Format::Table => report::nights_table(&site, &nights, args.output.utc),
         Format::Csv => report::nights_csv(&nights),
         Format::Json => report::nights_json(&site, &nights),

@@ -15,11 +15,11 @@ pub(super) struct PlanArgs {
 
 pub(super) fn run_plan(args: PlanArgs) -> Result<()> {
     let (sites, targets, opts) = args.selection.load(args.include_unobservable)?;
-    if args.output.format == Format::Csv {
+    if args.output.format() == Format::Csv {
         return stream_plan_csv(&sites, &targets, &opts, args.output.out.as_deref());
     }
     let result = plan(&sites, &targets, &opts);
-    let text = match args.output.format {
+    let text = match args.output.format() {
         Format::Table => report::plan_table(&result, &sites, &targets, &opts, args.output.utc),
         Format::Csv => report::plan_csv(&result, &sites, &targets),
         Format::Json => report::plan_json(&result, &sites, &targets, &opts),

@@ -215,20 +215,14 @@ pub(super) fn write_refined_targets(
 
 pub(super) fn run_refine(args: RefineArgs) -> Result<()> {
     check_finite("stale-fraction", args.stale_fraction, 0.0, 10.0)?;
-    let targets_path = args
-        .targets
-        .clone()
-        .unwrap_or_else(|| PathBuf::from("targets.csv"));
-    let map = match &args.columns {
-        Some(spec) => ColumnMap::parse(spec).map_err(|m| anyhow::anyhow!("--columns: {m}"))?,
-        None => ColumnMap::default(),
-    };
+    let map = column_map(&args.columns)?;
     let (targets_label, targets_text) = read_input(
         &args.targets,
         "targets.csv",
         "targets.example.csv",
         "targets",
     )?;
+    let targets_path = PathBuf::from(&targets_label);
     let all_targets = parse_targets(&targets_label, &targets_text, &map)?;
     let targets = select(
         all_targets,

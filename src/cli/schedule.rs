@@ -116,7 +116,7 @@ pub(super) fn run_schedule(args: ScheduleArgs) -> Result<()> {
     let (sites, targets, opts) = args.selection.load(false)?;
     let (tels, chosen) = make_schedule(&sites, &targets, &opts, &args.choice)?;
     let weights = args.choice.weights();
-    let text = match args.output.format {
+    let text = match args.output.format() {
         Format::Table => report::schedule_table(
             &chosen,
             &tels,

@@ -6,6 +6,7 @@
 
 pub mod angles;
 pub mod observed;
+pub mod project;
 pub mod sites;
 pub mod targets;
 pub mod units;
