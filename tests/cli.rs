@@ -247,3 +247,64 @@ fn out_file_is_written_whole_and_unknown_site_is_named() {
         stderr(&o)
     );
 }
+
+#[test]
+fn streamed_json_and_ecsv_are_the_documents_of_the_whole_plan() {
+    // `plan --format json` streams one event per line; parsed, it is the document the library builds for the
+    // whole plan (options, sites with their nights without darkness, events, lost ephemerides).
+    let sites = dipwatch::inputs::sites::parse_sites(
+        "s",
+        &std::fs::read_to_string(repo("sites.example.toml")).unwrap(),
+    )
+    .unwrap();
+    let targets = dipwatch::inputs::targets::parse_targets(
+        "t",
+        &std::fs::read_to_string(repo("targets.example.csv")).unwrap(),
+        &dipwatch::inputs::targets::ColumnMap::default(),
+    )
+    .unwrap();
+    let opts = dipwatch::engine::plan::PlanOptions {
+        first_night: "2027-03-01".parse().unwrap(),
+        last_night: "2027-04-29".parse().unwrap(),
+        sigma_k: 1.0,
+        baseline_before_min: 30.0,
+        baseline_after_min: 30.0,
+        min_coverage: 0.0,
+        min_in_transit_min: dipwatch::engine::plan::DEFAULT_MIN_IN_TRANSIT_MIN,
+        include_unobservable: true,
+    };
+    let p = dipwatch::engine::plan::plan(&sites, &targets, &opts);
+    let want: serde_json::Value =
+        serde_json::from_str(&dipwatch::outputs::plan_json(&p, &sites, &targets, &opts)).unwrap();
+    let args = |format: &str| {
+        vec![
+            "plan".to_string(),
+            "--sites".into(),
+            repo("sites.example.toml"),
+            "--targets".into(),
+            repo("targets.example.csv"),
+            "--from".into(),
+            "2027-03-01".into(),
+            "--days".into(),
+            "60".into(),
+            "--include-unobservable".into(),
+            "--format".into(),
+            format.into(),
+        ]
+    };
+    let o = run(&args("json").iter().map(String::as_str).collect::<Vec<_>>());
+    assert!(o.status.success(), "{}", stderr(&o));
+    let got: serde_json::Value = serde_json::from_str(&stdout(&o)).unwrap();
+    assert!(want["events"].as_array().unwrap().len() > 100);
+    assert_eq!(got, want);
+    // ECSV rows are the CSV rows with True/False.
+    let e = run(&args("ecsv").iter().map(String::as_str).collect::<Vec<_>>());
+    let c = run(&args("csv").iter().map(String::as_str).collect::<Vec<_>>());
+    let ecsv_rows: Vec<String> = stdout(&e)
+        .lines()
+        .filter(|l| !l.starts_with('#'))
+        .map(|l| l.replace(",True,", ",true,").replace(",False,", ",false,"))
+        .collect();
+    let csv_rows: Vec<String> = stdout(&c).lines().map(str::to_string).collect();
+    assert_eq!(ecsv_rows, csv_rows);
+}

@@ -15,36 +15,27 @@ pub(super) struct PlanArgs {
 
 pub(super) fn run_plan(args: PlanArgs) -> Result<()> {
     let (sites, targets, opts) = args.selection.load(args.include_unobservable)?;
-    if args.output.format() == Format::Csv {
-        return stream_plan_csv(&sites, &targets, &opts, args.output.out.as_deref());
+    let format = args.output.format();
+    if format != Format::Table {
+        return stream_plan(&sites, &targets, &opts, args.output.out.as_deref(), format);
     }
     let result = plan(&sites, &targets, &opts);
-    let text = match args.output.format() {
-        Format::Table => report::plan_table(&result, &sites, &targets, &opts, args.output.utc),
-        Format::Csv => report::plan_csv(&result, &sites, &targets),
-        Format::Json => report::plan_json(&result, &sites, &targets, &opts),
-        Format::Ecsv => {
-            let events: Vec<&dipwatch::engine::plan::Event> = result
-                .sites
-                .iter()
-                .flat_map(|sp| sp.events.iter())
-                .collect();
-            report::events_ecsv(&events, &sites, &targets)
-        }
-    };
+    let text = report::plan_table(&result, &sites, &targets, &opts, args.output.utc);
     emit(&text, args.output.out.as_deref())
 }
 
 /// Nights planned at a time when streaming CSV: bounds memory at catalogue scale.
 pub(super) const STREAM_CHUNK_NIGHTS: i64 = 32;
 
-/// Plan and write CSV site by site and month by month, formatting rows in parallel; the output is the same
-/// as `report::plan_csv` of the whole plan. A progress bar shows on a terminal for long runs.
-pub(super) fn stream_plan_csv(
+/// Plan and write CSV, ECSV or JSON site by site and month by month, formatting the events in parallel and never
+/// holding the whole plan: the output is that of `report::plan_csv` (or the ECSV, or the same JSON document as
+/// `report::plan_json`, one event per line) of the whole plan. A progress bar shows on a terminal for long runs.
+pub(super) fn stream_plan(
     sites: &[Site],
     targets: &[Target],
     opts: &PlanOptions,
     out: Option<&Path>,
+    format: Format,
 ) -> Result<()> {
     use rayon::prelude::*;
     let planner = dipwatch::engine::plan::Planner::new(sites, targets, opts);
@@ -74,26 +65,44 @@ pub(super) fn stream_plan_csv(
         None
     };
     let write_all = |w: &mut dyn Write| -> Result<()> {
-        w.write_all(report::csv_header().as_bytes())?;
+        w.write_all(stream_head(sites, opts, format)?.as_bytes())?;
+        let mut lost = std::collections::BTreeMap::new();
+        let mut first = true;
         for si in 0..sites.len() {
             for &(a, b) in &chunks {
-                let (sp, _) = planner.site_plan(si, a, b);
+                let (sp, chunk_lost) = planner.site_plan(si, a, b);
+                for (ti, sigma) in chunk_lost {
+                    lost.entry(ti).or_insert(sigma);
+                }
                 let parts: Vec<String> = sp
                     .events
                     .par_chunks(2048)
-                    .map(|c| {
-                        let mut s = String::with_capacity(c.len() * 420);
-                        report::push_event_csv_rows(c, sites, targets, &mut s);
-                        s
-                    })
+                    .map(|c| format_events(c, sites, targets, format))
                     .collect();
-                for p in parts {
+                for p in parts.iter().filter(|p| !p.is_empty()) {
+                    if format == Format::Json && !first {
+                        w.write_all(b",\n")?;
+                    }
+                    first = false;
                     w.write_all(p.as_bytes())?;
                 }
                 if let Some(b) = &bar {
                     b.inc(1);
                 }
             }
+        }
+        if format == Format::Json {
+            let lost: Vec<dipwatch::engine::plan::LostEphemeris> = lost
+                .into_iter()
+                .map(
+                    |(target_index, sigma_min)| dipwatch::engine::plan::LostEphemeris {
+                        target_index,
+                        sigma_min,
+                    },
+                )
+                .collect();
+            let tail = serde_json::to_string(&report::lost_json(&lost, targets))?;
+            w.write_all(format!("\n  ],\n  \"lost_ephemerides\": {tail}\n}}\n").as_bytes())?;
         }
         w.flush()?;
         Ok(())
@@ -118,4 +127,69 @@ pub(super) fn stream_plan_csv(
         b.finish_and_clear();
     }
     result
+}
+
+/// What comes before the events: the CSV or ECSV header, or the JSON document up to its `events` array.
+fn stream_head(sites: &[Site], opts: &PlanOptions, format: Format) -> Result<String> {
+    Ok(match format {
+        Format::Ecsv => {
+            let mut s = String::new();
+            dipwatch::outputs::columns::push_ecsv_header(
+                dipwatch::outputs::columns::metas(report::EVENT_COLUMNS),
+                &mut s,
+            );
+            s
+        }
+        Format::Json => {
+            let site_info: Vec<serde_json::Value> = sites
+                .iter()
+                .map(|s| {
+                    let nights =
+                        dipwatch::engine::plan::nights_at(s, opts.first_night, opts.last_night);
+                    report::site_json(s, &nights)
+                })
+                .collect();
+            format!(
+                "{{\n  \"options\": {},\n  \"sites\": {},\n  \"events\": [\n",
+                serde_json::to_string(opts)?,
+                serde_json::to_string(&site_info)?
+            )
+        }
+        _ => report::csv_header(),
+    })
+}
+
+/// One chunk of events as CSV or ECSV lines, or JSON objects one per line (comma-separated, no trailing comma).
+fn format_events(
+    events: &[dipwatch::engine::plan::Event],
+    sites: &[Site],
+    targets: &[Target],
+    format: Format,
+) -> String {
+    let mut s = String::with_capacity(events.len() * 420);
+    match format {
+        Format::Json => {
+            for (i, e) in events.iter().enumerate() {
+                if i > 0 {
+                    s.push_str(",\n");
+                }
+                s.push_str("    ");
+                let obj = report::event_json(&report::EventRow::of(e, sites, targets));
+                s.push_str(&serde_json::to_string(&obj).unwrap_or_default());
+            }
+        }
+        Format::Ecsv => {
+            for e in events {
+                let row = report::EventRow::of(e, sites, targets);
+                dipwatch::outputs::columns::push_ecsv_fields(
+                    report::EVENT_COLUMNS,
+                    |f| f(&row),
+                    &mut s,
+                );
+                s.push('\n');
+            }
+        }
+        _ => report::push_event_csv_rows(events, sites, targets, &mut s),
+    }
+    s
 }

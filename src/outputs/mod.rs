@@ -15,7 +15,7 @@ pub use columns::{
     Meta, Value, EVENT_COLUMNS,
 };
 pub use nights::{nights_csv, nights_json, nights_table, NightRecord, NIGHT_FIELDS};
-pub use plan::{plan_csv, plan_json, plan_table};
+pub use plan::{lost_json, plan_csv, plan_json, plan_table, site_json};
 pub use refine::{
     refine_csv, refine_json, refine_text, rewrite_targets_csv, stale_status, tension_text,
 };

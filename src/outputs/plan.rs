@@ -30,32 +30,39 @@ pub fn plan_json(plan: &Plan, sites: &[Site], targets: &[Target], opts: &PlanOpt
     let site_info: Vec<serde_json::Value> = plan
         .sites
         .iter()
-        .map(|sp| {
-            let s = &sites[sp.site_index];
-            serde_json::json!({
-                "name": s.name,
-                "timezone": s.tz.name(),
-                "darkness": s.darkness_label,
-                "darkness_sun_alt_deg": s.darkness_alt_deg,
-                "min_alt_deg": round(s.min_alt_deg, 3),
-                "nights_without_darkness": sp.nights.iter().filter(|n| n.dark.is_none()).map(|n| n.night_of.to_string()).collect::<Vec<_>>(),
-            })
-        })
-        .collect();
-    let lost: Vec<serde_json::Value> = plan
-        .lost
-        .iter()
-        .map(|l| serde_json::json!({"target": targets[l.target_index].name, "sigma_min": round(l.sigma_min, 1)}))
+        .map(|sp| site_json(&sites[sp.site_index], &sp.nights))
         .collect();
     let doc = serde_json::json!({
         "options": opts,
         "sites": site_info,
         "events": event_objects(plan, sites, targets),
-        "lost_ephemerides": lost,
+        "lost_ephemerides": lost_json(&plan.lost, targets),
     });
     let mut s = serde_json::to_string_pretty(&doc).unwrap_or_default();
     s.push('\n');
     s
+}
+
+/// The `sites` entry of one site in the plan's JSON.
+pub fn site_json(s: &Site, nights: &[crate::engine::plan::Night]) -> serde_json::Value {
+    serde_json::json!({
+        "name": s.name,
+        "timezone": s.tz.name(),
+        "darkness": s.darkness_label,
+        "darkness_sun_alt_deg": s.darkness_alt_deg,
+        "min_alt_deg": round(s.min_alt_deg, 3),
+        "nights_without_darkness": nights.iter().filter(|n| n.dark.is_none()).map(|n| n.night_of.to_string()).collect::<Vec<_>>(),
+    })
+}
+
+/// The `lost_ephemerides` of the plan's JSON.
+pub fn lost_json(
+    lost: &[crate::engine::plan::LostEphemeris],
+    targets: &[Target],
+) -> serde_json::Value {
+    lost.iter()
+        .map(|l| serde_json::json!({"target": targets[l.target_index].name, "sigma_min": round(l.sigma_min, 1)}))
+        .collect()
 }
 
 /// Compress a sorted list of dates into "a to b (n nights)" runs.
