@@ -174,8 +174,12 @@ fn format_events(
                     s.push_str(",\n");
                 }
                 s.push_str("    ");
-                let obj = report::event_json(&report::EventRow::of(e, sites, targets));
-                s.push_str(&serde_json::to_string(&obj).unwrap_or_default());
+                let row = report::EventRow::of(e, sites, targets);
+                dipwatch::outputs::columns::push_json_object(
+                    report::EVENT_COLUMNS,
+                    |f| f(&row),
+                    &mut s,
+                );
             }
         }
         Format::Ecsv => {

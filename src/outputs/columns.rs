@@ -458,6 +458,83 @@ fn push_csv_value(v: &Value<'_>, out: &mut String) {
     }
 }
 
+/// Append one row as a compact JSON object `{"name":value,...}` without building a value tree: the same
+/// values as [`insert_json`] gives (numbers printed with their fixed decimals parse to the same doubles).
+pub fn push_json_object<'v, F>(
+    columns: &[Column<F>],
+    value: impl Fn(&F) -> Value<'v>,
+    out: &mut String,
+) {
+    out.push('{');
+    for (i, c) in columns.iter().enumerate() {
+        if i > 0 {
+            out.push(',');
+        }
+        push_json_text(c.name, out);
+        out.push(':');
+        push_json_value(&value(&c.value), out);
+    }
+    out.push('}');
+}
+
+/// A JSON string literal (RFC 8259 section 7 escapes).
+fn push_json_text(s: &str, out: &mut String) {
+    out.push('"');
+    for ch in s.chars() {
+        match ch {
+            '"' => out.push_str("\\\""),
+            '\\' => out.push_str("\\\\"),
+            '\n' => out.push_str("\\n"),
+            '\r' => out.push_str("\\r"),
+            '\t' => out.push_str("\\t"),
+            c if (c as u32) < 0x20 => {
+                use std::fmt::Write;
+                let _ = write!(out, "\\u{:04x}", c as u32);
+            }
+            c => out.push(c),
+        }
+    }
+    out.push('"');
+}
+
+fn push_json_value(v: &Value<'_>, out: &mut String) {
+    match v {
+        Value::Text(s) => push_json_text(s, out),
+        Value::Owned(s) => push_json_text(s, out),
+        Value::Int(i) => push_fixed(*i as f64, 0, out),
+        Value::Bool(b) => out.push_str(if *b { "true" } else { "false" }),
+        Value::Fixed(x, d) if x.is_finite() => push_fixed(*x, *d, out),
+        Value::FloorFixed(x, d) if x.is_finite() => push_fixed(floor_to(*x, *d as i32), *d, out),
+        Value::OptFixed(Some(x), d) if x.is_finite() => push_fixed(*x, *d, out),
+        Value::Time(jd) | Value::OptTime(Some(jd)) => {
+            out.push('"');
+            push_rfc3339_utc(*jd, out);
+            out.push('"');
+        }
+        Value::Date(_) => {
+            out.push('"');
+            push_csv_value(v, out);
+            out.push('"');
+        }
+        // As serde_json prints a double (2.0, not 2), so that both forms parse to the same value.
+        Value::Input(Some(x)) if x.is_finite() => match serde_json::Number::from_f64(*x) {
+            Some(n) => out.push_str(&n.to_string()),
+            None => out.push_str("null"),
+        },
+        Value::Reasons(rs) => {
+            out.push('[');
+            for (k, r) in rs.iter().enumerate() {
+                if k > 0 {
+                    out.push(',');
+                }
+                push_json_text(r.label(), out);
+            }
+            out.push(']');
+        }
+        _ => out.push_str("null"),
+    }
+}
+
 /// One JSON value: numbers rounded to their decimals, times as RFC 3339 text, missing values null.
 fn json_value(v: &Value<'_>) -> serde_json::Value {
     use serde_json::Value as J;
@@ -530,6 +607,22 @@ fn push_digits(mut v: u64, width: usize, out: &mut String) {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn json_text_escapes_like_serde() {
+        for t in [
+            "plain",
+            "quote \" and \\ back",
+            "line\nbreak\ttab",
+            "ctrl \u{1} \u{1f}",
+            "Kestrel Moor \u{e9}",
+        ] {
+            let mut s = String::new();
+            push_json_text(t, &mut s);
+            let back: String = serde_json::from_str(&s).unwrap();
+            assert_eq!(back, t);
+        }
+    }
 
     #[test]
     fn fixed_decimals_match_the_formatter() {
