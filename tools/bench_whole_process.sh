@@ -25,6 +25,8 @@ run5() { # label, command...
 }
 run5 "plan 10000 targets x 3 sites x 365 nights -> CSV" \
   ./target/release/dipwatch plan --sites "$work/sites.toml" --targets "$work/cat10k.csv" --from 2027-01-01 --days 365 --format csv
+run5 "plan 10000 targets x 3 sites x 365 nights -> JSON" \
+  ./target/release/dipwatch plan --sites "$work/sites.toml" --targets "$work/cat10k.csv" --from 2027-01-01 --days 365 --format json
 run5 "tonight, 1 site, 100 targets" \
   ./target/release/dipwatch tonight --sites "$work/sites.toml" --targets "$work/cat100.csv" --site "North Bench" --date 2027-03-10
 # GNU time reports 10 ms steps; time `tonight` as 5 batches of 20 runs for a finer median.
