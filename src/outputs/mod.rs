@@ -105,6 +105,16 @@ fn clock_label(
     format!("{} ({})", zones.join(" then "), site.tz.name())
 }
 
+/// A table of events 120 columns wide: no padding (the column rules separate), the content arranged dynamically.
+fn wide_table(header: Vec<&str>) -> comfy_table::Table {
+    let mut table = styled_table(header, comfy_table::ContentArrangement::Dynamic);
+    table.set_width(120);
+    for col in table.column_iter_mut() {
+        col.set_padding((0, 0));
+    }
+    table
+}
+
 /// Let only the last column of `table` wrap: every other column keeps its content width.
 fn last_column_wraps(table: &mut comfy_table::Table) {
     let last = table.column_count() - 1;

@@ -5,7 +5,7 @@ use super::{hhmm, round};
 use crate::engine::plan::{Event, Plan, PlanOptions, Reason, SitePlan, Verdict};
 use crate::inputs::sites::Site;
 use crate::inputs::targets::Target;
-use comfy_table::{Cell, CellAlignment, ContentArrangement};
+use comfy_table::{Cell, CellAlignment};
 
 /// The JSON objects of every event of the plan, site by site.
 fn event_objects(plan: &Plan, sites: &[Site], targets: &[Target]) -> Vec<serde_json::Value> {
@@ -215,26 +215,18 @@ fn push_site_section(
 
 /// The events of one site as a table of 120 columns, rows grouped by night.
 fn events_table(events: &[Event], site: &Site, targets: &[Target], utc: bool) -> String {
-    let mut table = super::styled_table(
-        vec![
-            "Night",
-            "Target",
-            "Verdict",
-            "Cover",
-            "Block",
-            "Ingr  Mid   Egr",
-            "+-sig",
-            "Alt i/m/e",
-            "Moon",
-            "Notes",
-        ],
-        ContentArrangement::Dynamic,
-    );
-    table.set_width(120);
-    // The widest table of all: no padding, the column rules separate.
-    for col in table.column_iter_mut() {
-        col.set_padding((0, 0));
-    }
+    let mut table = super::wide_table(vec![
+        "Night",
+        "Target",
+        "Verdict",
+        "Cover",
+        "Block",
+        "Ingr  Mid   Egr",
+        "+-sig",
+        "Alt i/m/e",
+        "Moon",
+        "Notes",
+    ]);
     let mut previous_night = None;
     for e in events {
         let night_cell = if previous_night != Some(e.night_of) {

@@ -7,7 +7,7 @@ use super::columns::{
 use crate::engine::schedule::{Chosen, ScoreWeights, TelescopeEvents};
 use crate::inputs::sites::Site;
 use crate::inputs::targets::Target;
-use comfy_table::{Cell, CellAlignment, ContentArrangement};
+use comfy_table::{Cell, CellAlignment};
 
 /// A chosen block with what its extra columns need.
 pub struct ScheduledRow<'a> {
@@ -120,18 +120,7 @@ pub fn schedule_csv(
     out.push(',');
     push_header(SCHEDULE_COLUMNS, &mut out);
     out.push('\n');
-    for c in chosen {
-        let row = EventRow::of(&c.event, sites, targets);
-        push_csv_fields(EVENT_COLUMNS, |f| f(&row), &mut out);
-        out.push(',');
-        let extra = ScheduledRow {
-            chosen: c,
-            tels,
-            sites,
-        };
-        push_csv_fields(SCHEDULE_COLUMNS, |f| f(&extra), &mut out);
-        out.push('\n');
-    }
+    push_rows(chosen, (tels, sites, targets), false, &mut out);
     out
 }
 
@@ -142,25 +131,42 @@ pub fn schedule_ecsv(
     sites: &[Site],
     targets: &[Target],
 ) -> String {
-    use super::columns::{metas, push_ecsv_fields, push_ecsv_header};
+    use super::columns::{metas, push_ecsv_header};
     let mut out = String::new();
     push_ecsv_header(
         metas(EVENT_COLUMNS).chain(metas(SCHEDULE_COLUMNS)),
         &mut out,
     );
+    push_rows(chosen, (tels, sites, targets), true, &mut out);
+    out
+}
+
+/// One line per chosen block: the event columns, then the schedule's, as CSV (or ECSV with `ecsv`).
+fn push_rows(
+    chosen: &[Chosen],
+    (tels, sites, targets): (&[TelescopeEvents], &[Site], &[Target]),
+    ecsv: bool,
+    out: &mut String,
+) {
+    use super::columns::push_ecsv_fields;
     for c in chosen {
         let row = EventRow::of(&c.event, sites, targets);
-        push_ecsv_fields(EVENT_COLUMNS, |f| f(&row), &mut out);
-        out.push(',');
         let extra = ScheduledRow {
             chosen: c,
             tels,
             sites,
         };
-        push_ecsv_fields(SCHEDULE_COLUMNS, |f| f(&extra), &mut out);
+        if ecsv {
+            push_ecsv_fields(EVENT_COLUMNS, |f| f(&row), out);
+            out.push(',');
+            push_ecsv_fields(SCHEDULE_COLUMNS, |f| f(&extra), out);
+        } else {
+            push_csv_fields(EVENT_COLUMNS, |f| f(&row), out);
+            out.push(',');
+            push_csv_fields(SCHEDULE_COLUMNS, |f| f(&extra), out);
+        }
         out.push('\n');
     }
-    out
 }
 
 /// The terminal table: one table per telescope, rows grouped by night, site local time (or UTC).
@@ -187,23 +193,16 @@ pub fn schedule_table(
         if rows.is_empty() {
             continue;
         }
-        let mut table = super::styled_table(
-            vec![
-                "Night",
-                "Target",
-                "Verdict",
-                "Cover",
-                "Block",
-                "Ingr  Mid   Egr",
-                "Score",
-                "Notes",
-            ],
-            ContentArrangement::Dynamic,
-        );
-        table.set_width(120);
-        for col in table.column_iter_mut() {
-            col.set_padding((0, 0));
-        }
+        let mut table = super::wide_table(vec![
+            "Night",
+            "Target",
+            "Verdict",
+            "Cover",
+            "Block",
+            "Ingr  Mid   Egr",
+            "Score",
+            "Notes",
+        ]);
         let mut prev = None;
         for c in rows {
             let e = &c.event;
