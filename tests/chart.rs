@@ -1,18 +1,9 @@
 //! Charts: valid XML, one drawn block and two contact markers per event, one glyph per planned event, and a
 //! time axis that covers the night.
 
+mod common;
+use common::{repo, temp};
 use std::process::Command;
-
-fn repo(rel: &str) -> String {
-    format!("{}/{rel}", env!("CARGO_MANIFEST_DIR"))
-}
-
-fn temp(name: &str) -> std::path::PathBuf {
-    let d = std::env::temp_dir().join(format!("dipwatch-chart-{name}-{}", std::process::id()));
-    let _ = std::fs::remove_dir_all(&d);
-    std::fs::create_dir_all(&d).unwrap();
-    d
-}
 
 fn run(args: &[&str]) -> std::process::Output {
     let o = Command::new(env!("CARGO_BIN_EXE_dipwatch"))
@@ -270,17 +261,7 @@ fn night_chart_draws_the_zenith_limit_when_the_site_has_one() {
 fn night_chart_twilight_edges_are_the_almanac_crossings() {
     // The shading is cut exactly at the almanac's crossing times (before, a 5-minute sampling of hard-coded levels
     // put the edges up to 2.5 min off). Every civil/nautical/astronomical dusk and dawn inside the axis is an edge.
-    let sites = dipwatch::inputs::sites::parse_sites(
-        "s",
-        &std::fs::read_to_string(repo("sites.example.toml")).unwrap(),
-    )
-    .unwrap();
-    let targets = dipwatch::inputs::targets::parse_targets(
-        "t",
-        &std::fs::read_to_string(repo("targets.example.csv")).unwrap(),
-        &dipwatch::inputs::targets::ColumnMap::default(),
-    )
-    .unwrap();
+    let (sites, targets) = common::example_inputs();
     let alm = dipwatch::engine::almanac::night_almanac(&sites[0], "2027-03-07".parse().unwrap());
     let track = dipwatch::engine::track::night_track(&sites[0], &targets[0], &alm, &[]);
     let edges: Vec<f64> = track.twilight.iter().map(|s| s.start_utc).skip(1).collect();

@@ -1,11 +1,9 @@
 //! The `dipwatch` binary end to end: the README's example run, output formats, and bad input.
 
+mod common;
+use common::repo;
 use std::path::PathBuf;
 use std::process::{Command, Output};
-
-fn repo(rel: &str) -> String {
-    format!("{}/{rel}", env!("CARGO_MANIFEST_DIR"))
-}
 
 fn run(args: &[&str]) -> Output {
     Command::new(env!("CARGO_BIN_EXE_dipwatch"))
@@ -252,17 +250,7 @@ fn out_file_is_written_whole_and_unknown_site_is_named() {
 fn streamed_json_and_ecsv_are_the_documents_of_the_whole_plan() {
     // `plan --format json` streams one event per line; parsed, it is the document the library builds for the
     // whole plan (options, sites with their nights without darkness, events, lost ephemerides).
-    let sites = dipwatch::inputs::sites::parse_sites(
-        "s",
-        &std::fs::read_to_string(repo("sites.example.toml")).unwrap(),
-    )
-    .unwrap();
-    let targets = dipwatch::inputs::targets::parse_targets(
-        "t",
-        &std::fs::read_to_string(repo("targets.example.csv")).unwrap(),
-        &dipwatch::inputs::targets::ColumnMap::default(),
-    )
-    .unwrap();
+    let (sites, targets) = common::example_inputs();
     let opts = dipwatch::engine::plan::PlanOptions {
         first_night: "2027-03-01".parse().unwrap(),
         last_night: "2027-04-29".parse().unwrap(),

@@ -250,17 +250,7 @@ fn tonight_needs_no_site_name_when_the_file_holds_one_site() {
 
 #[test]
 fn tonight_on_the_day_puts_the_next_action_first() {
-    let sites = dipwatch::inputs::sites::parse_sites(
-        "s",
-        &std::fs::read_to_string(common::repo("sites.example.toml")).unwrap(),
-    )
-    .unwrap();
-    let targets = dipwatch::inputs::targets::parse_targets(
-        "t",
-        &std::fs::read_to_string(common::repo("targets.example.csv")).unwrap(),
-        &dipwatch::inputs::targets::ColumnMap::default(),
-    )
-    .unwrap();
+    let (sites, targets) = common::example_inputs();
     let d = date(2027, 3, 2);
     let mut o = opts(d, d);
     o.min_in_transit_min = DEFAULT_MIN_IN_TRANSIT_MIN;

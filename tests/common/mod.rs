@@ -138,3 +138,19 @@ pub fn plain_target(
         coord_epoch_jyear: 2000.0,
     }
 }
+
+/// The example sites and targets (sites.example.toml, targets.example.csv), parsed.
+pub fn example_inputs() -> (Vec<Site>, Vec<Target>) {
+    let sites = dipwatch::inputs::sites::parse_sites(
+        "sites.example.toml",
+        &std::fs::read_to_string(repo("sites.example.toml")).unwrap(),
+    )
+    .unwrap();
+    let targets = dipwatch::inputs::targets::parse_targets(
+        "targets.example.csv",
+        &std::fs::read_to_string(repo("targets.example.csv")).unwrap(),
+        &dipwatch::inputs::targets::ColumnMap::default(),
+    )
+    .unwrap();
+    (sites, targets)
+}
