@@ -275,3 +275,17 @@ fn tonight_on_the_day_puts_the_next_action_first() {
         "{t}"
     );
 }
+
+#[test]
+fn tonight_in_the_morning_means_the_coming_night() {
+    let (sites, _) = common::example_inputs();
+    let kestrel = &sites[0];
+    // 2027-03-02 at Kestrel Moor (GMT): at 23:00 UTC on the 1st the night of the 1st is in progress; at 03:00 on
+    // the 2nd it still is (dark until 05:38); at 11:00 on the 2nd its dark time is over, so "tonight" is the 2nd.
+    let at = |d: f64| dipwatch::astro::time::jd_from_calendar(2027, 3, d);
+    let night = |jd| dipwatch::engine::tonight::current_or_coming_night(kestrel, jd);
+    assert_eq!(night(at(1.0 + 23.0 / 24.0)), date(2027, 3, 1));
+    assert_eq!(night(at(2.0 + 3.0 / 24.0)), date(2027, 3, 1));
+    assert_eq!(night(at(2.0 + 11.0 / 24.0)), date(2027, 3, 2));
+    assert_eq!(night(at(2.0 + 15.0 / 24.0)), date(2027, 3, 2));
+}

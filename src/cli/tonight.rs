@@ -35,7 +35,7 @@ pub(super) fn run_tonight(args: TonightArgs) -> Result<()> {
     let site = one_site(&args.files.sites, &args.site)?;
     let targets = load_targets(&args.files.targets, &args.files.columns, &args.target_names)?;
     let now_jd = dipwatch::astro::civil::jd_from_datetime(&chrono::Utc::now());
-    let current_night = dipwatch::astro::civil::night_of(now_jd, site.lon_deg, site.tz);
+    let current_night = dipwatch::engine::tonight::current_or_coming_night(&site, now_jd);
     let date = args.date.unwrap_or(current_night);
     let opts = args.block.options(date, date, true)?;
     // The countdown only makes sense for the night in progress or about to begin.

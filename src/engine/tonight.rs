@@ -35,6 +35,23 @@ pub struct Tonight<'a> {
     pub now_utc: Option<f64>,
 }
 
+/// The night a person means by "tonight" at `now_utc`: the night in progress, or, once its dark time is over
+/// (in the morning), the coming one. Nights run from local mean solar noon to the next.
+pub fn current_or_coming_night(site: &Site, now_utc: f64) -> chrono::NaiveDate {
+    let night = crate::astro::civil::night_of(now_utc, site.lon_deg, site.tz);
+    let window = super::almanac::night_window(site, night);
+    let tables = crate::astro::tables::SkyTables::new(window.start - 0.5, window.end + 0.5);
+    let over = match super::almanac::dark_interval(site, &window, &tables) {
+        Some(dark) => now_utc > dark.end,
+        None => now_utc > window.start + 0.5,
+    };
+    if over {
+        night.succ_opt().unwrap_or(night)
+    } else {
+        night
+    }
+}
+
 /// The night of `opts.first_night` at `site` for `targets` (all of them `asked` by name when `named`), with
 /// `now_utc` for the countdown.
 pub fn tonight<'a>(
