@@ -239,6 +239,26 @@ fn ecsv_has_a_typed_self_describing_header() {
         n += 1;
     }
     assert!(n > 5);
+    // tonight prints the night's events with the same columns.
+    let o = dipwatch(&[
+        "tonight",
+        "--sites",
+        &repo("sites.example.toml"),
+        "--targets",
+        &repo("targets.example.csv"),
+        "--site",
+        "Kestrel Moor",
+        "--date",
+        "2027-03-07",
+        "--format",
+        "ecsv",
+    ]);
+    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    let t = String::from_utf8(o.stdout).unwrap();
+    assert!(
+        t.starts_with("# %ECSV 1.0\n") && t.contains("\nAmberfall b,Kestrel Moor,274,whole,True,"),
+        "{t}"
+    );
     // A command that prints no events refuses it.
     let o = dipwatch(&[
         "nights",

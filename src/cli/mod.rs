@@ -249,7 +249,7 @@ enum Format {
 /// The refusal of `--format ecsv` by a command that prints no events.
 fn no_ecsv(command: &str) -> anyhow::Error {
     anyhow::anyhow!(
-        "--format ecsv: found ecsv for {command}, expected table, csv or json (ecsv is written by plan and schedule)"
+        "--format ecsv: found ecsv for {command}, expected table, csv or json (ecsv is written by plan, schedule and tonight)"
     )
 }
 

@@ -6,6 +6,8 @@ use super::*;
 pub(super) enum TextFormat {
     Text,
     Json,
+    /// The night's events as ECSV (astropy APE 6), the columns of `plan`
+    Ecsv,
 }
 
 #[derive(Args, Debug)]
@@ -50,6 +52,10 @@ pub(super) fn run_tonight(args: TonightArgs) -> Result<()> {
     let text = match args.format {
         TextFormat::Text => report::tonight_text(&night, &targets, args.utc),
         TextFormat::Json => report::tonight_json(&night, std::slice::from_ref(&site), &targets),
+        TextFormat::Ecsv => {
+            let events: Vec<&dipwatch::engine::plan::Event> = night.events.iter().collect();
+            report::events_ecsv(&events, std::slice::from_ref(&site), &targets)
+        }
     };
     emit(&text, None)
 }
