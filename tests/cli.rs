@@ -296,3 +296,42 @@ fn streamed_json_and_ecsv_are_the_documents_of_the_whole_plan() {
     let csv_rows: Vec<String> = stdout(&c).lines().map(str::to_string).collect();
     assert_eq!(ecsv_rows, csv_rows);
 }
+
+#[test]
+fn noise_budget_command() {
+    let o = run(&[
+        "noise",
+        "--aperture",
+        "1.0",
+        "--mag",
+        "11.5",
+        "--band",
+        "V",
+        "--exposure",
+        "60",
+    ]);
+    assert!(o.status.success(), "{}", stderr(&o));
+    let out = stdout(&o);
+    for term in [
+        "source",
+        "sky",
+        "dark",
+        "read",
+        "scintillation",
+        "total (white)",
+        "per 10 min",
+    ] {
+        assert!(out.contains(term), "{term} missing:\n{out}");
+    }
+    // A bright star on a small telescope saturates even at the shortest exposure: say so.
+    let o = run(&["noise", "--aperture", "0.4", "--mag", "6"]);
+    assert!(
+        stdout(&o).contains("SATURATES even at 1 s: defocus"),
+        "{}",
+        stdout(&o)
+    );
+    // A band that does not exist is an error naming the choices.
+    let o = run(&["noise", "--aperture", "0.4", "--mag", "12", "--band", "Q"]);
+    assert_eq!(o.status.code(), Some(2));
+    assert!(stderr(&o).contains("--band: found \"Q\", expected U, B, V, R, I, g, r, i or z"));
+}

@@ -15,6 +15,7 @@ use std::path::{Path, PathBuf};
 mod calendar;
 mod chart;
 mod nights;
+mod noise;
 mod plan;
 mod refine;
 mod schedule;
@@ -23,6 +24,7 @@ mod tonight;
 use calendar::*;
 use chart::*;
 use nights::*;
+use noise::*;
 use plan::*;
 use refine::*;
 use schedule::*;
@@ -61,6 +63,9 @@ enum Command {
     Chart(ChartCommand),
     /// Print the settings in effect (files, column mapping, option defaults) and where each comes from.
     Config,
+    /// The noise budget of one exposure of one star through one telescope (ppt per term), with the suggested
+    /// exposure and the noise per 10 minutes.
+    Noise(NoiseArgs),
 }
 
 /// Where the sites and targets come from, and which of them to use.
@@ -373,6 +378,7 @@ pub fn run() -> Result<()> {
     let _ = PROJECT.set(loaded);
     match cli.command {
         Command::Config => run_config(),
+        Command::Noise(args) => run_noise(args),
         Command::Plan(args) => run_plan(args),
         Command::Tonight(args) => run_tonight(args),
         Command::Nights(args) => run_nights(args),

@@ -2,6 +2,7 @@
 //! (`schedule`), and ephemerides refined from observed times (`refine`). Pure computation on the inputs and the sky.
 
 pub mod almanac;
+pub mod noise;
 pub mod plan;
 pub mod refine;
 pub mod schedule;
