@@ -25,6 +25,7 @@ fn options(nights: i64) -> PlanOptions {
         baseline_after_min: 30.0,
         min_coverage: 0.0,
         min_in_transit_min: 0.0,
+        min_snr: 0.0,
         include_unobservable: false,
     }
 }

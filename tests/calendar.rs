@@ -207,6 +207,7 @@ fn every_event_round_trips_with_the_plans_times_and_text() {
         baseline_after_min: 30.0,
         min_coverage: 0.0,
         min_in_transit_min: dipwatch::engine::plan::DEFAULT_MIN_IN_TRANSIT_MIN,
+        min_snr: 0.0,
         include_unobservable: false,
     };
     let p = plan(&sites, &targets, &opts);

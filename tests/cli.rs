@@ -259,6 +259,7 @@ fn streamed_json_and_ecsv_are_the_documents_of_the_whole_plan() {
         baseline_after_min: 30.0,
         min_coverage: 0.0,
         min_in_transit_min: dipwatch::engine::plan::DEFAULT_MIN_IN_TRANSIT_MIN,
+        min_snr: 0.0,
         include_unobservable: true,
     };
     let p = dipwatch::engine::plan::plan(&sites, &targets, &opts);
@@ -334,4 +335,56 @@ fn noise_budget_command() {
     let o = run(&["noise", "--aperture", "0.4", "--mag", "12", "--band", "Q"]);
     assert_eq!(o.status.code(), Some(2));
     assert!(stderr(&o).contains("--band: found \"Q\", expected U, B, V, R, I, g, r, i or z"));
+}
+
+#[test]
+fn min_snr_drops_events_with_their_reason() {
+    let base = [
+        "plan",
+        "--sites",
+        &repo("sites.example.toml"),
+        "--targets",
+        &repo("targets.example.csv"),
+        "--site",
+        "Kestrel Moor",
+        "--from",
+        "2027-03-01",
+        "--days",
+        "10",
+        "--format",
+        "json",
+    ]
+    .map(String::from)
+    .to_vec();
+    let get = |extra: &[&str]| {
+        let mut a = base.clone();
+        a.extend(extra.iter().map(|s| s.to_string()));
+        let o = run(&a.iter().map(String::as_str).collect::<Vec<_>>());
+        assert!(o.status.success(), "{}", stderr(&o));
+        serde_json::from_str::<serde_json::Value>(&stdout(&o)).unwrap()
+    };
+    let all = get(&[]);
+    let events = all["events"].as_array().unwrap();
+    assert!(!events.is_empty());
+    // The example's Kestrel Moor has a photometric set-up and every example target a magnitude.
+    for e in events {
+        assert!(
+            e["snr"].as_f64().unwrap() > 0.0 && e["exposure_s"].as_f64().unwrap() >= 1.0,
+            "{e}"
+        );
+    }
+    assert!(get(&["--min-snr", "100000"])["events"]
+        .as_array()
+        .unwrap()
+        .is_empty());
+    let why = get(&["--min-snr", "100000", "--include-unobservable"]);
+    assert!(why["events"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .any(|e| e["reasons"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .any(|r| r == "snr-below-minimum")));
 }

@@ -26,6 +26,7 @@ fn site(lat: f64, lon: f64, tz: &str, min_alt: f64) -> Site {
         horizon: HorizonProfile::default(),
         hour_angle_limits_h: None,
         min_moon_sep_deg: None,
+        photometry: None,
         max_alt_deg: None,
         telescopes: vec![Telescope {
             name: "main".into(),
@@ -68,6 +69,7 @@ fn opts(first: &str, last: &str, all: bool) -> PlanOptions {
         baseline_after_min: 30.0,
         min_coverage: 0.0,
         min_in_transit_min: 0.0,
+        min_snr: 0.0,
         include_unobservable: all,
     }
 }

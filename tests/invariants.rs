@@ -65,6 +65,7 @@ proptest! {
             baseline_after_min: 30.0,
             min_coverage: 0.0,
             min_in_transit_min: 0.0,
+            min_snr: 0.0,
             include_unobservable: all,
         };
         let p = plan(&sites, &targets, &opts);

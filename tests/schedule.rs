@@ -65,6 +65,7 @@ fn inputs() -> (Vec<dipwatch::inputs::sites::Site>, Vec<Target>, Vec<Event>) {
         baseline_after_min: 30.0,
         min_coverage: 0.0,
         min_in_transit_min: 0.0,
+        min_snr: 0.0,
         include_unobservable: false,
     };
     let p = plan(&sites[..1], &targets, &opts);

@@ -290,6 +290,9 @@ struct BlockArgs {
     /// Smallest usable in-transit time to list an event, minutes (at most the transit's duration) [default: 30]
     #[arg(long, value_name = "MIN", allow_negative_numbers = true)]
     min_in_transit: Option<f64>,
+    /// Smallest expected transit SNR to list an event, where the site has a photometric set-up [default: 0]
+    #[arg(long, value_name = "SNR", allow_negative_numbers = true)]
+    min_snr: Option<f64>,
     /// Timing margin around ingress and egress, in units of the epoch's sigma [default: 1]
     #[arg(long, value_name = "K", allow_negative_numbers = true)]
     sigma: Option<f64>,
@@ -337,6 +340,8 @@ impl BlockArgs {
         );
         check_finite("min-coverage", min_coverage, 0.0, 1.0)?;
         check_finite("min-in-transit", min_in_transit, 0.0, 1440.0)?;
+        let min_snr = self.min_snr.unwrap_or(0.0);
+        check_finite("min-snr", min_snr, 0.0, 1e6)?;
         check_finite("sigma", sigma, 0.0, 10.0)?;
         check_finite("baseline-before", before, 0.0, 720.0)?;
         check_finite("baseline-after", after, 0.0, 720.0)?;
@@ -348,6 +353,7 @@ impl BlockArgs {
             baseline_after_min: after,
             min_coverage,
             min_in_transit_min: min_in_transit,
+            min_snr,
             include_unobservable,
         })
     }

@@ -306,6 +306,84 @@ pub fn suggested_exposure(
     (t, false)
 }
 
+/// The expected noise and signal-to-noise of one planned event.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct EventNoise {
+    /// Exposure time used (fixed by the site, or suggested), s.
+    pub exposure_s: f64,
+    /// White noise of one exposure (photon, sky, dark, read, scintillation; no beta, no floor), ppt.
+    pub noise_per_exposure_ppt: f64,
+    /// Noise binned to 10 minutes with beta and the floor, ppt.
+    pub noise_10min_ppt: f64,
+    /// Transit signal-to-noise with the usable in- and out-of-transit time of this event (None without a depth).
+    pub snr: Option<f64>,
+    /// Peak pixel over full well at that exposure.
+    pub peak_well_fraction: f64,
+}
+
+/// The noise of one event at a site with a photometric set-up: a star of `mag` (in the set-up's band) at
+/// `airmass`, with `in_transit_s` and `out_of_transit_s` of usable time. The transit SNR is
+/// depth / (beta sigma_1 sqrt(1/N_in + 1/N_out)), sigma_1 the white noise of one exposure and N the numbers of
+/// exposures (cadence = exposure + overhead) in and out of transit: the depth is the difference of two means
+/// (common practice, no source). None when the set-up names an unknown band.
+pub fn event_noise(
+    p: &crate::inputs::sites::Photometry,
+    site_altitude_m: f64,
+    (mag, depth_ppt): (f64, Option<f64>),
+    airmass: f64,
+    (in_transit_s, out_of_transit_s): (f64, f64),
+) -> Option<EventNoise> {
+    let b = band(&p.band)?;
+    let cam = Camera {
+        aperture_m: p.aperture_m,
+        obstruction: p.obstruction,
+        throughput: p.throughput,
+        read_noise_e: p.read_noise_e,
+        dark_e_per_s: p.dark_e_per_s,
+        full_well_e: p.full_well_e,
+        pixel_scale_arcsec: p.pixel_scale_arcsec,
+    };
+    let mut c = Conditions {
+        mag,
+        airmass: airmass.clamp(1.0, 40.0),
+        exposure_s: 1.0,
+        sky_mag_arcsec2: p.sky_mag.unwrap_or(b.dark_sky_mag_arcsec2),
+        extinction_mag: p.extinction.unwrap_or(b.extinction_mag),
+        seeing_arcsec: p.seeing_arcsec,
+        aperture_radius_arcsec: p.aperture_radius_arcsec.unwrap_or(1.5 * p.seeing_arcsec),
+        site_altitude_m,
+        scintillation_cy: p.scintillation_cy,
+    };
+    c.exposure_s = p
+        .exposure_s
+        .unwrap_or_else(|| suggested_exposure(b, &cam, &c, (1.0, 300.0), 0.7).0);
+    let one = budget(b, &cam, &c);
+    let cadence = c.exposure_s + p.overhead_s;
+    let n_in = in_transit_s / cadence;
+    let n_out = out_of_transit_s / cadence;
+    let snr = depth_ppt.map(|d| {
+        if n_in < 1.0 || n_out < 1.0 {
+            0.0
+        } else {
+            d / (p.red_noise_beta * one.total_ppt * (1.0 / n_in + 1.0 / n_out).sqrt())
+        }
+    });
+    Some(EventNoise {
+        exposure_s: c.exposure_s,
+        noise_per_exposure_ppt: one.total_ppt,
+        noise_10min_ppt: binned_ppt(
+            one.total_ppt,
+            c.exposure_s,
+            p.overhead_s,
+            600.0,
+            p.red_noise_beta,
+            p.noise_floor_ppt,
+        ),
+        snr,
+        peak_well_fraction: one.peak_well_fraction,
+    })
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -386,5 +464,43 @@ mod tests {
         };
         let one_minute = budget(v, &cam, &with_scint).total_ppt;
         assert!(one_minute > 0.3 && one_minute < 3.0, "{one_minute}");
+    }
+
+    #[test]
+    fn snr_grows_with_depth_and_usable_time() {
+        let p = crate::inputs::sites::Photometry {
+            aperture_m: 0.6,
+            obstruction: 0.3,
+            throughput: 0.5,
+            band: "R".into(),
+            read_noise_e: 8.0,
+            dark_e_per_s: 0.02,
+            full_well_e: 100_000.0,
+            pixel_scale_arcsec: 0.6,
+            exposure_s: Some(60.0),
+            overhead_s: 5.0,
+            aperture_radius_arcsec: None,
+            seeing_arcsec: 2.0,
+            scintillation_cy: 1.5,
+            sky_mag: None,
+            extinction: None,
+            red_noise_beta: 1.0,
+            noise_floor_ppt: 0.0,
+        };
+        let snr = |depth: f64, t_in: f64, t_out: f64| {
+            event_noise(&p, 1000.0, (12.0, Some(depth)), 1.3, (t_in, t_out))
+                .unwrap()
+                .snr
+                .unwrap()
+        };
+        assert!(snr(10.0, 7200.0, 3600.0) > snr(5.0, 7200.0, 3600.0));
+        assert!((snr(10.0, 7200.0, 3600.0) / snr(5.0, 7200.0, 3600.0) - 2.0).abs() < 1e-9);
+        assert!(snr(10.0, 7200.0, 3600.0) > snr(10.0, 1800.0, 3600.0));
+        assert!(snr(10.0, 7200.0, 3600.0) > snr(10.0, 7200.0, 600.0));
+        assert_eq!(
+            snr(10.0, 7200.0, 0.0),
+            0.0,
+            "no baseline, no depth measured"
+        );
     }
 }

@@ -48,6 +48,8 @@ pub struct PlanOptions {
     /// Smallest usable in-transit time for an event to count as observable, minutes (capped at the transit's
     /// duration, so a whole short transit still counts). See [`DEFAULT_MIN_IN_TRANSIT_MIN`].
     pub min_in_transit_min: f64,
+    /// Smallest expected transit SNR to list an event (0: no minimum); applies where the noise is known.
+    pub min_snr: f64,
     /// Also list events that cannot be observed, with their reasons.
     pub include_unobservable: bool,
 }
@@ -116,6 +118,8 @@ pub enum Reason {
     CoverageBelowMinimum,
     /// Some transit is usable, but less in-transit time than the run's minimum (`--min-in-transit`).
     InTransitBelowMinimum,
+    /// The expected transit SNR is below the run's minimum (`--min-snr`).
+    SnrBelowMinimum,
     /// The timing sigma exceeds 1/8 of the period: the ephemeris is lost.
     EphemerisLost,
 }
@@ -132,6 +136,7 @@ impl Reason {
             Reason::MoonTooClose => "moon-too-close",
             Reason::CoverageBelowMinimum => "coverage-below-minimum",
             Reason::InTransitBelowMinimum => "in-transit-below-minimum",
+            Reason::SnrBelowMinimum => "snr-below-minimum",
             Reason::EphemerisLost => "ephemeris-lost",
         }
     }
@@ -221,6 +226,8 @@ pub struct Event {
     pub meridian_utc: Option<f64>,
     /// Why (part of) the block is unusable.
     pub reasons: Vec<Reason>,
+    /// Expected noise and transit SNR, when the site has a photometric set-up and the target a magnitude.
+    pub noise: Option<crate::engine::noise::EventNoise>,
 }
 
 impl Event {
@@ -676,6 +683,30 @@ fn cannot_be_listed(
     !matches!(transit_dark, Some(w) if !alt_intervals(track, p.site.min_alt_deg, &w).is_empty())
 }
 
+/// The expected noise of an event (None without a photometric set-up at the site or a magnitude for the target):
+/// at the airmass of mid-transit, with the usable in-transit time (coverage x T14) and baselines (minutes).
+fn expected_noise(
+    p: &Pairing<'_>,
+    track: &Track,
+    mid_utc: f64,
+    coverage: f64,
+    baseline_min: f64,
+) -> Option<crate::engine::noise::EventNoise> {
+    let ph = p.site.photometry.as_ref()?;
+    let mag = p.target.mag?;
+    let airmass = airmass_kasten_young(track.alt_deg(mid_utc));
+    if !airmass.is_finite() {
+        return None;
+    }
+    crate::engine::noise::event_noise(
+        ph,
+        p.site.elevation_m,
+        (mag, p.target.depth_ppt),
+        airmass,
+        (coverage * p.target.t14_hours * 3600.0, baseline_min * 60.0),
+    )
+}
+
 /// Judge one transit at one site. Pure: everything it needs is passed in.
 fn evaluate(p: &Pairing<'_>, t: Predicted, night: &Night) -> Option<Event> {
     let (site, opts, tables) = (p.site, p.opts, p.tables);
@@ -694,7 +725,15 @@ fn evaluate(p: &Pairing<'_>, t: Predicted, night: &Night) -> Option<Event> {
     let lost = t.sigma_days > LOST_SIGMA_FRACTION_OF_PERIOD * p.target.ephemeris.period_days;
     let (coverage, run) = best_run(&usable, ingress, egress);
     let (verdict, before_min, after_min) = judge_run(run, ingress, egress, margin, opts);
-    let observable = meets_criteria(p, verdict, coverage, lost, &mut reasons);
+    let noise = expected_noise(p, &track, t.mid_utc, coverage, before_min + after_min);
+    let mut observable = meets_criteria(p, verdict, coverage, lost, &mut reasons);
+    if observable
+        && opts.min_snr > 0.0
+        && noise.and_then(|n| n.snr).is_some_and(|x| x < opts.min_snr)
+    {
+        reasons.push(Reason::SnrBelowMinimum);
+        observable = false;
+    }
     if !observable && !opts.include_unobservable {
         // Not listed: skip the geometry.
         return None;
@@ -755,6 +794,7 @@ fn evaluate(p: &Pairing<'_>, t: Predicted, night: &Night) -> Option<Event> {
             .first()
             .copied(),
         reasons,
+        noise,
     })
 }
 
@@ -1056,6 +1096,7 @@ pub(crate) mod tests_support {
             moon_illum: 0.5,
             meridian_utc: None,
             reasons: Vec::new(),
+            noise: None,
         }
     }
 }

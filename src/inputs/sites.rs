@@ -41,6 +41,48 @@ pub struct Site {
     pub min_moon_sep_deg: Option<f64>,
     /// Telescopes at the site (at least one).
     pub telescopes: Vec<Telescope>,
+    /// The site's photometric set-up (telescope, camera, sky), when `aperture_m` is given: what the expected
+    /// noise and SNR of each event are computed from.
+    pub photometry: Option<Photometry>,
+}
+
+/// A site's telescope, camera and sky, for the noise model ([`crate::engine::noise`]).
+#[derive(Debug, Clone, PartialEq)]
+pub struct Photometry {
+    /// Primary diameter, m.
+    pub aperture_m: f64,
+    /// Secondary over primary diameter (default 0.3).
+    pub obstruction: f64,
+    /// Whole-system throughput incl. detector QE (default 0.5).
+    pub throughput: f64,
+    /// Band name (default `V`); target magnitudes are taken in this band.
+    pub band: String,
+    /// Read noise, e rms (default 8).
+    pub read_noise_e: f64,
+    /// Dark current, e/s/pixel (default 0.02).
+    pub dark_e_per_s: f64,
+    /// Full well, e (default 100000).
+    pub full_well_e: f64,
+    /// Pixel scale, arcsec/pixel (default 0.6).
+    pub pixel_scale_arcsec: f64,
+    /// Fixed exposure, s (default: suggested per event).
+    pub exposure_s: Option<f64>,
+    /// Overhead per exposure, s (default 5).
+    pub overhead_s: f64,
+    /// Photometric aperture radius, arcsec (default 1.5 x seeing).
+    pub aperture_radius_arcsec: Option<f64>,
+    /// Seeing FWHM, arcsec (default 2).
+    pub seeing_arcsec: f64,
+    /// Scintillation coefficient C_Y (default 1.5).
+    pub scintillation_cy: f64,
+    /// Dark-sky brightness, mag/arcsec^2 (default per band).
+    pub sky_mag: Option<f64>,
+    /// Extinction, mag/airmass (default per band).
+    pub extinction: Option<f64>,
+    /// Red-noise factor beta (default 1).
+    pub red_noise_beta: f64,
+    /// Systematic floor, ppt per 10 min (default 0).
+    pub noise_floor_ppt: f64,
 }
 
 /// One telescope at a site.
@@ -91,6 +133,23 @@ struct RawSite {
     horizon: Option<Spanned<Vec<Spanned<Vec<f64>>>>>,
     telescopes: Option<Spanned<toml::Value>>,
     allow_far_zone: Option<Spanned<bool>>,
+    aperture_m: Option<Spanned<f64>>,
+    obstruction: Option<Spanned<f64>>,
+    throughput: Option<Spanned<f64>>,
+    band: Option<Spanned<String>>,
+    read_noise_e: Option<Spanned<f64>>,
+    dark_e_per_s: Option<Spanned<f64>>,
+    full_well_e: Option<Spanned<f64>>,
+    pixel_scale_arcsec: Option<Spanned<f64>>,
+    exposure_s: Option<Spanned<f64>>,
+    overhead_s: Option<Spanned<f64>>,
+    aperture_radius_arcsec: Option<Spanned<f64>>,
+    seeing_arcsec: Option<Spanned<f64>>,
+    scintillation_cy: Option<Spanned<f64>>,
+    sky_mag: Option<Spanned<f64>>,
+    extinction: Option<Spanned<f64>>,
+    red_noise_beta: Option<Spanned<f64>>,
+    noise_floor_ppt: Option<Spanned<f64>>,
 }
 
 /// Largest accepted gap between a site's mean solar time and its zone's standard time without
@@ -208,7 +267,7 @@ impl SiteCtx<'_> {
 }
 
 /// The numeric keys of a site with their accepted ranges: validation is driven by this table.
-const SITE_NUMBERS: [(&str, f64, f64, &str); 7] = [
+const SITE_NUMBERS: [(&str, f64, f64, &str); 23] = [
     ("latitude_deg", -90.0, 90.0, "a latitude within -90..90 deg"),
     (
         "longitude_deg",
@@ -241,6 +300,77 @@ const SITE_NUMBERS: [(&str, f64, f64, &str); 7] = [
         180.0,
         "a separation within 0..180 deg",
     ),
+    ("aperture_m", 0.01, 50.0, "an aperture within 0.01..50 m"),
+    (
+        "obstruction",
+        0.0,
+        0.95,
+        "a secondary/primary diameter ratio within 0..0.95",
+    ),
+    ("throughput", 0.001, 1.0, "a throughput within 0.001..1"),
+    ("read_noise_e", 0.0, 1000.0, "a read noise within 0..1000 e"),
+    (
+        "dark_e_per_s",
+        0.0,
+        1e4,
+        "a dark current within 0..10000 e/s/pixel",
+    ),
+    ("full_well_e", 100.0, 1e8, "a full well within 100..1e8 e"),
+    (
+        "pixel_scale_arcsec",
+        0.01,
+        20.0,
+        "a pixel scale within 0.01..20 arcsec",
+    ),
+    (
+        "exposure_s",
+        0.001,
+        3600.0,
+        "an exposure within 0.001..3600 s",
+    ),
+    ("overhead_s", 0.0, 600.0, "an overhead within 0..600 s"),
+    (
+        "aperture_radius_arcsec",
+        0.1,
+        100.0,
+        "an aperture radius within 0.1..100 arcsec",
+    ),
+    (
+        "seeing_arcsec",
+        0.1,
+        20.0,
+        "a seeing FWHM within 0.1..20 arcsec",
+    ),
+    (
+        "scintillation_cy",
+        0.0,
+        10.0,
+        "a scintillation coefficient within 0..10",
+    ),
+    (
+        "sky_mag",
+        10.0,
+        25.0,
+        "a sky brightness within 10..25 mag/arcsec^2",
+    ),
+    (
+        "extinction",
+        0.0,
+        3.0,
+        "an extinction within 0..3 mag/airmass",
+    ),
+    (
+        "red_noise_beta",
+        1.0,
+        10.0,
+        "a red-noise factor within 1..10",
+    ),
+    (
+        "noise_floor_ppt",
+        0.0,
+        100.0,
+        "a noise floor within 0..100 ppt",
+    ),
 ];
 
 impl RawSite {
@@ -254,6 +384,22 @@ impl RawSite {
             "max_alt_deg" => self.max_alt_deg.as_ref(),
             "max_airmass" => self.max_airmass.as_ref(),
             "min_moon_sep_deg" => self.min_moon_sep_deg.as_ref(),
+            "aperture_m" => self.aperture_m.as_ref(),
+            "obstruction" => self.obstruction.as_ref(),
+            "throughput" => self.throughput.as_ref(),
+            "read_noise_e" => self.read_noise_e.as_ref(),
+            "dark_e_per_s" => self.dark_e_per_s.as_ref(),
+            "full_well_e" => self.full_well_e.as_ref(),
+            "pixel_scale_arcsec" => self.pixel_scale_arcsec.as_ref(),
+            "exposure_s" => self.exposure_s.as_ref(),
+            "overhead_s" => self.overhead_s.as_ref(),
+            "aperture_radius_arcsec" => self.aperture_radius_arcsec.as_ref(),
+            "seeing_arcsec" => self.seeing_arcsec.as_ref(),
+            "scintillation_cy" => self.scintillation_cy.as_ref(),
+            "sky_mag" => self.sky_mag.as_ref(),
+            "extinction" => self.extinction.as_ref(),
+            "red_noise_beta" => self.red_noise_beta.as_ref(),
+            "noise_floor_ppt" => self.noise_floor_ppt.as_ref(),
             _ => None,
         }
     }
@@ -488,6 +634,50 @@ fn altitude_limits(
     Some((min_alt_deg, max_alt_deg))
 }
 
+/// The photometric set-up of a site, when it names an aperture (every other key has a documented default).
+fn photometry_of(
+    ctx: &SiteCtx<'_>,
+    r: &RawSite,
+    problems: &mut Problems,
+) -> Option<Option<Photometry>> {
+    let get = |v: &Option<Spanned<f64>>| v.as_ref().map(|v| *v.get_ref());
+    let Some(aperture_m) = get(&r.aperture_m) else {
+        return Some(None);
+    };
+    let band = r
+        .band
+        .as_ref()
+        .map_or("V".to_string(), |b| b.get_ref().trim().to_string());
+    if crate::engine::noise::band(&band).is_none() {
+        let span = r.band.as_ref().map(|b| b.span()).unwrap_or(0..0);
+        problems.push(
+            ctx.at(&span),
+            "band",
+            format!("found {band:?}, expected U, B, V, R, I, g, r, i or z"),
+        );
+        return None;
+    }
+    Some(Some(Photometry {
+        aperture_m,
+        obstruction: get(&r.obstruction).unwrap_or(0.3),
+        throughput: get(&r.throughput).unwrap_or(0.5),
+        band,
+        read_noise_e: get(&r.read_noise_e).unwrap_or(8.0),
+        dark_e_per_s: get(&r.dark_e_per_s).unwrap_or(0.02),
+        full_well_e: get(&r.full_well_e).unwrap_or(100_000.0),
+        pixel_scale_arcsec: get(&r.pixel_scale_arcsec).unwrap_or(0.6),
+        exposure_s: get(&r.exposure_s),
+        overhead_s: get(&r.overhead_s).unwrap_or(5.0),
+        aperture_radius_arcsec: get(&r.aperture_radius_arcsec),
+        seeing_arcsec: get(&r.seeing_arcsec).unwrap_or(2.0),
+        scintillation_cy: get(&r.scintillation_cy).unwrap_or(1.5),
+        sky_mag: get(&r.sky_mag),
+        extinction: get(&r.extinction),
+        red_noise_beta: get(&r.red_noise_beta).unwrap_or(1.0),
+        noise_floor_ppt: get(&r.noise_floor_ppt).unwrap_or(0.0),
+    }))
+}
+
 /// One site from its table, or None with every problem of the table reported.
 fn parse_site(
     ctx: &SiteCtx<'_>,
@@ -524,6 +714,7 @@ fn parse_site(
     }
     let (min_alt_deg, max_alt_deg) = altitude_limits(ctx, r, &extras.telescopes, problems)?;
     let elevation_m = r.elevation_m.as_ref().map(|v| *v.get_ref()).unwrap_or(0.0);
+    let photometry = photometry_of(ctx, r, problems)?;
     Some(Site {
         name,
         observer: Observer::from_deg(lat, lon_deg, elevation_m),
@@ -539,6 +730,7 @@ fn parse_site(
         hour_angle_limits_h: extras.hour_angle_limits_h,
         min_moon_sep_deg: r.min_moon_sep_deg.as_ref().map(|v| *v.get_ref()),
         telescopes: extras.telescopes,
+        photometry,
     })
 }
 

@@ -264,6 +264,34 @@ pub const EVENT_COLUMNS: &[Column<EventValue>] = &[
         value: |r| Value::OptTime(r.event.meridian_utc),
     },
     Column {
+        name: "exposure_s",
+        meta: Meta { datatype: "float64", unit: Some("s"), description: "exposure time, fixed or suggested (null without a photometric set-up or magnitude)" },
+        value: |r| Value::OptFixed(r.event.noise.map(|n| n.exposure_s), 1),
+    },
+    Column {
+        name: "noise_per_exposure_ppt",
+        meta: Meta { datatype: "float64", unit: None, description: "white noise of one exposure, parts per thousand" },
+        value: |r| Value::OptFixed(r.event.noise.map(|n| n.noise_per_exposure_ppt), 3),
+    },
+    Column {
+        name: "noise_10min_ppt",
+        meta: Meta { datatype: "float64", unit: None, description: "noise binned to 10 minutes with beta and floor, parts per thousand" },
+        value: |r| Value::OptFixed(r.event.noise.map(|n| n.noise_10min_ppt), 3),
+    },
+    Column {
+        name: "snr",
+        meta: Meta { datatype: "float64", unit: None, description: "expected transit signal-to-noise with this event's usable time, rounded down" },
+        value: |r| match r.event.noise.and_then(|n| n.snr) {
+            Some(x) => Value::FloorFixed(x, 1),
+            None => Value::Null,
+        },
+    },
+    Column {
+        name: "peak_well_fraction",
+        meta: Meta { datatype: "float64", unit: None, description: "peak pixel over full well at that exposure" },
+        value: |r| Value::OptFixed(r.event.noise.map(|n| n.peak_well_fraction), 3),
+    },
+    Column {
         name: "depth_ppt",
         meta: Meta { datatype: "float64", unit: None, description: "transit depth, parts per thousand" },
         value: |r| Value::Input(r.target.depth_ppt),

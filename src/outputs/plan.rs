@@ -95,6 +95,7 @@ fn reason_note(r: Reason) -> &'static str {
         Reason::MoonTooClose => "moon",
         Reason::CoverageBelowMinimum => "cov",
         Reason::InTransitBelowMinimum => "short",
+        Reason::SnrBelowMinimum => "snr",
         Reason::EphemerisLost => "lost",
     }
 }
@@ -104,7 +105,7 @@ Moon: its distance from the target and its lit fraction. Notes: flip HH:MM = mer
   (equatorial mounts flip); limits that cut the block: sun = twilight or daylight, low = below the altitude limit,
   high = above the mount's highest altitude, hor = behind the horizon profile, HA = outside the hour-angle limits,
   moon = too close to the Moon, cov = under the minimum coverage, short = less in-transit time than the minimum,
-  lost = ephemeris lost.
+  snr = expected SNR under the minimum, lost = ephemeris lost.
 Block = the time that can be observed; ~ beside an edge: a limit clips the planned block there. Coverage is
   rounded down.";
 

@@ -50,6 +50,7 @@ pub fn site(name: &str, lat: f64, lon: f64, tz: &str) -> Site {
         horizon: HorizonProfile::default(),
         hour_angle_limits_h: None,
         min_moon_sep_deg: None,
+        photometry: None,
         max_alt_deg: None,
         telescopes: vec![dipwatch::inputs::sites::Telescope {
             name: "main".into(),
@@ -99,6 +100,7 @@ pub fn opts(first: NaiveDate, last: NaiveDate) -> PlanOptions {
         baseline_after_min: 30.0,
         min_coverage: 0.0,
         min_in_transit_min: 0.0,
+        min_snr: 0.0,
         include_unobservable: true,
     }
 }
