@@ -53,6 +53,14 @@ pub(super) struct ChoiceArgs {
         allow_negative_numbers = true
     )]
     pub(super) weight_sigma: f64,
+    /// Score weight of the expected transit SNR (up to 20), where the site has a photometric set-up
+    #[arg(
+        long,
+        value_name = "W",
+        default_value_t = 0.5,
+        allow_negative_numbers = true
+    )]
+    pub(super) weight_snr: f64,
     /// Let several telescopes observe the same transit
     #[arg(long)]
     pub(super) allow_repeats: bool,
@@ -66,6 +74,7 @@ impl ChoiceArgs {
             airmass: self.weight_airmass,
             moon: self.weight_moon,
             sigma: self.weight_sigma,
+            snr: self.weight_snr,
         }
     }
 }
@@ -97,6 +106,7 @@ pub(super) fn make_schedule(
         ("weight-airmass", c.weight_airmass),
         ("weight-moon", c.weight_moon),
         ("weight-sigma", c.weight_sigma),
+        ("weight-snr", c.weight_snr),
     ] {
         check_finite(name, w, 0.0, 1000.0)?;
     }

@@ -29,6 +29,9 @@ pub struct ScoreWeights {
     pub moon: f64,
     /// Weight of the timing sigma, min(sigma, 30 min)/30 min (0-1): uncertain ephemerides gain most.
     pub sigma: f64,
+    /// Weight of the expected transit SNR, min(SNR, 20)/20 (0-1; 0 where the noise is not known): a depth
+    /// measured at SNR 20 is a solid detection (common practice, no source).
+    pub snr: f64,
 }
 
 impl Default for ScoreWeights {
@@ -39,6 +42,7 @@ impl Default for ScoreWeights {
             airmass: 0.5,
             moon: 0.25,
             sigma: 0.25,
+            snr: 0.5,
         }
     }
 }
@@ -55,7 +59,7 @@ pub fn verdict_value(v: Verdict) -> f64 {
 }
 
 /// Score of an event: priority x (w_cov coverage + w_verdict v + w_airmass / X_mid + w_moon min(sep, 90)/90 +
-/// w_sigma min(sigma, 30 min)/30 min).
+/// w_sigma min(sigma, 30 min)/30 min + w_snr min(SNR, 20)/20).
 pub fn score(e: &Event, priority: f64, w: &ScoreWeights) -> f64 {
     let inv_airmass = if e.airmass_mid.is_finite() && e.airmass_mid >= 1.0 {
         1.0 / e.airmass_mid
@@ -67,7 +71,11 @@ pub fn score(e: &Event, priority: f64, w: &ScoreWeights) -> f64 {
             + w.verdict * verdict_value(e.verdict)
             + w.airmass * inv_airmass
             + w.moon * e.moon_sep_deg.clamp(0.0, 90.0) / 90.0
-            + w.sigma * (e.sigma_min / 30.0).clamp(0.0, 1.0))
+            + w.sigma * (e.sigma_min / 30.0).clamp(0.0, 1.0)
+            + w.snr
+                * e.noise
+                    .and_then(|n| n.snr)
+                    .map_or(0.0, |x| (x / 20.0).clamp(0.0, 1.0)))
 }
 
 /// An interval with a value, for the exact solver.

@@ -195,6 +195,22 @@ pub fn description(e: &Event, site: &Site, target: &Target) -> String {
             e.moon_alt_mid_deg
         ),
     ];
+    if let Some(n) = e.noise {
+        lines.push(format!(
+            "Photometry: {:.0} s exposures, {:.2} ppt per 10 min, SNR {}{}",
+            n.exposure_s,
+            n.noise_10min_ppt,
+            n.snr.map_or("--".to_string(), |x| format!(
+                "{:.1}",
+                crate::outputs::floor_to(x, 1)
+            )),
+            if n.peak_well_fraction > 0.7 {
+                "; saturates: defocus"
+            } else {
+                ""
+            }
+        ));
+    }
     if let Some(m) = e.meridian_utc {
         lines.push(format!(
             "Meridian crossing: {} (equatorial mounts flip)",

@@ -215,11 +215,15 @@ fn draw_heading(c: &mut NightCanvas, title: &str, events: &[Event]) {
     );
     let sub = match events.iter().find(|e| e.observable) {
         Some(e) => format!(
-            "{}: {} of the transit usable; epoch {}, timing 1-sigma {:.1} min",
+            "{}: {} of the transit usable; epoch {}, timing 1-sigma {:.1} min{}",
             e.verdict.label(),
             crate::outputs::percent_floor(e.coverage),
             e.epoch,
-            e.sigma_min
+            e.sigma_min,
+            e.noise
+                .and_then(|n| n.snr)
+                .map(|x| format!("; expected SNR {:.1}", crate::outputs::floor_to(x, 1)))
+                .unwrap_or_default()
         ),
         None if events.is_empty() => "no transit this night".to_string(),
         None => "transit not observable this night".to_string(),

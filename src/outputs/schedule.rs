@@ -232,8 +232,8 @@ pub fn schedule_table(
         out.push('\n');
         out.push_str(super::VERDICT_LEGEND);
         out.push_str(&format!(
-            "\nScore: priority x ({} x coverage + {} x verdict value + {} / airmass at mid-transit + {} x Moon distance/90 deg\n  + {} x timing sigma/30 min); verdict values whole 1, whole/sb 0.8, ingress or egress 0.5, middle 0.2.\n  Higher is better; each telescope-night takes the set of blocks with the highest total.\nNotes: + TELESCOPE = N%: paired with the other contact of the same transit there; together they cover N%.\n",
-            weights.coverage, weights.verdict, weights.airmass, weights.moon, weights.sigma
+            "\nScore: priority x ({} x coverage + {} x verdict value + {} / airmass at mid-transit + {} x Moon distance/90 deg\n  + {} x timing sigma/30 min + {} x SNR/20); verdict values whole 1, whole/sb 0.8, ingress or egress 0.5, middle 0.2.\n  Higher is better; each telescope-night takes the set of blocks with the highest total.\nNotes: + TELESCOPE = N%: paired with the other contact of the same transit there; together they cover N%.\n",
+            weights.coverage, weights.verdict, weights.airmass, weights.moon, weights.sigma, weights.snr
         ));
     }
     out
