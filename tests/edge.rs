@@ -52,6 +52,7 @@ fn target(ra: f64, dec: f64, t0: f64, period: f64, system: TimeSystem) -> Target
         t14_hours: 2.0,
         depth_ppt: None,
         mag: None,
+        mag_band: None,
         priority: 1.0,
         notes: String::new(),
         pm_ra_cosdec_mas_per_yr: 0.0,

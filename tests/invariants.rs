@@ -42,6 +42,7 @@ prop_compose! {
             t14_hours: (period * 24.0 * t14_frac).min(12.0),
             depth_ppt: Some(5.0),
             mag: None,
+            mag_band: None,
             priority: 1.0,
             notes: String::new(),
             pm_ra_cosdec_mas_per_yr: 0.0,

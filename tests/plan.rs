@@ -317,6 +317,7 @@ fn check_against_oracle(
         t14_hours: 2.0,
         depth_ppt: None,
         mag: None,
+        mag_band: None,
         priority: 1.0,
         notes: String::new(),
         pm_ra_cosdec_mas_per_yr: 0.0,

@@ -694,6 +694,11 @@ fn expected_noise(
 ) -> Option<crate::engine::noise::EventNoise> {
     let ph = p.site.photometry.as_ref()?;
     let mag = p.target.mag?;
+    // The magnitude must be in the set-up's band (V when the targets file does not say).
+    let named = |b: &str| crate::engine::noise::band(b).map(|b| b.name);
+    if named(p.target.mag_band.as_deref().unwrap_or("V")) != named(&ph.band) {
+        return None;
+    }
     let airmass = airmass_kasten_young(track.alt_deg(mid_utc));
     if !airmass.is_finite() {
         return None;

@@ -648,7 +648,7 @@ fn photometry_of(
         .band
         .as_ref()
         .map_or("V".to_string(), |b| b.get_ref().trim().to_string());
-    if crate::engine::noise::band(&band).is_none() {
+    if crate::astro::bands::band(&band).is_none() {
         let span = r.band.as_ref().map(|b| b.span()).unwrap_or(0..0);
         problems.push(
             ctx.at(&span),

@@ -29,6 +29,9 @@ pub struct Target {
     pub depth_ppt: Option<f64>,
     /// Magnitude in the observer's band, if given.
     pub mag: Option<f64>,
+    /// Band of `mag` (`mag_band` column, default V). The expected noise is computed only when it is the band
+    /// of the site's photometric set-up.
+    pub mag_band: Option<String>,
     /// Priority, larger is more important (default 1).
     pub priority: f64,
     /// Free-text notes.
@@ -195,6 +198,12 @@ pub const COLUMNS: &[ColumnSpec] = &[
             hi: 40.0,
             expected: "a magnitude within -30..40",
         }),
+    },
+    ColumnSpec {
+        name: "mag_band",
+        required: false,
+        meaning: "band of mag: U, B, V, R, I, g, r, i or z (default V)",
+        number: None,
     },
     ColumnSpec {
         name: "priority",
@@ -589,6 +598,15 @@ fn parse_row(
             ok = false;
         }
     }
+    let mag_band = cells.get("mag_band");
+    if !mag_band.is_empty() && crate::astro::bands::band(mag_band).is_none() {
+        problems.push(
+            line,
+            "mag_band",
+            format!("found {mag_band:?}, expected U, B, V, R, I, g, r, i or z"),
+        );
+        ok = false;
+    }
     let num = |k: &str| nums.get(k).copied();
     let required = [
         "t0",
@@ -615,6 +633,9 @@ fn parse_row(
         t14_hours: num("t14_hours")?,
         depth_ppt: num("depth_ppt"),
         mag: num("mag"),
+        mag_band: Some(cells.get("mag_band"))
+            .filter(|b| !b.is_empty())
+            .map(str::to_string),
         priority: num("priority").unwrap_or(1.0),
         notes: cells.get("notes").to_string(),
         pm_ra_cosdec_mas_per_yr: num("pm_ra_mas_per_yr").unwrap_or(0.0),
