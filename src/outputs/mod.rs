@@ -105,8 +105,20 @@ fn clock_label(
     format!("{} ({})", zones.join(" then "), site.tz.name())
 }
 
-/// A table of events 120 columns wide: no padding (the column rules separate), the content arranged dynamically.
-fn wide_table(header: Vec<&str>) -> comfy_table::Table {
+/// The headers of the cells of [`event_cells`], the first columns of every event table.
+const EVENT_CELL_HEADERS: [&str; 6] = [
+    "Night",
+    "Target",
+    "Verdict",
+    "Cover",
+    "Block",
+    "Ingr  Mid   Egr",
+];
+
+/// A table of events 120 columns wide, the columns of [`event_cells`] then `more`: no padding (the column rules
+/// separate), the content arranged dynamically.
+fn wide_table(more: &[&str]) -> comfy_table::Table {
+    let header: Vec<&str> = EVENT_CELL_HEADERS.iter().chain(more).copied().collect();
     let mut table = styled_table(header, comfy_table::ContentArrangement::Dynamic);
     table.set_width(120);
     for col in table.column_iter_mut() {

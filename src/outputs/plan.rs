@@ -216,18 +216,7 @@ fn push_site_section(
 
 /// The events of one site as a table of 120 columns, rows grouped by night.
 fn events_table(events: &[Event], site: &Site, targets: &[Target], utc: bool) -> String {
-    let mut table = super::wide_table(vec![
-        "Night",
-        "Target",
-        "Verdict",
-        "Cover",
-        "Block",
-        "Ingr  Mid   Egr",
-        "+-sig",
-        "Alt i/m/e",
-        "Moon",
-        "Notes",
-    ]);
+    let mut table = super::wide_table(&["+-sig", "Alt i/m/e", "Moon", "Notes"]);
     let mut previous_night = None;
     for e in events {
         let night_cell = if previous_night != Some(e.night_of) {

@@ -193,16 +193,7 @@ pub fn schedule_table(
         if rows.is_empty() {
             continue;
         }
-        let mut table = super::wide_table(vec![
-            "Night",
-            "Target",
-            "Verdict",
-            "Cover",
-            "Block",
-            "Ingr  Mid   Egr",
-            "Score",
-            "Notes",
-        ]);
+        let mut table = super::wide_table(&["Score", "Notes"]);
         let mut prev = None;
         for c in rows {
             let e = &c.event;
