@@ -68,7 +68,8 @@ pub(super) struct NoiseArgs {
 
 pub(super) fn run_noise(a: NoiseArgs) -> Result<()> {
     use dipwatch::engine::noise::{
-        band, binned_ppt, budget, suggested_exposure, Camera, Conditions,
+        band, binned_ppt, budget, suggested_exposure, Camera, Conditions, EXPOSURE_RANGE_S,
+        WELL_FRACTION_LIMIT,
     };
     let b = band(&a.band).ok_or_else(|| {
         anyhow::anyhow!(
@@ -108,7 +109,8 @@ pub(super) fn run_noise(a: NoiseArgs) -> Result<()> {
         site_altitude_m: a.site_altitude,
         scintillation_cy: a.cy,
     };
-    let (suggested, saturates) = suggested_exposure(b, &cam, &c, (1.0, 300.0), 0.7);
+    let (suggested, saturates) =
+        suggested_exposure(b, &cam, &c, EXPOSURE_RANGE_S, WELL_FRACTION_LIMIT);
     c.exposure_s = a.exposure.unwrap_or(suggested);
     check_finite("exposure", c.exposure_s, 0.001, 3600.0)?;
     let n = budget(b, &cam, &c);

@@ -132,14 +132,7 @@ pub(super) fn stream_plan(
 /// What comes before the events: the CSV or ECSV header, or the JSON document up to its `events` array.
 fn stream_head(sites: &[Site], opts: &PlanOptions, format: Format) -> Result<String> {
     Ok(match format {
-        Format::Ecsv => {
-            let mut s = String::new();
-            dipwatch::outputs::columns::push_ecsv_header(
-                dipwatch::outputs::columns::metas(report::EVENT_COLUMNS),
-                &mut s,
-            );
-            s
-        }
+        Format::Ecsv => dipwatch::outputs::columns::ecsv_event_header(),
         Format::Json => {
             let site_info: Vec<serde_json::Value> = sites
                 .iter()
@@ -183,15 +176,7 @@ fn format_events(
             }
         }
         Format::Ecsv => {
-            for e in events {
-                let row = report::EventRow::of(e, sites, targets);
-                dipwatch::outputs::columns::push_ecsv_fields(
-                    report::EVENT_COLUMNS,
-                    |f| f(&row),
-                    &mut s,
-                );
-                s.push('\n');
-            }
+            dipwatch::outputs::columns::push_event_ecsv_rows(events, sites, targets, &mut s)
         }
         _ => report::push_event_csv_rows(events, sites, targets, &mut s),
     }

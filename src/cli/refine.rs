@@ -56,6 +56,17 @@ pub(super) struct RefineArgs {
     pub(super) chart: Option<PathBuf>,
 }
 
+impl RefineArgs {
+    /// The fit reported as refined and written.
+    fn fit_kind(&self) -> dipwatch::engine::refine::FitKind {
+        if self.observations_only {
+            dipwatch::engine::refine::FitKind::ObservationsOnly
+        } else {
+            dipwatch::engine::refine::FitKind::WithPrior
+        }
+    }
+}
+
 /// The observed times of `--observed` (only those of the `--target` names, if given).
 pub(super) fn load_observations(
     args: &RefineArgs,
@@ -84,7 +95,7 @@ pub(super) fn refine_observed(
     observations: &[dipwatch::inputs::observed::Observation],
     targets_label: &str,
 ) -> Result<Vec<dipwatch::engine::refine::TargetRefinement>> {
-    use dipwatch::engine::refine::{refine_targets, FitKind, RefineOptions};
+    use dipwatch::engine::refine::{refine_targets, RefineOptions};
     let observed_label = args
         .observed
         .as_ref()
@@ -92,11 +103,7 @@ pub(super) fn refine_observed(
         .unwrap_or_default();
     check_finite("epoch-sigma", args.epoch_sigma, 1.0, 1e6)?;
     let opts = RefineOptions {
-        fit: if args.observations_only {
-            FitKind::ObservationsOnly
-        } else {
-            FitKind::WithPrior
-        },
+        fit: args.fit_kind(),
         epoch_sigmas: args.epoch_sigma,
     };
     let (refinements, skipped) =
@@ -203,11 +210,7 @@ pub(super) fn write_refined_targets(
     eprintln!(
         "dipwatch: wrote {} refined ephemerides ({}) to {}",
         updates.len(),
-        if args.observations_only {
-            dipwatch::engine::refine::FitKind::ObservationsOnly.label()
-        } else {
-            dipwatch::engine::refine::FitKind::WithPrior.label()
-        },
+        args.fit_kind().label(),
         out.display()
     );
     Ok(())

@@ -53,8 +53,7 @@ pub(super) fn run_tonight(args: TonightArgs) -> Result<()> {
         TextFormat::Text => report::tonight_text(&night, &targets, args.utc),
         TextFormat::Json => report::tonight_json(&night, std::slice::from_ref(&site), &targets),
         TextFormat::Ecsv => {
-            let events: Vec<&dipwatch::engine::plan::Event> = night.events.iter().collect();
-            report::events_ecsv(&events, std::slice::from_ref(&site), &targets)
+            report::events_ecsv(&night.events, std::slice::from_ref(&site), &targets)
         }
     };
     emit(&text, None)

@@ -9,6 +9,13 @@
 
 pub use crate::astro::bands::{band, Band, BANDS};
 
+/// The peak pixel's largest fraction of full well for a suggested exposure: room below saturation and the
+/// detector's non-linear top (common practice, no source).
+pub const WELL_FRACTION_LIMIT: f64 = 0.7;
+
+/// Shortest and longest suggested exposure, s.
+pub const EXPOSURE_RANGE_S: (f64, f64) = (1.0, 300.0);
+
 /// Photons per Jy per second per square metre per unit dlambda/lambda (Huchra's notes: 1.51e7; it is 1e-26 W
 /// m^-2 Hz^-1 over h, since dnu/nu = dlambda/lambda and a photon of frequency nu carries h nu).
 pub const PHOTONS_PER_JY: f64 = 1.51e7;
@@ -252,9 +259,9 @@ pub fn event_noise(
         site_altitude_m,
         scintillation_cy: p.scintillation_cy,
     };
-    c.exposure_s = p
-        .exposure_s
-        .unwrap_or_else(|| suggested_exposure(b, &cam, &c, (1.0, 300.0), 0.7).0);
+    c.exposure_s = p.exposure_s.unwrap_or_else(|| {
+        suggested_exposure(b, &cam, &c, EXPOSURE_RANGE_S, WELL_FRACTION_LIMIT).0
+    });
     let one = budget(b, &cam, &c);
     let cadence = c.exposure_s + p.overhead_s;
     let n_in = in_transit_s / cadence;

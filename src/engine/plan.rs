@@ -730,8 +730,13 @@ fn evaluate(p: &Pairing<'_>, t: Predicted, night: &Night) -> Option<Event> {
     let lost = t.sigma_days > LOST_SIGMA_FRACTION_OF_PERIOD * p.target.ephemeris.period_days;
     let (coverage, run) = best_run(&usable, ingress, egress);
     let (verdict, before_min, after_min) = judge_run(run, ingress, egress, margin, opts);
-    let noise = expected_noise(p, &track, t.mid_utc, coverage, before_min + after_min);
     let mut observable = meets_criteria(p, verdict, coverage, lost, &mut reasons);
+    // The expected noise is needed to judge an event only under --min-snr; otherwise only for listed events.
+    let noise = if observable || opts.include_unobservable {
+        expected_noise(p, &track, t.mid_utc, coverage, before_min + after_min)
+    } else {
+        None
+    };
     if observable
         && opts.min_snr > 0.0
         && noise.and_then(|n| n.snr).is_some_and(|x| x < opts.min_snr)

@@ -195,21 +195,8 @@ pub fn description(e: &Event, site: &Site, target: &Target) -> String {
             e.moon_alt_mid_deg
         ),
     ];
-    if let Some(n) = e.noise {
-        lines.push(format!(
-            "Photometry: {:.0} s exposures, {:.2} ppt per 10 min, SNR {}{}",
-            n.exposure_s,
-            n.noise_10min_ppt,
-            n.snr.map_or("--".to_string(), |x| format!(
-                "{:.1}",
-                crate::outputs::floor_to(x, 1)
-            )),
-            if n.peak_well_fraction > 0.7 {
-                "; saturates: defocus"
-            } else {
-                ""
-            }
-        ));
+    if let Some(n) = &e.noise {
+        lines.push(crate::outputs::photometry_line(n));
     }
     if let Some(m) = e.meridian_utc {
         lines.push(format!(
@@ -306,7 +293,12 @@ pub fn build_calendar(
                     new_sequence
                 }
             };
-            let ev = planned_event(e, site, target, (&uid, sequence, &digest), opts);
+            let ev = planned_event(
+                (e, site, target),
+                (&sum, &desc),
+                (&uid, sequence, &digest),
+                opts,
+            );
             cal.push(ev);
             written.insert(uid);
             summary_out.events += 1;
@@ -325,12 +317,12 @@ pub fn build_calendar(
     (refold(&cal.done().to_string()), summary_out)
 }
 
-/// The VEVENT of one planned event: its block as it can be observed, texts, place, verdict, and the optional
-/// alarm; `(uid, sequence, digest)` from the comparison with the previous export.
+/// The VEVENT of one planned event: its block as it can be observed, its texts (`summary`, `description`,
+/// already built for the digest), place, verdict, and the optional alarm; `(uid, sequence, digest)` from the
+/// comparison with the previous export.
 fn planned_event(
-    e: &Event,
-    site: &Site,
-    target: &Target,
+    (e, site, target): (&Event, &Site, &Target),
+    (summary_text, description_text): (&str, &str),
     (uid, sequence, digest): (&str, u32, &str),
     opts: &CalendarOptions,
 ) -> CalendarComponent {
@@ -341,8 +333,8 @@ fn planned_event(
         .sequence(sequence)
         .starts(datetime_from_jd(e.block_start_utc))
         .ends(datetime_from_jd(e.block_end_utc))
-        .summary(&summary(e, site, target))
-        .description(&description(e, site, target))
+        .summary(summary_text)
+        .description(description_text)
         .location(&format!(
             "{} ({:.4}, {:.4}, {:.0} m)",
             site.name, site.lat_deg, site.lon_deg, site.elevation_m

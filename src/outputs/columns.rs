@@ -393,27 +393,39 @@ pub fn push_ecsv_fields<'v, F>(
     value: impl Fn(&F) -> Value<'v>,
     out: &mut String,
 ) {
-    for (i, c) in columns.iter().enumerate() {
-        if i > 0 {
-            out.push(',');
-        }
-        match value(&c.value) {
-            Value::Bool(b) => out.push_str(if b { "True" } else { "False" }),
-            v => push_csv_value(&v, out),
-        }
-    }
+    let ecsv_value = |f: &F| match value(f) {
+        Value::Bool(b) => Value::Text(if b { "True" } else { "False" }),
+        v => v,
+    };
+    push_csv_fields(columns, ecsv_value, out);
 }
 
 /// ECSV of events: the header and one line per event.
-pub fn events_ecsv(events: &[&Event], sites: &[Site], targets: &[Target]) -> String {
+pub fn events_ecsv(events: &[Event], sites: &[Site], targets: &[Target]) -> String {
+    let mut out = ecsv_event_header();
+    push_event_ecsv_rows(events, sites, targets, &mut out);
+    out
+}
+
+/// The ECSV header of events (see [`push_ecsv_header`]).
+pub fn ecsv_event_header() -> String {
     let mut out = String::new();
     push_ecsv_header(metas(EVENT_COLUMNS), &mut out);
+    out
+}
+
+/// Append one ECSV line per event.
+pub fn push_event_ecsv_rows(
+    events: &[Event],
+    sites: &[Site],
+    targets: &[Target],
+    out: &mut String,
+) {
     for e in events {
         let row = EventRow::of(e, sites, targets);
-        push_ecsv_fields(EVENT_COLUMNS, |f| f(&row), &mut out);
+        push_ecsv_fields(EVENT_COLUMNS, |f| f(&row), out);
         out.push('\n');
     }
-    out
 }
 
 /// Append one CSV line per event: the fields of [`EVENT_COLUMNS`].

@@ -44,6 +44,27 @@ pub fn percent_floor(frac: f64) -> String {
     format!("{:.0}%", floor_to(frac * 100.0, 0))
 }
 
+/// The expected photometry of an event in one line (tonight, calendar): exposure, noise per 10 minutes, SNR
+/// rounded down, and a saturation warning above the suggested-exposure limit.
+pub fn photometry_line(n: &crate::engine::noise::EventNoise) -> String {
+    format!(
+        "Photometry: {:.0} s exposures, {:.2} ppt per 10 min, SNR {}{}",
+        n.exposure_s,
+        n.noise_10min_ppt,
+        n.snr
+            .map(|x| format!("{:.1}", floor_to(x, 1)))
+            .unwrap_or_else(|| "-- (no depth)".into()),
+        if n.peak_well_fraction > crate::engine::noise::WELL_FRACTION_LIMIT {
+            format!(
+                "; SATURATES ({:.0}% of full well): defocus",
+                n.peak_well_fraction * 100.0
+            )
+        } else {
+            String::new()
+        }
+    )
+}
+
 /// Mark for a block edge clipped to the usable run (twilight, altitude or another limit cuts the theoretical
 /// block there).
 pub const CLIPPED_EDGE_MARK: &str = "~";

@@ -238,27 +238,8 @@ fn push_event(out: &mut String, e: &Event, t: &Target, site: &Site, now: Option<
             airmass_text(alt)
         ));
     }
-    if let Some(n) = e.noise {
-        out.push_str(&wrap(
-            &format!(
-                "Photometry: {:.0} s exposures, {:.2} ppt per 10 min, SNR {}{}",
-                n.exposure_s,
-                n.noise_10min_ppt,
-                n.snr
-                    .map(|x| format!("{:.1}", crate::outputs::floor_to(x, 1)))
-                    .unwrap_or_else(|| "-- (no depth)".into()),
-                if n.peak_well_fraction > 0.7 {
-                    format!(
-                        "; SATURATES ({:.0}% of full well): defocus",
-                        n.peak_well_fraction * 100.0
-                    )
-                } else {
-                    String::new()
-                }
-            ),
-            "  ",
-            "  ",
-        ));
+    if let Some(n) = &e.noise {
+        out.push_str(&wrap(&crate::outputs::photometry_line(n), "  ", "  "));
     }
     let mut extra = vec![format!(
         "Moon {:.0} deg away ({})",
