@@ -223,7 +223,7 @@ fn out_file_is_written_whole_and_unknown_site_is_named() {
     let o = run(&args.iter().map(String::as_str).collect::<Vec<_>>());
     assert!(o.status.success(), "{}", stderr(&o));
     let text = std::fs::read_to_string(&out_file).unwrap();
-    assert!(text.starts_with("target,site,epoch,verdict"));
+    assert!(text.starts_with("target,site,telescope,epoch,verdict"));
     assert_eq!(
         std::fs::read_dir(&d).unwrap().count(),
         1,

@@ -32,6 +32,7 @@ fn site(lat: f64, lon: f64, tz: &str, min_alt: f64) -> Site {
             name: "main".into(),
             min_alt_deg: None,
             max_alt_deg: None,
+            photometry: None,
         }],
     }
 }

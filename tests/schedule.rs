@@ -96,6 +96,7 @@ fn two_overlapping_blocks_of_different_priority() {
     targets[b.target_index].priority = 5.0;
     let tels = vec![TelescopeEvents {
         site_index: 0,
+        telescope_index: 0,
         telescope: "main".into(),
         events: vec![a.clone(), b.clone()],
     }];
@@ -111,11 +112,13 @@ fn each_transit_is_taken_once_across_telescopes_unless_repeats_are_allowed() {
     let tels = vec![
         TelescopeEvents {
             site_index: 0,
+            telescope_index: 0,
             telescope: "A".into(),
             events: events.clone(),
         },
         TelescopeEvents {
             site_index: 0,
+            telescope_index: 1,
             telescope: "B".into(),
             events: events.clone(),
         },
@@ -163,11 +166,13 @@ fn complementary_ingress_and_egress_at_two_sites_are_paired() {
     let tels = vec![
         TelescopeEvents {
             site_index: 0,
+            telescope_index: 0,
             telescope: "main".into(),
             events: vec![ing],
         },
         TelescopeEvents {
             site_index: 1,
+            telescope_index: 0,
             telescope: "main".into(),
             events: vec![egr],
         },
@@ -222,6 +227,7 @@ fn complementary_pairs_with_any_number_of_telescopes_per_site() {
             for i in 0..n_a {
                 tels.push(TelescopeEvents {
                     site_index: 0,
+                    telescope_index: i,
                     telescope: format!("a{i}"),
                     events: vec![ing.clone(), own(&ing, tels.len() as i64)],
                 });
@@ -229,6 +235,7 @@ fn complementary_pairs_with_any_number_of_telescopes_per_site() {
             for i in 0..n_b {
                 tels.push(TelescopeEvents {
                     site_index: 1,
+                    telescope_index: i,
                     telescope: format!("b{i}"),
                     events: vec![egr.clone(), own(&egr, tels.len() as i64)],
                 });
@@ -333,6 +340,7 @@ fn plan_and_schedule_print_the_shared_columns_byte_for_byte() {
     let (sites, targets, events) = inputs();
     let tels = vec![TelescopeEvents {
         site_index: 0,
+        telescope_index: 0,
         telescope: "main".into(),
         events: events.clone(),
     }];

@@ -209,6 +209,7 @@ fn the_scheduler_keeps_a_telescope_busy_only_while_it_can_observe() {
     }
     let tels = vec![TelescopeEvents {
         site_index: 0,
+        telescope_index: 0,
         telescope: "main".into(),
         events: vec![a.clone(), b],
     }];

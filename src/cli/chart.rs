@@ -91,7 +91,8 @@ pub(super) fn run_chart_season(args: ChartSeasonArgs) -> Result<()> {
         std::fs::create_dir_all(&nights_dir)
             .with_context(|| format!("cannot create {}", nights_dir.display()))?;
         for sp in &result.sites {
-            let site = &sites[sp.site_index];
+            let whole_site = &sites[sp.site_index];
+            let site = &whole_site.for_telescope(&whole_site.telescopes[sp.telescope_index]);
             let mut done = std::collections::HashSet::new();
             for e in &sp.events {
                 let file = dipwatch::outputs::chart::night_chart_file(e, &sites, &targets);

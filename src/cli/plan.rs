@@ -52,10 +52,10 @@ pub(super) fn stream_plan(
         .collect();
     let long = targets.len() as i64 * n_nights * sites.len() as i64 > 2_000_000;
     let bar = if long && std::io::IsTerminal::is_terminal(&std::io::stderr()) {
-        let b = indicatif::ProgressBar::new((chunks.len() * sites.len()) as u64);
+        let b = indicatif::ProgressBar::new((chunks.len() * planner.station_count()) as u64);
         b.set_style(
             indicatif::ProgressStyle::with_template(
-                "{msg} [{bar:30}] {pos}/{len} site-months, {eta} left",
+                "{msg} [{bar:30}] {pos}/{len} telescope-months, {eta} left",
             )
             .unwrap_or_else(|_| indicatif::ProgressStyle::default_bar()),
         );
@@ -68,9 +68,9 @@ pub(super) fn stream_plan(
         w.write_all(stream_head(sites, opts, format)?.as_bytes())?;
         let mut lost = std::collections::BTreeMap::new();
         let mut first = true;
-        for si in 0..sites.len() {
+        for k in 0..planner.station_count() {
             for &(a, b) in &chunks {
-                let (sp, chunk_lost) = planner.site_plan(si, a, b);
+                let (sp, chunk_lost) = planner.station_plan(k, a, b);
                 for (ti, sigma) in chunk_lost {
                     lost.entry(ti).or_insert(sigma);
                 }

@@ -5,7 +5,8 @@
 //! Sources, beside each formula: Bessell (1979) zero-magnitude flux densities and band widths, with the photon
 //! identity 1 Jy = 1.51e7 photons s^-1 m^-2 (dlambda/lambda)^-1 (as tabulated in J. Huchra's magnitude notes,
 //! CfA); the CCD equation (Merline & Howell 1995; Howell, Handbook of CCD Astronomy); Osborn et al. (2015) eq. 7 for
-//! scintillation; Winn et al. (2008) for the time-averaging red-noise factor beta.
+//! scintillation (Young 1967 as a cross-check); Winn et al. (2008) for the time-averaging red-noise factor beta;
+//! Krisciunas & Schaefer (1991) for the sky brightness added by the Moon and the dark sky's rise with airmass.
 
 pub use crate::astro::bands::{band, Band, BANDS};
 
@@ -42,12 +43,24 @@ pub struct Camera {
     pub full_well_e: f64,
     /// Pixel scale, arcsec per pixel.
     pub pixel_scale_arcsec: f64,
+    /// Gain, electrons per ADU, if known: a 16-bit converter then saturates at 65535 ADU x gain.
+    pub gain_e_per_adu: Option<f64>,
 }
+
+/// Largest count of a 16-bit analogue-to-digital converter, ADU.
+pub const ADC_MAX_ADU: f64 = 65_535.0;
 
 impl Camera {
     /// Collecting area, m^2: pi D^2 / 4 (1 - obstruction^2).
     pub fn area_m2(&self) -> f64 {
         std::f64::consts::PI * self.aperture_m.powi(2) / 4.0 * (1.0 - self.obstruction.powi(2))
+    }
+
+    /// The level at which a pixel saturates, e: the full well, or the 16-bit converter's top (65535 ADU x gain)
+    /// when the gain is known and that is lower.
+    pub fn saturation_e(&self) -> f64 {
+        self.gain_e_per_adu
+            .map_or(self.full_well_e, |g| self.full_well_e.min(ADC_MAX_ADU * g))
     }
 }
 
@@ -95,7 +108,8 @@ pub struct Budget {
     pub scintillation_ppt: f64,
     /// All of them in quadrature (white noise of one exposure), ppt.
     pub total_ppt: f64,
-    /// The peak pixel as a fraction of full well (star plus sky plus dark).
+    /// The peak pixel (star plus sky plus dark) as a fraction of the saturation level
+    /// ([`Camera::saturation_e`]).
     pub peak_well_fraction: f64,
 }
 
@@ -112,6 +126,95 @@ pub fn scintillation_rel(
         * airmass.powi(3)
         * (-2.0 * altitude_m / 8000.0).exp())
     .sqrt()
+}
+
+/// Scintillation noise of one exposure, relative rms, by Young (1967) in the form Osborn et al. (2015) compare
+/// with (from memory):
+/// sigma = 0.09 D_cm^(-2/3) X^1.75 exp(-h / H) (2 t)^(-1/2), D in cm, H = 8000 m. Osborn et al. found it
+/// underestimates measured scintillation (their median C_Y 1.5 in eq. 7); kept as a cross-check of eq. 7.
+pub fn scintillation_young_rel(
+    aperture_m: f64,
+    exposure_s: f64,
+    airmass: f64,
+    altitude_m: f64,
+) -> f64 {
+    0.09 * (aperture_m * 100.0).powf(-2.0 / 3.0) * airmass.powf(1.75) * (-altitude_m / 8000.0).exp()
+        / (2.0 * exposure_s).sqrt()
+}
+
+/// The Moon's place and phase as the sky brightness model needs them.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct MoonSky {
+    /// Illuminated fraction, 0-1.
+    pub illum: f64,
+    /// Angular distance from the target, deg.
+    pub sep_deg: f64,
+    /// Altitude, deg (no moonlight below the horizon).
+    pub alt_deg: f64,
+}
+
+/// Krisciunas & Schaefer (1991) X(Z) = (1 - 0.96 sin^2 Z)^(-1/2): the airmass of their eqs. 2 and 3, kept
+/// finite at the horizon (Z in deg).
+fn ks_airmass(zenith_deg: f64) -> f64 {
+    (1.0 - 0.96 * zenith_deg.to_radians().sin().powi(2)).powf(-0.5)
+}
+
+/// Surface brightness in nanolamberts from V mag/arcsec^2, and back: Krisciunas & Schaefer (1991) eqs. 1 and
+/// 27, B = 34.08 exp(20.7233 - 0.92104 V).
+fn nanolamberts_from_v(v: f64) -> f64 {
+    34.08 * (20.7233 - 0.92104 * v).exp()
+}
+
+fn v_from_nanolamberts(b: f64) -> f64 {
+    (20.7233 - (b / 34.08).ln()) / 0.92104
+}
+
+/// Scattered moonlight at a sky position, V mag/arcsec^2, by Krisciunas & Schaefer (1991): the Moon's
+/// brightness from its phase angle alpha (eq. 20, I = 10^(-0.4 (3.84 + 0.026 |alpha| + 4e-9 alpha^4))), the
+/// scattering function of the separation rho (eq. 21, f = 10^5.36 (1.06 + cos^2 rho) + 10^(6.15 - rho/40)),
+/// and the extinction of both paths (eq. 15, B = f I 10^(-0.4 k X(Zm)) (1 - 10^(-0.4 k X(Z)))), `k` the V
+/// extinction coefficient. None when the Moon is below the horizon. Their stated accuracy is 8-23% against
+/// measurements; the model is for V only (see [`sky_mag_arcsec2`] for other bands).
+pub fn moonlight_v_mag(moon: &MoonSky, target_alt_deg: f64, k_v: f64) -> Option<f64> {
+    if moon.alt_deg <= 0.0 {
+        return None;
+    }
+    let alpha = (2.0 * moon.illum.clamp(0.0, 1.0) - 1.0).acos().to_degrees();
+    let i_moon = 10f64.powf(-0.4 * (3.84 + 0.026 * alpha + 4e-9 * alpha.powi(4)));
+    let rho = moon.sep_deg.clamp(0.0, 180.0);
+    let f =
+        10f64.powf(5.36) * (1.06 + rho.to_radians().cos().powi(2)) + 10f64.powf(6.15 - rho / 40.0);
+    let (z_moon, z) = (
+        90.0 - moon.alt_deg,
+        (90.0 - target_alt_deg).clamp(0.0, 90.0),
+    );
+    let b = f
+        * i_moon
+        * 10f64.powf(-0.4 * k_v * ks_airmass(z_moon))
+        * (1.0 - 10f64.powf(-0.4 * k_v * ks_airmass(z)));
+    Some(v_from_nanolamberts(b))
+}
+
+/// The sky at a target: the dark sky's zenith brightness `dark_zenith_mag` brightened towards the horizon
+/// (Krisciunas & Schaefer 1991 eq. 2, B = B_zen 10^(-0.4 k (X - 1)) X, with the band's extinction `k`), plus
+/// any moonlight, mag/arcsec^2 in `band`. Moonlight is computed in V and carried to other bands with the Sun's
+/// colours (reflected sunlight; from memory: V-U -0.82, V-B -0.65, V-R 0.36, V-I 0.70, V-g -0.30, V-r 0.16,
+/// V-i 0.28, V-z 0.31). The moonlit sky is bluer than sunlight (Rayleigh scattering), so the red-band moonlight
+/// this gives errs bright: the noise it implies errs high, never optimistic.
+pub fn sky_mag_arcsec2(
+    band: &Band,
+    dark_zenith_mag: f64,
+    k: f64,
+    target_alt_deg: f64,
+    moon: Option<&MoonSky>,
+    k_v: f64,
+) -> f64 {
+    let x = ks_airmass((90.0 - target_alt_deg).clamp(0.0, 90.0));
+    let dark_nl = nanolamberts_from_v(dark_zenith_mag) * 10f64.powf(-0.4 * k * (x - 1.0)) * x;
+    let moon_nl = moon
+        .and_then(|m| moonlight_v_mag(m, target_alt_deg, k_v))
+        .map_or(0.0, |v| nanolamberts_from_v(v - band.sun_v_minus_band));
+    v_from_nanolamberts(dark_nl + moon_nl)
 }
 
 /// Signal-to-noise by the CCD equation (Merline & Howell 1995): S / sqrt(S + n (sky + dark + read^2)), all in
@@ -163,7 +266,7 @@ pub fn budget(b: &Band, cam: &Camera, c: &Conditions) -> Budget {
         read_ppt,
         scintillation_ppt,
         total_ppt,
-        peak_well_fraction: peak / cam.full_well_e,
+        peak_well_fraction: peak / cam.saturation_e(),
     }
 }
 
@@ -226,16 +329,28 @@ pub struct EventNoise {
     pub peak_well_fraction: f64,
 }
 
-/// The noise of one event at a site with a photometric set-up: a star of `mag` (in the set-up's band) at
-/// `airmass`, with `in_transit_s` and `out_of_transit_s` of usable time. The transit SNR is
-/// depth / (beta sigma_1 sqrt(1/N_in + 1/N_out)), sigma_1 the white noise of one exposure and N the numbers of
-/// exposures (cadence = exposure + overhead) in and out of transit: the depth is the difference of two means
-/// (common practice, no source). None when the set-up names an unknown band.
+/// Where an event's star sits in the sky, for its noise: airmass and altitude at mid-event and the Moon.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct EventSky {
+    /// Kasten-Young airmass of the target.
+    pub airmass: f64,
+    /// Geometric altitude of the target, deg.
+    pub target_alt_deg: f64,
+    /// The Moon (None: ignore moonlight).
+    pub moon: Option<MoonSky>,
+}
+
+/// The noise of one event at a site with a photometric set-up: a star of `mag` (in the set-up's band) in `sky`,
+/// with `in_transit_s` and `out_of_transit_s` of usable time. The sky is the dark sky (the set-up's `sky_mag`
+/// or the band's typical value) at the target's airmass plus the Moon's scattered light ([`sky_mag_arcsec2`]).
+/// The transit SNR is depth / (beta sigma_1 sqrt(1/N_in + 1/N_out)), sigma_1 the white noise of one exposure
+/// and N the numbers of exposures (cadence = exposure + overhead) in and out of transit: the depth is the
+/// difference of two means (common practice, no source). None when the set-up names an unknown band.
 pub fn event_noise(
     p: &crate::inputs::sites::Photometry,
     site_altitude_m: f64,
     (mag, depth_ppt): (f64, Option<f64>),
-    airmass: f64,
+    sky: &EventSky,
     (in_transit_s, out_of_transit_s): (f64, f64),
 ) -> Option<EventNoise> {
     let b = band(&p.band)?;
@@ -247,13 +362,28 @@ pub fn event_noise(
         dark_e_per_s: p.dark_e_per_s,
         full_well_e: p.full_well_e,
         pixel_scale_arcsec: p.pixel_scale_arcsec,
+        gain_e_per_adu: p.gain_e_per_adu,
+    };
+    let k = p.extinction.unwrap_or(b.extinction_mag);
+    // Krisciunas & Schaefer need the V extinction: the set-up's own when it is a V set-up.
+    let k_v = if b.name == "V" {
+        k
+    } else {
+        band("V").map_or(k, |v| v.extinction_mag)
     };
     let mut c = Conditions {
         mag,
-        airmass: airmass.clamp(1.0, 40.0),
+        airmass: sky.airmass.clamp(1.0, 40.0),
         exposure_s: 1.0,
-        sky_mag_arcsec2: p.sky_mag.unwrap_or(b.dark_sky_mag_arcsec2),
-        extinction_mag: p.extinction.unwrap_or(b.extinction_mag),
+        sky_mag_arcsec2: sky_mag_arcsec2(
+            b,
+            p.sky_mag.unwrap_or(b.dark_sky_mag_arcsec2),
+            k,
+            sky.target_alt_deg,
+            sky.moon.as_ref(),
+            k_v,
+        ),
+        extinction_mag: k,
         seeing_arcsec: p.seeing_arcsec,
         aperture_radius_arcsec: p.aperture_radius_arcsec.unwrap_or(1.5 * p.seeing_arcsec),
         site_altitude_m,
@@ -337,6 +467,7 @@ mod tests {
             dark_e_per_s: 0.0,
             full_well_e: 1e9,
             pixel_scale_arcsec: 0.5,
+            gain_e_per_adu: None,
         };
         let c = Conditions {
             mag: 11.0,
@@ -381,6 +512,7 @@ mod tests {
             read_noise_e: 8.0,
             dark_e_per_s: 0.02,
             full_well_e: 100_000.0,
+            gain_e_per_adu: None,
             pixel_scale_arcsec: 0.6,
             exposure_s: Some(60.0),
             overhead_s: 5.0,
@@ -393,7 +525,12 @@ mod tests {
             noise_floor_ppt: 0.0,
         };
         let snr = |depth: f64, t_in: f64, t_out: f64| {
-            event_noise(&p, 1000.0, (12.0, Some(depth)), 1.3, (t_in, t_out))
+            let sky = EventSky {
+                airmass: 1.3,
+                target_alt_deg: 50.0,
+                moon: None,
+            };
+            event_noise(&p, 1000.0, (12.0, Some(depth)), &sky, (t_in, t_out))
                 .unwrap()
                 .snr
                 .unwrap()
@@ -407,5 +544,108 @@ mod tests {
             0.0,
             "no baseline, no depth measured"
         );
+    }
+
+    #[test]
+    fn young_1967_against_osborn_eq_7() {
+        // Osborn et al. (2015) eq. 7 with C_Y = 1 is 0.09^2 x 100^(-4/3) / 2 = 0.8725e-5 of Young's variance
+        // law apart from the airmass power (X^3 against X^3.5): the ratio at X = 1 is C_Y / sqrt(0.8725), and
+        // grows as X^(-1/4). Both formulas from memory (Young's as Osborn et al. quote it).
+        let young = scintillation_young_rel(1.0, 60.0, 1.0, 2400.0);
+        let osborn = scintillation_rel(1.5, 1.0, 60.0, 1.0, 2400.0);
+        let want = 1.5 / (0.09f64.powi(2) * 100f64.powf(-4.0 / 3.0) / 2.0 / 1e-5).sqrt();
+        assert!((osborn / young - want).abs() < 1e-9, "{}", osborn / young);
+        assert!((want - 1.606).abs() < 0.001, "{want}");
+        let at2 = scintillation_rel(1.5, 1.0, 60.0, 2.0, 2400.0)
+            / scintillation_young_rel(1.0, 60.0, 2.0, 2400.0);
+        assert!((at2 / want - 2f64.powf(-0.25)).abs() < 1e-9);
+    }
+
+    #[test]
+    fn moonlight_of_krisciunas_schaefer() {
+        // Computed from their formula (the check): full Moon 90 deg from the target, both at 45 deg zenith
+        // distance, k = 0.172: about 18.6 V mag/arcsec^2 (18.674 by hand with eqs. 15, 20, 21 and 27).
+        let full = MoonSky {
+            illum: 1.0,
+            sep_deg: 90.0,
+            alt_deg: 45.0,
+        };
+        let v = moonlight_v_mag(&full, 45.0, 0.172).unwrap();
+        assert!((v - 18.674).abs() < 0.005, "{v}");
+        // specsim's documented example (specsim.atmosphere.krisciunas_schaefer, an independent implementation):
+        // target at zenith distance 20 deg, Moon at 70 deg, 50 deg apart, phase 0.25 (alpha = 45 deg), k = 0.15:
+        // 19.855 mag/arcsec^2.
+        let quarterish = MoonSky {
+            illum: 0.5 * (1.0 + (0.25 * std::f64::consts::PI).cos()),
+            sep_deg: 50.0,
+            alt_deg: 20.0,
+        };
+        let v = moonlight_v_mag(&quarterish, 70.0, 0.15).unwrap();
+        assert!((v - 19.855).abs() < 0.002, "{v}");
+        // Brighter (smaller magnitude) with more illumination, fainter with more separation; none below the horizon.
+        let at = |illum: f64, sep_deg: f64| {
+            moonlight_v_mag(
+                &MoonSky {
+                    illum,
+                    sep_deg,
+                    alt_deg: 40.0,
+                },
+                50.0,
+                0.15,
+            )
+            .unwrap()
+        };
+        for w in [0.1, 0.3, 0.5, 0.7, 0.9, 1.0].windows(2) {
+            assert!(at(w[1], 60.0) < at(w[0], 60.0));
+        }
+        for w in [10.0, 30.0, 60.0, 90.0].windows(2) {
+            assert!(at(0.8, w[1]) > at(0.8, w[0]));
+        }
+        let down = MoonSky {
+            alt_deg: -1.0,
+            ..full
+        };
+        assert!(moonlight_v_mag(&down, 45.0, 0.15).is_none());
+    }
+
+    #[test]
+    fn sky_brightens_with_airmass_and_moonlight() {
+        let v = band("V").unwrap();
+        let zenith = sky_mag_arcsec2(v, 21.8, 0.15, 90.0, None, 0.15);
+        assert!((zenith - 21.8).abs() < 1e-9, "{zenith}");
+        // Krisciunas & Schaefer eq. 2 at X(Z = 60 deg) = 1.890: 21.8 - 2.5 log10(X) + k (X - 1), to 1e-4 mag
+        // (their nanolambert conversion uses 0.92104 for 0.4 ln 10 = 0.921034).
+        let x = (1.0 - 0.96 * 60f64.to_radians().sin().powi(2)).powf(-0.5);
+        let low = sky_mag_arcsec2(v, 21.8, 0.15, 30.0, None, 0.15);
+        assert!(
+            (low - (21.8 - 2.5 * x.log10() + 0.15 * (x - 1.0))).abs() < 1e-4,
+            "{low}"
+        );
+        let moon = MoonSky {
+            illum: 1.0,
+            sep_deg: 90.0,
+            alt_deg: 45.0,
+        };
+        let lit = sky_mag_arcsec2(v, 21.8, 0.172, 45.0, Some(&moon), 0.172);
+        assert!(lit < 18.7 && lit > 18.4, "{lit}");
+    }
+
+    #[test]
+    fn the_converter_can_saturate_before_the_well() {
+        let mut cam = Camera {
+            aperture_m: 0.4,
+            obstruction: 0.3,
+            throughput: 0.5,
+            read_noise_e: 8.0,
+            dark_e_per_s: 0.0,
+            full_well_e: 200_000.0,
+            pixel_scale_arcsec: 0.6,
+            gain_e_per_adu: None,
+        };
+        assert_eq!(cam.saturation_e(), 200_000.0);
+        cam.gain_e_per_adu = Some(1.5);
+        assert_eq!(cam.saturation_e(), 65_535.0 * 1.5);
+        cam.gain_e_per_adu = Some(5.0);
+        assert_eq!(cam.saturation_e(), 200_000.0);
     }
 }

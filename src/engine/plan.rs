@@ -160,6 +160,9 @@ pub struct Event {
     pub target_index: usize,
     /// Index of the site in the input list.
     pub site_index: usize,
+    /// Index of the telescope in the site's list: each telescope of a site gets its own row, since limits and
+    /// noise differ per telescope.
+    pub telescope_index: usize,
     /// Epoch number n since T0.
     pub epoch: i64,
     /// Verdict.
@@ -253,11 +256,13 @@ pub struct LostEphemeris {
     pub sigma_min: f64,
 }
 
-/// Everything planned for one site.
+/// Everything planned for one telescope at one site (a site with one telescope has one `SitePlan`).
 #[derive(Debug, Clone, PartialEq)]
 pub struct SitePlan {
     /// Site index in the input list.
     pub site_index: usize,
+    /// Telescope index in the site's list.
+    pub telescope_index: usize,
     /// The nights in range.
     pub nights: Vec<Night>,
     /// Events sorted by block start (observable ones, plus the rest if asked).
@@ -267,7 +272,7 @@ pub struct SitePlan {
 /// The result of a planning run.
 #[derive(Debug, Clone, PartialEq)]
 pub struct Plan {
-    /// Per site, in input order.
+    /// Per site and telescope, in input order (sites, then each site's telescopes).
     pub sites: Vec<SitePlan>,
     /// Targets whose ephemeris is lost in the range.
     pub lost: Vec<LostEphemeris>,
@@ -565,6 +570,8 @@ struct Pairing<'a> {
     target_index: usize,
     target: &'a Target,
     site_index: usize,
+    telescope_index: usize,
+    /// The site as its telescope sees it (that telescope's limits and photometry).
     site: &'a Site,
     opts: &'a PlanOptions,
     tables: &'a SkyTables,
@@ -688,7 +695,7 @@ fn cannot_be_listed(
 fn expected_noise(
     p: &Pairing<'_>,
     track: &Track,
-    mid_utc: f64,
+    (mid_utc, moon): (f64, crate::engine::noise::MoonSky),
     coverage: f64,
     baseline_min: f64,
 ) -> Option<crate::engine::noise::EventNoise> {
@@ -699,7 +706,8 @@ fn expected_noise(
     if named(p.target.mag_band.as_deref().unwrap_or("V")) != named(&ph.band) {
         return None;
     }
-    let airmass = airmass_kasten_young(track.alt_deg(mid_utc));
+    let alt_deg = track.alt_deg(mid_utc);
+    let airmass = airmass_kasten_young(alt_deg);
     if !airmass.is_finite() {
         return None;
     }
@@ -707,7 +715,11 @@ fn expected_noise(
         ph,
         p.site.elevation_m,
         (mag, p.target.depth_ppt),
-        airmass,
+        &crate::engine::noise::EventSky {
+            airmass,
+            target_alt_deg: alt_deg,
+            moon: Some(moon),
+        },
         (coverage * p.target.t14_hours * 3600.0, baseline_min * 60.0),
     )
 }
@@ -731,12 +743,30 @@ fn evaluate(p: &Pairing<'_>, t: Predicted, night: &Night) -> Option<Event> {
     let (coverage, run) = best_run(&usable, ingress, egress);
     let (verdict, before_min, after_min) = judge_run(run, ingress, egress, margin, opts);
     let mut observable = meets_criteria(p, verdict, coverage, lost, &mut reasons);
-    // The expected noise is needed to judge an event only under --min-snr; otherwise only for listed events.
-    let noise = if observable || opts.include_unobservable {
-        expected_noise(p, &track, t.mid_utc, coverage, before_min + after_min)
-    } else {
-        None
+    if !observable && !opts.include_unobservable {
+        return None;
+    }
+    let sky = tables.sun_moon(t.mid_utc, &site.observer);
+    let moon_sep = separation_rad(
+        track.ra_rad,
+        track.dec_rad,
+        sky.moon.ra_rad,
+        sky.moon.dec_rad,
+    )
+    .to_degrees();
+    // The expected noise, with the Moon's light at mid-transit (only for events that can be listed).
+    let moon_sky = crate::engine::noise::MoonSky {
+        illum: sky.moon_illum,
+        sep_deg: moon_sep,
+        alt_deg: sky.moon_alt_deg,
     };
+    let noise = expected_noise(
+        p,
+        &track,
+        (t.mid_utc, moon_sky),
+        coverage,
+        before_min + after_min,
+    );
     if observable
         && opts.min_snr > 0.0
         && noise.and_then(|n| n.snr).is_some_and(|x| x < opts.min_snr)
@@ -755,19 +785,11 @@ fn evaluate(p: &Pairing<'_>, t: Predicted, night: &Night) -> Option<Event> {
     let alt_in = track.alt_deg(ingress);
     let (alt_mid, az_mid) = track.alt_az_deg(t.mid_utc);
     let alt_eg = track.alt_deg(egress);
-    let sky = tables.sun_moon(t.mid_utc, &site.observer);
-    let (sun_alt, moon_topo, moon_alt, moon_illum) =
-        (sky.sun_alt_deg, sky.moon, sky.moon_alt_deg, sky.moon_illum);
-    let moon_sep = separation_rad(
-        track.ra_rad,
-        track.dec_rad,
-        moon_topo.ra_rad,
-        moon_topo.dec_rad,
-    )
-    .to_degrees();
+    let (sun_alt, moon_alt, moon_illum) = (sky.sun_alt_deg, sky.moon_alt_deg, sky.moon_illum);
     Some(Event {
         target_index: p.target_index,
         site_index: p.site_index,
+        telescope_index: p.telescope_index,
         epoch: t.epoch,
         verdict,
         observable,
@@ -810,14 +832,14 @@ fn evaluate(p: &Pairing<'_>, t: Predicted, night: &Night) -> Option<Event> {
 
 /// Plan every transit of `targets` at `sites` over the nights in `opts`.
 ///
-/// Returns, per site, the nights and the events (observable ones; all of them with
+/// Returns, per site and telescope, the nights and the events (observable ones; all of them with
 /// `opts.include_unobservable`), sorted by block start, plus the targets whose ephemeris is lost.
 pub fn plan(sites: &[Site], targets: &[Target], opts: &PlanOptions) -> Plan {
     let planner = Planner::new(sites, targets, opts);
     let mut site_plans = Vec::new();
     let mut lost = std::collections::BTreeMap::new();
-    for si in 0..sites.len() {
-        let (sp, site_lost) = planner.site_plan(si, opts.first_night, opts.last_night);
+    for k in 0..planner.station_count() {
+        let (sp, site_lost) = planner.station_plan(k, opts.first_night, opts.last_night);
         for (ti, sigma) in site_lost {
             lost.entry(ti).or_insert(sigma);
         }
@@ -838,7 +860,8 @@ pub fn plan(sites: &[Site], targets: &[Target], opts: &PlanOptions) -> Plan {
 /// A planning run's shared state: the inputs and one set of [`SkyTables`] covering every site's nights, so
 /// the run can be done site by site and in chunks of nights (streaming output keeps memory bounded).
 pub struct Planner<'a> {
-    sites: &'a [Site],
+    /// (site index, telescope index, the site as that telescope sees it), sites in order, then telescopes.
+    stations: Vec<(usize, usize, Site)>,
     targets: &'a [Target],
     opts: &'a PlanOptions,
     tables: Option<SkyTables>,
@@ -881,8 +904,18 @@ impl<'a> Planner<'a> {
                 .collect(),
             _ => Vec::new(),
         };
+        let stations = sites
+            .iter()
+            .enumerate()
+            .flat_map(|(si, s)| {
+                s.telescopes
+                    .iter()
+                    .enumerate()
+                    .map(move |(ti, t)| (si, ti, s.for_telescope(t)))
+            })
+            .collect();
         Planner {
-            sites,
+            stations,
             targets,
             opts,
             tables,
@@ -890,20 +923,27 @@ impl<'a> Planner<'a> {
         }
     }
 
-    /// The plan of site `si` for the nights `first..=last` (within the run's range), and the targets whose
-    /// ephemeris is lost there, with their sigma in minutes.
-    pub fn site_plan(
+    /// How many (site, telescope) pairs the run plans for: every telescope of every site.
+    pub fn station_count(&self) -> usize {
+        self.stations.len()
+    }
+
+    /// The plan of station `k` (the k-th telescope in site order, see [`Planner::station_count`]) for the
+    /// nights `first..=last` (within the run's range), and the targets whose ephemeris is lost there, with
+    /// their sigma in minutes.
+    pub fn station_plan(
         &self,
-        si: usize,
+        k: usize,
         first: NaiveDate,
         last: NaiveDate,
     ) -> (SitePlan, Vec<(usize, f64)>) {
-        let site = &self.sites[si];
+        let (si, tel, site) = (self.stations[k].0, self.stations[k].1, &self.stations[k].2);
         let windows = night_windows(site, first, last);
         let (Some(tables), false) = (&self.tables, windows.is_empty()) else {
             return (
                 SitePlan {
                     site_index: si,
+                    telescope_index: tel,
                     nights: Vec::new(),
                     events: Vec::new(),
                 },
@@ -924,6 +964,7 @@ impl<'a> Planner<'a> {
                     target_index: ti,
                     target,
                     site_index: si,
+                    telescope_index: tel,
                     site,
                     opts: self.opts,
                     tables,
@@ -950,6 +991,7 @@ impl<'a> Planner<'a> {
         (
             SitePlan {
                 site_index: si,
+                telescope_index: tel,
                 nights,
                 events,
             },
@@ -1074,6 +1116,7 @@ pub(crate) mod tests_support {
         Event {
             target_index: 0,
             site_index: 0,
+            telescope_index: 0,
             epoch: 1,
             verdict: Verdict::Whole,
             observable: true,

@@ -137,6 +137,8 @@ pub fn best_subset(jobs: &[Job], gap: f64) -> Vec<usize> {
 pub struct TelescopeEvents {
     /// Site index.
     pub site_index: usize,
+    /// Telescope index in the site's list.
+    pub telescope_index: usize,
     /// Telescope name.
     pub telescope: String,
     /// Observable events.
@@ -193,40 +195,25 @@ pub fn combined_coverage(a: &Event, b: &Event) -> f64 {
     (total / transit.len_days()).clamp(0.0, 1.0)
 }
 
-/// The candidates of every telescope: for each site and telescope, the plan's events with that telescope's
-/// altitude limits (telescopes sharing their limits share one plan). Events keep the site's index.
+/// The candidates of every telescope: the plan's events of each site and telescope (each planned with that
+/// telescope's limits and photometry).
 pub fn telescope_candidates(
     sites: &[Site],
     targets: &[Target],
     opts: &PlanOptions,
 ) -> Vec<TelescopeEvents> {
-    let mut tels = Vec::new();
-    for (si, site) in sites.iter().enumerate() {
-        type Limits = (f64, Option<f64>);
-        let mut cache: Vec<(Limits, Vec<Event>)> = Vec::new();
-        for t in &site.telescopes {
-            let s = site.for_telescope(t);
-            let limits = (s.min_alt_deg, s.max_alt_deg);
-            let events = match cache.iter().find(|(a, _)| *a == limits) {
-                Some((_, ev)) => ev.clone(),
-                None => {
-                    let mut p = plan(std::slice::from_ref(&s), targets, opts);
-                    let mut ev = std::mem::take(&mut p.sites[0].events);
-                    for e in &mut ev {
-                        e.site_index = si;
-                    }
-                    cache.push((limits, ev.clone()));
-                    ev
-                }
-            };
-            tels.push(TelescopeEvents {
-                site_index: si,
-                telescope: t.name.clone(),
-                events,
-            });
-        }
-    }
-    tels
+    plan(sites, targets, opts)
+        .sites
+        .into_iter()
+        .map(|sp| TelescopeEvents {
+            site_index: sp.site_index,
+            telescope_index: sp.telescope_index,
+            telescope: sites[sp.site_index].telescopes[sp.telescope_index]
+                .name
+                .clone(),
+            events: sp.events,
+        })
+        .collect()
 }
 
 /// `plan` with each site's events replaced by the scheduled ones (each transit once per site, in start
@@ -235,7 +222,9 @@ pub fn keep_scheduled(plan: &mut Plan, chosen: &[Chosen]) {
     for sp in &mut plan.sites {
         sp.events = chosen
             .iter()
-            .filter(|c| c.event.site_index == sp.site_index)
+            .filter(|c| {
+                c.event.site_index == sp.site_index && c.event.telescope_index == sp.telescope_index
+            })
             .map(|c| c.event.clone())
             .collect();
         sp.events

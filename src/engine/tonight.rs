@@ -62,12 +62,13 @@ pub fn tonight<'a>(
     now_utc: Option<f64>,
 ) -> Tonight<'a> {
     let result = plan(std::slice::from_ref(site), targets, opts);
-    let events = result
-        .sites
-        .into_iter()
-        .next()
-        .map(|sp| sp.events)
-        .unwrap_or_default();
+    // Every telescope's events, in time order (a site with several telescopes lists each event per telescope).
+    let mut events: Vec<_> = result.sites.into_iter().flat_map(|sp| sp.events).collect();
+    events.sort_by(|a, b| {
+        a.block_start_utc
+            .total_cmp(&b.block_start_utc)
+            .then(a.telescope_index.cmp(&b.telescope_index))
+    });
     let almanac = night_almanac(site, opts.first_night);
     let asked: Vec<usize> = if named {
         (0..targets.len()).collect()

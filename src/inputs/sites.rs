@@ -63,6 +63,8 @@ pub struct Photometry {
     pub dark_e_per_s: f64,
     /// Full well, e (default 100000).
     pub full_well_e: f64,
+    /// Gain, e/ADU (optional): a 16-bit converter then saturates at 65535 ADU x gain, if below the full well.
+    pub gain_e_per_adu: Option<f64>,
     /// Pixel scale, arcsec/pixel (default 0.6).
     pub pixel_scale_arcsec: f64,
     /// Fixed exposure, s (default: suggested per event).
@@ -94,19 +96,59 @@ pub struct Telescope {
     pub min_alt_deg: Option<f64>,
     /// Its own highest trackable altitude, deg, if it differs from the site's.
     pub max_alt_deg: Option<f64>,
+    /// Its photometric set-up: the site's keys as defaults, overridden by the telescope's own (None without an
+    /// aperture in either; a hand-built site's `photometry` then applies).
+    pub photometry: Option<Photometry>,
+}
+
+/// The photometric keys a telescope item may set for itself (the rest describe the site's sky).
+pub const TELESCOPE_PHOTOMETRY_KEYS: [&str; 12] = [
+    "aperture_m",
+    "obstruction",
+    "throughput",
+    "band",
+    "read_noise_e",
+    "dark_e_per_s",
+    "gain_e_per_adu",
+    "full_well_e",
+    "pixel_scale_arcsec",
+    "exposure_s",
+    "overhead_s",
+    "aperture_radius_arcsec",
+];
+
+/// A telescope item's own photometric keys, before the site's defaults are merged in.
+#[derive(Debug, Clone, Default)]
+struct TelescopeOverrides {
+    numbers: Vec<(String, f64)>,
+    band: Option<String>,
 }
 
 impl Site {
-    /// The site as seen by one of its telescopes: the same site with that telescope's altitude limits.
+    /// The site as seen by one of its telescopes: the same site with that telescope's altitude limits and
+    /// photometric set-up, and that telescope as its only one.
     pub fn for_telescope(&self, t: &Telescope) -> Site {
         let mut s = self.clone();
+        s.telescopes = vec![t.clone()];
         if let Some(a) = t.min_alt_deg {
             s.min_alt_deg = a;
         }
         if t.max_alt_deg.is_some() {
             s.max_alt_deg = t.max_alt_deg;
         }
+        if t.photometry.is_some() {
+            s.photometry = t.photometry.clone();
+        }
         s
+    }
+
+    /// How a telescope of this site is named in screens and calendars: the site's name alone when it has one
+    /// telescope, `Site / telescope` otherwise.
+    pub fn station_label(&self, telescope_index: usize) -> String {
+        match (self.telescopes.len(), self.telescopes.get(telescope_index)) {
+            (2.., Some(t)) => format!("{} / {}", self.name, t.name),
+            _ => self.name.clone(),
+        }
     }
 }
 
@@ -140,6 +182,7 @@ struct RawSite {
     read_noise_e: Option<Spanned<f64>>,
     dark_e_per_s: Option<Spanned<f64>>,
     full_well_e: Option<Spanned<f64>>,
+    gain_e_per_adu: Option<Spanned<f64>>,
     pixel_scale_arcsec: Option<Spanned<f64>>,
     exposure_s: Option<Spanned<f64>>,
     overhead_s: Option<Spanned<f64>>,
@@ -267,7 +310,7 @@ impl SiteCtx<'_> {
 }
 
 /// The numeric keys of a site with their accepted ranges: validation is driven by this table.
-const SITE_NUMBERS: [(&str, f64, f64, &str); 23] = [
+const SITE_NUMBERS: [(&str, f64, f64, &str); 24] = [
     ("latitude_deg", -90.0, 90.0, "a latitude within -90..90 deg"),
     (
         "longitude_deg",
@@ -316,6 +359,12 @@ const SITE_NUMBERS: [(&str, f64, f64, &str); 23] = [
         "a dark current within 0..10000 e/s/pixel",
     ),
     ("full_well_e", 100.0, 1e8, "a full well within 100..1e8 e"),
+    (
+        "gain_e_per_adu",
+        0.01,
+        1000.0,
+        "a gain within 0.01..1000 e/ADU",
+    ),
     (
         "pixel_scale_arcsec",
         0.01,
@@ -390,6 +439,7 @@ impl RawSite {
             "read_noise_e" => self.read_noise_e.as_ref(),
             "dark_e_per_s" => self.dark_e_per_s.as_ref(),
             "full_well_e" => self.full_well_e.as_ref(),
+            "gain_e_per_adu" => self.gain_e_per_adu.as_ref(),
             "pixel_scale_arcsec" => self.pixel_scale_arcsec.as_ref(),
             "exposure_s" => self.exposure_s.as_ref(),
             "overhead_s" => self.overhead_s.as_ref(),
@@ -509,6 +559,7 @@ struct SiteExtras {
     hour_angle_limits_h: Option<(f64, f64)>,
     horizon: HorizonProfile,
     telescopes: Vec<Telescope>,
+    overrides: Vec<TelescopeOverrides>,
 }
 
 /// Darkness level, hour-angle limits, horizon profile (each bad pair named by its own line) and telescopes.
@@ -560,18 +611,22 @@ fn parse_extras(ctx: &SiteCtx<'_>, r: &RawSite, problems: &mut Problems) -> Opti
             }
         }
     }
-    let telescopes = match &r.telescopes {
-        None => vec![Telescope {
-            name: "main".into(),
-            min_alt_deg: None,
-            max_alt_deg: None,
-        }],
+    let (telescopes, overrides) = match &r.telescopes {
+        None => (
+            vec![Telescope {
+                name: "main".into(),
+                min_alt_deg: None,
+                max_alt_deg: None,
+                photometry: None,
+            }],
+            vec![TelescopeOverrides::default()],
+        ),
         Some(v) => parse_telescopes(v.get_ref()).unwrap_or_else(|msgs| {
             for msg in msgs {
                 problems.push(ctx.at(&v.span()), "telescopes", msg);
             }
             ok = false;
-            Vec::new()
+            (Vec::new(), Vec::new())
         }),
     };
     ok.then(|| SiteExtras {
@@ -580,6 +635,7 @@ fn parse_extras(ctx: &SiteCtx<'_>, r: &RawSite, problems: &mut Problems) -> Opti
         hour_angle_limits_h,
         horizon: HorizonProfile::new(&pairs),
         telescopes,
+        overrides,
     })
 }
 
@@ -634,47 +690,65 @@ fn altitude_limits(
     Some((min_alt_deg, max_alt_deg))
 }
 
-/// The photometric set-up of a site, when it names an aperture (every other key has a documented default).
+/// The photometric set-up of a site or of one telescope, when an aperture is named (every other key has a
+/// documented default). `over` holds a telescope's own keys, which win over the site's; `item` names the
+/// telescope item (1-based) for messages.
 fn photometry_of(
     ctx: &SiteCtx<'_>,
     r: &RawSite,
+    over: &TelescopeOverrides,
+    item: Option<usize>,
     problems: &mut Problems,
 ) -> Option<Option<Photometry>> {
-    let get = |v: &Option<Spanned<f64>>| v.as_ref().map(|v| *v.get_ref());
-    let Some(aperture_m) = get(&r.aperture_m) else {
+    let get = |name: &str| {
+        over.numbers
+            .iter()
+            .find(|(k, _)| k == name)
+            .map(|(_, v)| *v)
+            .or_else(|| r.number(name).map(|v| *v.get_ref()))
+    };
+    let Some(aperture_m) = get("aperture_m") else {
         return Some(None);
     };
-    let band = r
+    let band = over
         .band
-        .as_ref()
-        .map_or("V".to_string(), |b| b.get_ref().trim().to_string());
+        .clone()
+        .or_else(|| r.band.as_ref().map(|b| b.get_ref().trim().to_string()))
+        .unwrap_or_else(|| "V".to_string());
     if crate::astro::bands::band(&band).is_none() {
-        let span = r.band.as_ref().map(|b| b.span()).unwrap_or(0..0);
-        problems.push(
-            ctx.at(&span),
-            "band",
-            format!("found {band:?}, expected U, B, V, R, I, g, r, i or z"),
-        );
+        let expected = "expected U, B, V, R, I, g, r, i or z";
+        match (item, &r.telescopes) {
+            (Some(i), Some(t)) if over.band.is_some() => problems.push(
+                ctx.at(&t.span()),
+                "telescopes",
+                format!("item {i}: band: found {band:?}, {expected}"),
+            ),
+            _ => {
+                let span = r.band.as_ref().map(|b| b.span()).unwrap_or(0..0);
+                problems.push(ctx.at(&span), "band", format!("found {band:?}, {expected}"));
+            }
+        }
         return None;
     }
     Some(Some(Photometry {
         aperture_m,
-        obstruction: get(&r.obstruction).unwrap_or(0.3),
-        throughput: get(&r.throughput).unwrap_or(0.5),
+        obstruction: get("obstruction").unwrap_or(0.3),
+        throughput: get("throughput").unwrap_or(0.5),
         band,
-        read_noise_e: get(&r.read_noise_e).unwrap_or(8.0),
-        dark_e_per_s: get(&r.dark_e_per_s).unwrap_or(0.02),
-        full_well_e: get(&r.full_well_e).unwrap_or(100_000.0),
-        pixel_scale_arcsec: get(&r.pixel_scale_arcsec).unwrap_or(0.6),
-        exposure_s: get(&r.exposure_s),
-        overhead_s: get(&r.overhead_s).unwrap_or(5.0),
-        aperture_radius_arcsec: get(&r.aperture_radius_arcsec),
-        seeing_arcsec: get(&r.seeing_arcsec).unwrap_or(2.0),
-        scintillation_cy: get(&r.scintillation_cy).unwrap_or(1.5),
-        sky_mag: get(&r.sky_mag),
-        extinction: get(&r.extinction),
-        red_noise_beta: get(&r.red_noise_beta).unwrap_or(1.0),
-        noise_floor_ppt: get(&r.noise_floor_ppt).unwrap_or(0.0),
+        read_noise_e: get("read_noise_e").unwrap_or(8.0),
+        dark_e_per_s: get("dark_e_per_s").unwrap_or(0.02),
+        full_well_e: get("full_well_e").unwrap_or(100_000.0),
+        gain_e_per_adu: get("gain_e_per_adu"),
+        pixel_scale_arcsec: get("pixel_scale_arcsec").unwrap_or(0.6),
+        exposure_s: get("exposure_s"),
+        overhead_s: get("overhead_s").unwrap_or(5.0),
+        aperture_radius_arcsec: get("aperture_radius_arcsec"),
+        seeing_arcsec: get("seeing_arcsec").unwrap_or(2.0),
+        scintillation_cy: get("scintillation_cy").unwrap_or(1.5),
+        sky_mag: get("sky_mag"),
+        extinction: get("extinction"),
+        red_noise_beta: get("red_noise_beta").unwrap_or(1.0),
+        noise_floor_ppt: get("noise_floor_ppt").unwrap_or(0.0),
     }))
 }
 
@@ -714,7 +788,18 @@ fn parse_site(
     }
     let (min_alt_deg, max_alt_deg) = altitude_limits(ctx, r, &extras.telescopes, problems)?;
     let elevation_m = r.elevation_m.as_ref().map(|v| *v.get_ref()).unwrap_or(0.0);
-    let photometry = photometry_of(ctx, r, problems)?;
+    let photometry = photometry_of(ctx, r, &TelescopeOverrides::default(), None, problems)?;
+    let mut telescopes = extras.telescopes;
+    let mut ok = true;
+    for (i, (t, over)) in telescopes.iter_mut().zip(&extras.overrides).enumerate() {
+        match photometry_of(ctx, r, over, Some(i + 1), problems) {
+            Some(p) => t.photometry = p,
+            None => ok = false,
+        }
+    }
+    if !ok {
+        return None;
+    }
     Some(Site {
         name,
         observer: Observer::from_deg(lat, lon_deg, elevation_m),
@@ -729,34 +814,48 @@ fn parse_site(
         horizon: extras.horizon,
         hour_angle_limits_h: extras.hour_angle_limits_h,
         min_moon_sep_deg: r.min_moon_sep_deg.as_ref().map(|v| *v.get_ref()),
-        telescopes: extras.telescopes,
+        telescopes,
         photometry,
     })
 }
 
-/// The telescopes of a site: a count, or a list of tables. Every bad item is reported.
-fn parse_telescopes(v: &toml::Value) -> Result<Vec<Telescope>, Vec<String>> {
+/// The telescopes of a site and their own photometric keys: a count, or a list of tables. Every bad item is
+/// reported.
+fn parse_telescopes(
+    v: &toml::Value,
+) -> Result<(Vec<Telescope>, Vec<TelescopeOverrides>), Vec<String>> {
     let expected =
-        "a count (1-20) or a list of {name = \"...\", min_alt_deg = ..., max_alt_deg = ...} tables";
+        "a count (1-20) or a list of {name = \"...\", min_alt_deg = ..., max_alt_deg = ..., \
+                    and photometric keys such as aperture_m} tables";
     match v {
         toml::Value::Integer(n) if (1..=20).contains(n) => Ok((1..=*n)
-            .map(|i| Telescope {
-                name: format!("T{i}"),
-                min_alt_deg: None,
-                max_alt_deg: None,
+            .map(|i| {
+                (
+                    Telescope {
+                        name: format!("T{i}"),
+                        min_alt_deg: None,
+                        max_alt_deg: None,
+                        photometry: None,
+                    },
+                    TelescopeOverrides::default(),
+                )
             })
-            .collect()),
+            .unzip()),
         toml::Value::Array(items) if !items.is_empty() => {
-            let mut out: Vec<Telescope> = Vec::new();
+            let (mut out, mut overs): (Vec<Telescope>, Vec<TelescopeOverrides>) =
+                (Vec::new(), Vec::new());
             let mut problems = Vec::new();
             for (i, item) in items.iter().enumerate() {
                 match parse_telescope(item, i, &out, expected) {
-                    Ok(t) => out.push(t),
-                    Err(m) => problems.push(m),
+                    Ok((t, o)) => {
+                        out.push(t);
+                        overs.push(o);
+                    }
+                    Err(m) => problems.extend(m),
                 }
             }
             if problems.is_empty() {
-                Ok(out)
+                Ok((out, overs))
             } else {
                 Err(problems)
             }
@@ -765,48 +864,97 @@ fn parse_telescopes(v: &toml::Value) -> Result<Vec<Telescope>, Vec<String>> {
     }
 }
 
-/// Telescope item `i` (0-based) of a list, unique among those `before` it.
+/// The photometric keys of telescope item `i` (0-based), each number within the range the site key has.
+fn telescope_overrides(
+    table: &toml::value::Table,
+    i: usize,
+) -> Result<TelescopeOverrides, Vec<String>> {
+    let mut over = TelescopeOverrides::default();
+    let mut problems = Vec::new();
+    for (k, v) in table {
+        if k == "band" {
+            match v {
+                toml::Value::String(b) => over.band = Some(b.trim().to_string()),
+                other => problems.push(format!(
+                    "item {}: band: found {other}, expected text",
+                    i + 1
+                )),
+            }
+            continue;
+        }
+        let Some((_, lo, hi, what)) = SITE_NUMBERS
+            .iter()
+            .find(|(n, ..)| n == k && TELESCOPE_PHOTOMETRY_KEYS.contains(n))
+        else {
+            continue;
+        };
+        let x = match v {
+            toml::Value::Float(x) => *x,
+            toml::Value::Integer(x) => *x as f64,
+            _ => f64::NAN,
+        };
+        if x.is_finite() && (*lo..=*hi).contains(&x) {
+            over.numbers.push((k.clone(), x));
+        } else {
+            problems.push(format!("item {}: {k}: found {v}, expected {what}", i + 1));
+        }
+    }
+    if problems.is_empty() {
+        Ok(over)
+    } else {
+        Err(problems)
+    }
+}
+
+/// Telescope item `i` (0-based) of a list, unique among those `before` it, and its own photometric keys.
 fn parse_telescope(
     item: &toml::Value,
     i: usize,
     before: &[Telescope],
     expected: &str,
-) -> Result<Telescope, String> {
+) -> Result<(Telescope, TelescopeOverrides), Vec<String>> {
+    let one = |m: String| vec![m];
     let table = item
         .as_table()
-        .ok_or_else(|| format!("item {}: found {item}, expected {expected}", i + 1))?;
-    if let Some(k) = table
-        .keys()
-        .find(|k| !["name", "min_alt_deg", "max_alt_deg"].contains(&k.as_str()))
-    {
-        return Err(format!(
-            "item {}: unknown key {k:?}; expected name, min_alt_deg and max_alt_deg",
-            i + 1
-        ));
+        .ok_or_else(|| one(format!("item {}: found {item}, expected {expected}", i + 1)))?;
+    if let Some(k) = table.keys().find(|k| {
+        !["name", "min_alt_deg", "max_alt_deg"].contains(&k.as_str())
+            && !TELESCOPE_PHOTOMETRY_KEYS.contains(&k.as_str())
+    }) {
+        return Err(one(format!(
+            "item {}: unknown key {k:?}; expected name, min_alt_deg, max_alt_deg or one of {}",
+            i + 1,
+            TELESCOPE_PHOTOMETRY_KEYS.join(", ")
+        )));
     }
     let name = match table.get("name") {
         None => format!("T{}", i + 1),
         Some(toml::Value::String(s)) if !s.trim().is_empty() => s.trim().to_string(),
         Some(other) => {
-            return Err(format!(
+            return Err(one(format!(
                 "item {}: name: found {other}, expected text",
                 i + 1
-            ))
+            )))
         }
     };
-    let min_alt_deg = telescope_limit(table, "min_alt_deg", -5.0, 89.0, i)?;
-    let max_alt_deg = telescope_limit(table, "max_alt_deg", 30.0, 90.0, i)?;
+    let min_alt_deg = telescope_limit(table, "min_alt_deg", -5.0, 89.0, i).map_err(one)?;
+    let max_alt_deg = telescope_limit(table, "max_alt_deg", 30.0, 90.0, i).map_err(one)?;
     if before.iter().any(|t| t.name.eq_ignore_ascii_case(&name)) {
-        return Err(format!(
+        return Err(one(format!(
             "item {}: found the name {name:?} twice; expected unique telescope names",
             i + 1
-        ));
+        )));
     }
-    Ok(Telescope {
-        name,
-        min_alt_deg,
-        max_alt_deg,
-    })
+    let over = telescope_overrides(table, i)?;
+    Ok((
+        Telescope {
+            name,
+            min_alt_deg,
+            max_alt_deg,
+            photometry: None,
+        },
+        over,
+    ))
 }
 
 /// An optional altitude limit `key` of telescope item `i` (0-based), within lo..hi deg.
@@ -1013,6 +1161,68 @@ horizon = [[0, 10], [180, 20]]
             "{msg}"
         );
         assert!(msg.contains("item 4: found the name \"C\" twice"), "{msg}");
+    }
+
+    #[test]
+    fn telescopes_take_the_sites_photometry_and_their_own() {
+        let text = format!(
+            "{GOOD}aperture_m = 0.5\nband = \"R\"\nread_noise_e = 9\nseeing_arcsec = 1.7\n\
+             telescopes = [{{ name = \"big\", aperture_m = 1.0, gain_e_per_adu = 2 }}, {{ name = \"site\" }}, \
+             {{ name = \"blue\", band = \"B\", read_noise_e = 4 }}]\n"
+        );
+        let s = parse_sites("s.toml", &text).unwrap().remove(0);
+        let ph = |i: usize| s.for_telescope(&s.telescopes[i]).photometry.unwrap();
+        assert_eq!(
+            (ph(0).aperture_m, ph(0).band.as_str(), ph(0).read_noise_e),
+            (1.0, "R", 9.0)
+        );
+        assert_eq!(ph(0).gain_e_per_adu, Some(2.0));
+        assert_eq!(
+            ph(1),
+            s.photometry.clone().unwrap(),
+            "no keys of its own: the site's set-up"
+        );
+        assert_eq!(
+            (ph(2).aperture_m, ph(2).band.as_str(), ph(2).read_noise_e),
+            (0.5, "B", 4.0)
+        );
+        // The sky belongs to the site: every telescope sees the site's seeing.
+        assert!((0..3).all(|i| ph(i).seeing_arcsec == 1.7));
+        assert_eq!(s.station_label(2), "Test Hill / blue");
+        // An aperture on one telescope alone gives only that telescope a set-up.
+        let text = format!(
+            "{GOOD}telescopes = [{{ name = \"a\", aperture_m = 0.3 }}, {{ name = \"b\" }}]\n"
+        );
+        let s = parse_sites("s.toml", &text).unwrap().remove(0);
+        assert!(s.for_telescope(&s.telescopes[0]).photometry.is_some());
+        assert!(s.for_telescope(&s.telescopes[1]).photometry.is_none());
+        assert_eq!(s.station_label(0), "Test Hill / a");
+    }
+
+    #[test]
+    fn bad_telescope_photometry_is_reported_per_item() {
+        let text = format!(
+            "{GOOD}aperture_m = 0.5\ntelescopes = [{{ name = \"a\", band = \"K\" }}, {{ name = \"b\", aperture_m = 90 }}, \
+             {{ name = \"c\", seeing_arcsec = 1 }}]\n"
+        );
+        let msg = parse_sites("s.toml", &text).unwrap_err().to_string();
+        assert!(
+            msg.contains("item 2: aperture_m: found 90, expected an aperture within 0.01..50 m"),
+            "{msg}"
+        );
+        assert!(
+            msg.contains("item 3: unknown key \"seeing_arcsec\""),
+            "{msg}"
+        );
+        let text =
+            format!("{GOOD}aperture_m = 0.5\ntelescopes = [{{ name = \"a\", band = \"K\" }}]\n");
+        let msg = parse_sites("s.toml", &text).unwrap_err().to_string();
+        assert!(
+            msg.contains(
+                "telescopes: item 1: band: found \"K\", expected U, B, V, R, I, g, r, i or z"
+            ),
+            "{msg}"
+        );
     }
 
     #[test]

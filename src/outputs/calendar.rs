@@ -101,13 +101,19 @@ pub fn event_uid(target: &str, night_of: NaiveDate, slot: i64, site: &str) -> St
 }
 
 /// The UID of a planned event (see [`event_uid`]): the slot counts whole periods from the start of the night
-/// (local mean solar noon) to mid-transit.
+/// (local mean solar noon) to mid-transit. At a site with several telescopes each telescope's event has its own
+/// UID (the site part is `Site / telescope`); a one-telescope site keeps the plain site name.
 pub fn uid_of(e: &Event, site: &Site, target: &Target) -> String {
     let night_start = crate::astro::civil::night_start_jd(e.night_of, site.lon_deg, site.tz);
     let slot = ((e.mid_utc - night_start) / target.ephemeris.period_days)
         .floor()
         .max(0.0) as i64;
-    event_uid(&target.name, e.night_of, slot, &site.name)
+    event_uid(
+        &target.name,
+        e.night_of,
+        slot,
+        &site.station_label(e.telescope_index),
+    )
 }
 
 /// SEQUENCE for a new or changed event at `stamp`: minutes since 2024-01-01T00:00Z.
@@ -142,7 +148,7 @@ pub fn summary(e: &Event, site: &Site, target: &Target) -> String {
         "{} transit ({}) at {}",
         target.name,
         e.verdict.label(),
-        site.name
+        site.station_label(e.telescope_index)
     )
 }
 
@@ -159,7 +165,11 @@ pub fn description(e: &Event, site: &Site, target: &Target) -> String {
             e.verdict.label(),
             crate::outputs::percent_floor(e.coverage)
         ),
-        format!("Night of {} at {}", e.night_of, site.name),
+        format!(
+            "Night of {} at {}",
+            e.night_of,
+            site.station_label(e.telescope_index)
+        ),
         format!(
             "Block start: {}, alt {:.1} deg",
             both_times(e.block_start_utc, site),

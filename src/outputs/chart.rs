@@ -579,7 +579,7 @@ pub fn season_svg_linked(
         svg.text(
             12.0,
             y + 11.0,
-            &site.name,
+            &site.station_label(sp.telescope_index),
             &format!(r##"font-weight="bold" fill="{INK}""##),
         );
         y += cell + 4.0;
@@ -744,7 +744,7 @@ pub fn night_chart_file(e: &Event, sites: &[Site], targets: &[Target]) -> String
     let slug = crate::outputs::names::slug;
     format!(
         "{}-{}-{}.svg",
-        slug(&sites[e.site_index].name),
+        slug(&sites[e.site_index].station_label(e.telescope_index)),
         slug(&targets[e.target_index].name),
         e.night_of
     )
@@ -766,7 +766,11 @@ pub fn season_html(
     html.push_str(&grid);
     for sp in &plan.sites {
         let site = &sites[sp.site_index];
-        let _ = write!(html, "<h2>{}</h2>\n<ul>\n", esc(&site.name));
+        let _ = write!(
+            html,
+            "<h2>{}</h2>\n<ul>\n",
+            esc(&site.station_label(sp.telescope_index))
+        );
         for e in &sp.events {
             let _ = writeln!(
                 html,

@@ -99,6 +99,11 @@ pub const EVENT_COLUMNS: &[Column<EventValue>] = &[
         value: |r| Value::Text(&r.site.name),
     },
     Column {
+        name: "telescope",
+        meta: Meta { datatype: "string", unit: None, description: "telescope at the site (each gets its own row)" },
+        value: |r| Value::Text(r.site.telescopes.get(r.event.telescope_index).map_or("", |t| t.name.as_str())),
+    },
+    Column {
         name: "epoch",
         meta: Meta { datatype: "int64", unit: None, description: "epoch number n since the catalogue T0" },
         value: |r| Value::Int(r.event.epoch),

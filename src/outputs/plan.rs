@@ -27,9 +27,11 @@ pub fn plan_csv(plan: &Plan, sites: &[Site], targets: &[Target]) -> String {
 
 /// JSON: `{"options": ..., "sites": [...], "events": [...], "lost_ephemerides": [...]}`.
 pub fn plan_json(plan: &Plan, sites: &[Site], targets: &[Target], opts: &PlanOptions) -> String {
+    // One entry per site (its telescopes share its nights): the first telescope's plan carries them.
     let site_info: Vec<serde_json::Value> = plan
         .sites
         .iter()
+        .filter(|sp| sp.telescope_index == 0)
         .map(|sp| site_json(&sites[sp.site_index], &sp.nights))
         .collect();
     let doc = serde_json::json!({
@@ -51,6 +53,7 @@ pub fn site_json(s: &Site, nights: &[crate::engine::plan::Night]) -> serde_json:
         "darkness": s.darkness_label,
         "darkness_sun_alt_deg": s.darkness_alt_deg,
         "min_alt_deg": round(s.min_alt_deg, 3),
+        "telescopes": s.telescopes.iter().map(|t| t.name.as_str()).collect::<Vec<_>>(),
         "nights_without_darkness": nights.iter().filter(|n| n.dark.is_none()).map(|n| n.night_of.to_string()).collect::<Vec<_>>(),
     })
 }
@@ -174,14 +177,19 @@ fn push_site_section(
     opts: &PlanOptions,
     utc: bool,
 ) {
+    let view = site.for_telescope(&site.telescopes[sp.telescope_index]);
     out.push_str(&format!(
-        "\n{}  {:+.3} {:+.3}  times {}\n  dark when the Sun is below {} deg; target above {:.1} deg\n",
-        site.name,
+        "\n{}  {:+.3} {:+.3}  times {}\n  dark when the Sun is below {} deg; target above {:.1} deg{}\n",
+        site.station_label(sp.telescope_index),
         site.lat_deg,
         site.lon_deg,
         super::clock_label(sp.nights.iter().map(|n| n.window), site, utc),
         site.darkness_alt_deg,
-        site.min_alt_deg,
+        view.min_alt_deg,
+        view.photometry.as_ref().map_or(String::new(), |p| format!(
+            "; photometry {:.2} m in {}",
+            p.aperture_m, p.band
+        )),
     ));
     if !sp.events.is_empty() {
         out.push_str(&events_table(&sp.events, site, targets, utc));

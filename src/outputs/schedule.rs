@@ -25,15 +25,6 @@ pub type ScheduledValue = for<'r, 'a> fn(&'r ScheduledRow<'a>) -> Value<'r>;
 /// The columns a scheduled event has after the event columns ([`super::EVENT_COLUMNS`]).
 pub const SCHEDULE_COLUMNS: &[Column<ScheduledValue>] = &[
     Column {
-        name: "telescope",
-        meta: Meta {
-            datatype: "string",
-            unit: None,
-            description: "telescope name",
-        },
-        value: |r| Value::Text(&r.tels[r.chosen.telescope_index].telescope),
-    },
-    Column {
         name: "score",
         meta: Meta {
             datatype: "float64",
@@ -70,12 +61,7 @@ pub const SCHEDULE_COLUMNS: &[Column<ScheduledValue>] = &[
 
 fn tel_label(tels: &[TelescopeEvents], sites: &[Site], i: usize) -> String {
     let t = &tels[i];
-    let site = &sites[t.site_index];
-    if site.telescopes.len() == 1 {
-        site.name.clone()
-    } else {
-        format!("{} / {}", site.name, t.telescope)
-    }
+    sites[t.site_index].station_label(t.telescope_index)
 }
 
 /// JSON: `{"weights": ..., "changeover_min": ..., "scheduled": [...]}`: each scheduled event has the event

@@ -174,14 +174,14 @@ fn next_action(
         None => "Next: nothing more to observe tonight.".to_string(),
         Some(e) if e.block_start_utc <= now => format!(
             "Next: {} is under way ({}); the block ends at {}, {}.",
-            targets[e.target_index].name,
+            on_telescope(&targets[e.target_index].name, e, site),
             e.verdict.label(),
             hhmm(e.block_end_utc, site, utc),
             countdown(e, now).replace("in progress, ", "")
         ),
         Some(e) => format!(
             "Next: start {} at {} ({}), {} of the transit usable; ingress {}, block ends {}.",
-            targets[e.target_index].name,
+            on_telescope(&targets[e.target_index].name, e, site),
             hhmm(e.block_start_utc, site, utc),
             countdown(e, now),
             crate::outputs::percent_floor(e.coverage),
@@ -192,6 +192,14 @@ fn next_action(
     let mut out = wrap(&text, "", "      ");
     out.push('\n');
     out
+}
+
+/// A target's name, with the telescope when the site has several (`Amberfall b on 0.4 m`).
+fn on_telescope(name: &str, e: &Event, site: &Site) -> String {
+    match site.telescopes.get(e.telescope_index) {
+        Some(t) if site.telescopes.len() > 1 => format!("{name} on {}", t.name),
+        _ => name.to_string(),
+    }
 }
 
 /// One observable event: heading with verdict, coverage and countdown, the five instants with altitude and
@@ -210,6 +218,11 @@ fn push_event(out: &mut String, e: &Event, t: &Target, site: &Site, now: Option<
         now.map(|n| format!("  [{}]", countdown(e, n)))
             .unwrap_or_default()
     ));
+    if site.telescopes.len() > 1 {
+        if let Some(tel) = site.telescopes.get(e.telescope_index) {
+            out.push_str(&format!("  telescope {}\n", tel.name));
+        }
+    }
     let rows = [
         (
             "block start",

@@ -56,6 +56,7 @@ pub fn site(name: &str, lat: f64, lon: f64, tz: &str) -> Site {
             name: "main".into(),
             min_alt_deg: None,
             max_alt_deg: None,
+            photometry: None,
         }],
     }
 }
