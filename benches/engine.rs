@@ -27,6 +27,8 @@ fn options(nights: i64) -> PlanOptions {
         min_in_transit_min: 0.0,
         min_snr: 0.0,
         include_unobservable: false,
+        kinds: vec![dipwatch::orbit::EventKind::Transit],
+        rv_window_hours: 1.0,
     }
 }
 

@@ -12,6 +12,7 @@ pub mod astro;
 pub mod constants;
 pub mod engine;
 pub mod ephemeris;
+pub mod orbit;
 pub mod inputs;
 pub mod outputs;
 pub mod testing;

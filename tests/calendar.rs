@@ -209,6 +209,8 @@ fn every_event_round_trips_with_the_plans_times_and_text() {
         min_in_transit_min: dipwatch::engine::plan::DEFAULT_MIN_IN_TRANSIT_MIN,
         min_snr: 0.0,
         include_unobservable: false,
+        kinds: vec![dipwatch::orbit::EventKind::Transit],
+        rv_window_hours: 1.0,
     };
     let p = plan(&sites, &targets, &opts);
     let planned: Vec<_> = p.sites.iter().flat_map(|s| s.events.iter()).collect();

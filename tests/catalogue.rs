@@ -258,7 +258,7 @@ fn ecsv_has_a_typed_self_describing_header() {
     let t = String::from_utf8(o.stdout).unwrap();
     assert!(
         t.starts_with("# %ECSV 1.0\n")
-            && t.contains("\nAmberfall b,Kestrel Moor,main,274,whole,True,"),
+            && t.contains("\nAmberfall b,Kestrel Moor,main,transit,274,whole,True,"),
         "{t}"
     );
     // A command that prints no events refuses it.

@@ -223,7 +223,7 @@ fn out_file_is_written_whole_and_unknown_site_is_named() {
     let o = run(&args.iter().map(String::as_str).collect::<Vec<_>>());
     assert!(o.status.success(), "{}", stderr(&o));
     let text = std::fs::read_to_string(&out_file).unwrap();
-    assert!(text.starts_with("target,site,telescope,epoch,verdict"));
+    assert!(text.starts_with("target,site,telescope,kind,epoch,verdict"));
     assert_eq!(
         std::fs::read_dir(&d).unwrap().count(),
         1,
@@ -261,6 +261,8 @@ fn streamed_json_and_ecsv_are_the_documents_of_the_whole_plan() {
         min_in_transit_min: dipwatch::engine::plan::DEFAULT_MIN_IN_TRANSIT_MIN,
         min_snr: 0.0,
         include_unobservable: true,
+        kinds: vec![dipwatch::orbit::EventKind::Transit],
+        rv_window_hours: 1.0,
     };
     let p = dipwatch::engine::plan::plan(&sites, &targets, &opts);
     let want: serde_json::Value =

@@ -59,6 +59,8 @@ fn target(ra: f64, dec: f64, t0: f64, period: f64, system: TimeSystem) -> Target
         pm_ra_cosdec_mas_per_yr: 0.0,
         pm_dec_mas_per_yr: 0.0,
         coord_epoch_jyear: 2000.0,
+        orbit: None,
+        kind: dipwatch::orbit::EventKind::Transit,
     }
 }
 
@@ -73,6 +75,8 @@ fn opts(first: &str, last: &str, all: bool) -> PlanOptions {
         min_in_transit_min: 0.0,
         min_snr: 0.0,
         include_unobservable: all,
+        kinds: vec![dipwatch::orbit::EventKind::Transit],
+        rv_window_hours: 1.0,
     }
 }
 

@@ -48,6 +48,8 @@ prop_compose! {
             pm_ra_cosdec_mas_per_yr: 0.0,
             pm_dec_mas_per_yr: 0.0,
             coord_epoch_jyear: 2000.0,
+            orbit: None,
+            kind: dipwatch::orbit::EventKind::Transit,
         }
     }
 }
@@ -68,6 +70,8 @@ proptest! {
             min_in_transit_min: 0.0,
             min_snr: 0.0,
             include_unobservable: all,
+            kinds: vec![dipwatch::orbit::EventKind::Transit],
+            rv_window_hours: 1.0,
         };
         let p = plan(&sites, &targets, &opts);
         for sp in &p.sites {

@@ -323,6 +323,8 @@ fn check_against_oracle(
         pm_ra_cosdec_mas_per_yr: 0.0,
         pm_dec_mas_per_yr: 0.0,
         coord_epoch_jyear: 2000.0,
+        orbit: None,
+        kind: dipwatch::orbit::EventKind::Transit,
     };
     let (fast, _) = usable_intervals(&s, &t, &night, &block);
     let slow = usable_minutes_oracle(&s, &t, &night, block.start, block.end, &earth);

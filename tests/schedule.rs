@@ -67,6 +67,8 @@ fn inputs() -> (Vec<dipwatch::inputs::sites::Site>, Vec<Target>, Vec<Event>) {
         min_in_transit_min: 0.0,
         min_snr: 0.0,
         include_unobservable: false,
+        kinds: vec![dipwatch::orbit::EventKind::Transit],
+        rv_window_hours: 1.0,
     };
     let p = plan(&sites[..1], &targets, &opts);
     let events = p.sites[0].events.clone();

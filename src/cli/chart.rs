@@ -38,6 +38,7 @@ pub(super) fn run_chart_night(args: ChartNightArgs) -> Result<()> {
         std::slice::from_ref(&args.target),
     )?;
     let opts = args.block.options(args.date, args.date, true)?;
+    let targets = opts.views(&targets);
     let events = dipwatch::engine::plan::events_of_night(&site, &targets[0], args.date, &opts);
     let almanac = dipwatch::engine::almanac::night_almanac(&site, args.date);
     let svg = dipwatch::outputs::chart::night_chart_svg(
@@ -80,6 +81,7 @@ pub(super) fn run_chart_season(args: ChartSeasonArgs) -> Result<()> {
     })?;
     let opts = args.block.options(first, last, false)?;
     let (sites, targets) = load(&args.input)?;
+    let targets = opts.views(&targets);
     let result = plan(&sites, &targets, &opts);
     // Moon illuminated fraction at local mean solar midnight of the first site.
     let moon = dipwatch::engine::almanac::moon_by_night(&sites[0], first, last);

@@ -277,7 +277,19 @@ impl Selection {
             .block
             .options(first_night, last_night, include_unobservable)?;
         let (sites, targets) = load(&self.input)?;
+        let targets = opts.views(&targets);
         Ok((sites, targets, opts))
+    }
+}
+
+/// Targets as the planned kinds' entries (one per kind and target, see `dipwatch::orbit::kind_views`).
+trait KindViews {
+    fn views(&self, targets: &[Target]) -> Vec<Target>;
+}
+
+impl KindViews for PlanOptions {
+    fn views(&self, targets: &[Target]) -> Vec<Target> {
+        dipwatch::orbit::kind_views(targets, &self.kinds, self.rv_window_hours)
     }
 }
 
@@ -302,6 +314,18 @@ struct BlockArgs {
     /// Out-of-transit baseline wanted after egress, minutes [default: 30]
     #[arg(long, value_name = "MIN", allow_negative_numbers = true)]
     baseline_after: Option<f64>,
+    /// What to plan: transit, occultation, rv-max, rv-min or phase:A-B (orbital phase, 0 at mid-transit);
+    /// repeat or separate with commas for several [default: transit]
+    #[arg(long, value_name = "KIND", value_delimiter = ',', value_parser = parse_kind)]
+    kind: Vec<dipwatch::orbit::EventKind>,
+    /// Length of the window planned around a radial-velocity extreme, hours [default: 1]
+    #[arg(long, value_name = "HOURS")]
+    rv_window: Option<f64>,
+}
+
+/// A `--kind` value.
+fn parse_kind(text: &str) -> Result<dipwatch::orbit::EventKind, String> {
+    dipwatch::orbit::EventKind::parse(text)
 }
 
 impl BlockArgs {
@@ -345,6 +369,15 @@ impl BlockArgs {
         check_finite("sigma", sigma, 0.0, 10.0)?;
         check_finite("baseline-before", before, 0.0, 720.0)?;
         check_finite("baseline-after", after, 0.0, 720.0)?;
+        let rv_window_hours = self
+            .rv_window
+            .unwrap_or(dipwatch::orbit::DEFAULT_RV_WINDOW_HOURS);
+        check_finite("rv-window", rv_window_hours, 0.01, 48.0)?;
+        let mut kinds = self.kind.clone();
+        if kinds.is_empty() {
+            kinds.push(dipwatch::orbit::EventKind::Transit);
+        }
+        kinds.dedup();
         Ok(PlanOptions {
             first_night,
             last_night,
@@ -355,6 +388,8 @@ impl BlockArgs {
             min_in_transit_min: min_in_transit,
             min_snr,
             include_unobservable,
+            kinds,
+            rv_window_hours,
         })
     }
 }

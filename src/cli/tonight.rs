@@ -40,6 +40,7 @@ pub(super) fn run_tonight(args: TonightArgs) -> Result<()> {
     let current_night = dipwatch::engine::tonight::current_or_coming_night(&site, now_jd);
     let date = args.date.unwrap_or(current_night);
     let opts = args.block.options(date, date, true)?;
+    let targets = opts.views(&targets);
     // The countdown only makes sense for the night in progress or about to begin.
     let now = (date == current_night).then_some(now_jd);
     let night = dipwatch::engine::tonight::tonight(

@@ -52,6 +52,19 @@ pub struct PlanOptions {
     pub min_snr: f64,
     /// Also list events that cannot be observed, with their reasons.
     pub include_unobservable: bool,
+    /// The event kinds planned (targets are expanded into one entry per kind by
+    /// [`crate::orbit::kind_views`] before planning; recorded here for the outputs' options).
+    #[serde(serialize_with = "kinds_as_labels")]
+    pub kinds: Vec<crate::orbit::EventKind>,
+    /// Window planned around a radial-velocity extreme, hours.
+    pub rv_window_hours: f64,
+}
+
+fn kinds_as_labels<S: serde::Serializer>(
+    kinds: &[crate::orbit::EventKind],
+    s: S,
+) -> Result<S::Ok, S::Error> {
+    s.collect_seq(kinds.iter().map(|k| k.label()))
 }
 
 /// What part of a transit can be observed.
@@ -68,7 +81,11 @@ pub enum Verdict {
     EgressOnly,
     /// Some in-transit time, but neither contact.
     MiddleOnly,
-    /// No usable in-transit time.
+    /// A window kind (radial-velocity extreme, phase window): the whole window with its timing margins.
+    WholeWindow,
+    /// A window kind: part of the window.
+    PartWindow,
+    /// No usable in-transit time (for a window: none of the window).
     NotObservable,
 }
 
@@ -81,6 +98,8 @@ impl Verdict {
             Verdict::IngressOnly => "ingress",
             Verdict::EgressOnly => "egress",
             Verdict::MiddleOnly => "middle",
+            Verdict::WholeWindow => "window",
+            Verdict::PartWindow => "part",
             Verdict::NotObservable => "none",
         }
     }
@@ -93,6 +112,8 @@ impl Verdict {
             Verdict::IngressOnly => "ingress-only",
             Verdict::EgressOnly => "egress-only",
             Verdict::MiddleOnly => "middle-only",
+            Verdict::WholeWindow => "whole-window",
+            Verdict::PartWindow => "part-window",
             Verdict::NotObservable => "not-observable",
         }
     }
@@ -730,9 +751,16 @@ fn evaluate(p: &Pairing<'_>, t: Predicted, night: &Night) -> Option<Event> {
     let half = p.target.half_duration_days();
     let (ingress, egress) = (t.mid_utc - half, t.mid_utc + half);
     let margin = opts.sigma_k * t.sigma_days;
+    // A window (RV extreme, phase window) has no out-of-event baseline.
+    let window = p.target.kind.is_window();
+    let (base_before, base_after) = if window {
+        (0.0, 0.0)
+    } else {
+        (opts.baseline_before_min, opts.baseline_after_min)
+    };
     let block = Interval {
-        start: ingress - margin - opts.baseline_before_min / 1440.0,
-        end: egress + margin + opts.baseline_after_min / 1440.0,
+        start: ingress - margin - base_before / 1440.0,
+        end: egress + margin + base_after / 1440.0,
     };
     let track = Track::new(&p.target.icrs_at(t.mid_utc), t.mid_utc, site, tables);
     if cannot_be_listed(p, &track, night, ingress, egress) {
@@ -741,7 +769,15 @@ fn evaluate(p: &Pairing<'_>, t: Predicted, night: &Night) -> Option<Event> {
     let (usable, mut reasons) = usable_intervals_on_track(&track, site, night, &block, tables);
     let lost = t.sigma_days > LOST_SIGMA_FRACTION_OF_PERIOD * p.target.ephemeris.period_days;
     let (coverage, run) = best_run(&usable, ingress, egress);
-    let (verdict, before_min, after_min) = judge_run(run, ingress, egress, margin, opts);
+    let (mut verdict, mut before_min, mut after_min) = judge_run(run, ingress, egress, margin, opts);
+    if window {
+        verdict = match verdict {
+            Verdict::Whole | Verdict::WholeShortBaseline => Verdict::WholeWindow,
+            Verdict::NotObservable => Verdict::NotObservable,
+            _ => Verdict::PartWindow,
+        };
+        (before_min, after_min) = (0.0, 0.0);
+    }
     let mut observable = meets_criteria(p, verdict, coverage, lost, &mut reasons);
     if !observable && !opts.include_unobservable {
         return None;

@@ -50,9 +50,9 @@ impl Default for ScoreWeights {
 /// The value of a verdict in the score.
 pub fn verdict_value(v: Verdict) -> f64 {
     match v {
-        Verdict::Whole => 1.0,
+        Verdict::Whole | Verdict::WholeWindow => 1.0,
         Verdict::WholeShortBaseline => 0.8,
-        Verdict::IngressOnly | Verdict::EgressOnly => 0.5,
+        Verdict::IngressOnly | Verdict::EgressOnly | Verdict::PartWindow => 0.5,
         Verdict::MiddleOnly => 0.2,
         Verdict::NotObservable => 0.0,
     }

@@ -42,12 +42,27 @@ pub struct Target {
     pub pm_dec_mas_per_yr: f64,
     /// Epoch of the coordinates, Julian year (2000.0 if not given; 2016.0 for Gaia DR3 positions).
     pub coord_epoch_jyear: f64,
+    /// Eccentric orbit (`ecc`, `omega_deg`, ...), if given; circular otherwise.
+    pub orbit: Option<crate::orbit::Orbit>,
+    /// Which event of the orbit this entry plans: the transit for a target as read; other kinds are views
+    /// made by [`crate::orbit::kind_views`] with the ephemeris moved to that event.
+    pub kind: crate::orbit::EventKind,
 }
 
 impl Target {
     /// Half the total duration T14, days: the time from ingress (or egress) to mid-transit.
     pub fn half_duration_days(&self) -> f64 {
         self.t14_hours / 48.0
+    }
+
+    /// The name as tables show it: with the kind's marker for anything but a transit (`Amberfall b [occ]`).
+    pub fn label(&self) -> String {
+        let m = self.kind.marker();
+        if m.is_empty() {
+            self.name.clone()
+        } else {
+            format!("{} {m}", self.name)
+        }
     }
 
     /// ICRS unit vector of the target at `jd` (any time scale: a day changes nothing), with its proper motion
@@ -239,6 +254,66 @@ pub const COLUMNS: &[ColumnSpec] = &[
             lo: -2e4,
             hi: 2e4,
             expected: "a proper motion within +-20000 mas/yr",
+        }),
+    },
+    ColumnSpec {
+        name: "ecc",
+        required: false,
+        meaning: "orbital eccentricity (default 0: circular)",
+        number: Some(NumberRule {
+            lo: 0.0,
+            hi: 0.95,
+            expected: "an eccentricity within 0..0.95",
+        }),
+    },
+    ColumnSpec {
+        name: "omega_deg",
+        required: false,
+        meaning: "the star's argument of periastron, deg (radial-velocity convention; needed with ecc > 0)",
+        number: Some(NumberRule {
+            lo: -360.0,
+            hi: 360.0,
+            expected: "an angle within -360..360 deg",
+        }),
+    },
+    ColumnSpec {
+        name: "ecc_sigma",
+        required: false,
+        meaning: "1-sigma of ecc (default 0)",
+        number: Some(NumberRule {
+            lo: 0.0,
+            hi: 1.0,
+            expected: "a 1-sigma error within 0..1",
+        }),
+    },
+    ColumnSpec {
+        name: "omega_sigma_deg",
+        required: false,
+        meaning: "1-sigma of omega_deg, deg (default 0)",
+        number: Some(NumberRule {
+            lo: 0.0,
+            hi: 180.0,
+            expected: "a 1-sigma error within 0..180 deg",
+        }),
+    },
+    ColumnSpec {
+        name: "inc_deg",
+        required: false,
+        meaning: "orbital inclination, deg (default 90)",
+        number: Some(NumberRule {
+            lo: 0.0,
+            hi: 180.0,
+            expected: "an inclination within 0..180 deg",
+        }),
+    },
+    ColumnSpec {
+        name: "t14_occ_hours",
+        required: false,
+        meaning: "occultation duration, hours (default: from T14, ecc and omega)",
+        number: Some(NumberRule {
+            lo: 1e-6,
+            hi: 1e6,
+            expected: "a duration in hours, > 0",
         }),
     },
     ColumnSpec {
@@ -607,6 +682,14 @@ fn parse_row(
         );
         ok = false;
     }
+    if nums.get("ecc").is_some_and(|e| *e > 0.0) && nums.get("omega_deg").is_none() {
+        problems.push(
+            line,
+            "omega_deg",
+            "missing; expected the star's argument of periastron in degrees with an eccentricity above 0".into(),
+        );
+        ok = false;
+    }
     let num = |k: &str| nums.get(k).copied();
     let required = [
         "t0",
@@ -641,6 +724,25 @@ fn parse_row(
         pm_ra_cosdec_mas_per_yr: num("pm_ra_mas_per_yr").unwrap_or(0.0),
         pm_dec_mas_per_yr: num("pm_dec_mas_per_yr").unwrap_or(0.0),
         coord_epoch_jyear: num("coord_epoch").unwrap_or(2000.0),
+        orbit: orbit_of(&num),
+        kind: crate::orbit::EventKind::Transit,
+    })
+}
+
+/// The orbit of a row, when any of its columns is given.
+fn orbit_of(num: &dyn Fn(&str) -> Option<f64>) -> Option<crate::orbit::Orbit> {
+    let keys = ["ecc", "omega_deg", "ecc_sigma", "omega_sigma_deg", "inc_deg", "t14_occ_hours"];
+    if keys.iter().all(|k| num(k).is_none()) {
+        return None;
+    }
+    let c = crate::orbit::Orbit::CIRCULAR;
+    Some(crate::orbit::Orbit {
+        ecc: num("ecc").unwrap_or(0.0),
+        omega_deg: num("omega_deg").unwrap_or(c.omega_deg),
+        ecc_sigma: num("ecc_sigma").unwrap_or(0.0),
+        omega_sigma_deg: num("omega_sigma_deg").unwrap_or(0.0),
+        inc_deg: num("inc_deg").unwrap_or(c.inc_deg),
+        t14_occ_hours: num("t14_occ_hours"),
     })
 }
 

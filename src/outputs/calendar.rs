@@ -108,8 +108,13 @@ pub fn uid_of(e: &Event, site: &Site, target: &Target) -> String {
     let slot = ((e.mid_utc - night_start) / target.ephemeris.period_days)
         .floor()
         .max(0.0) as i64;
+    // A transit keeps the plain name (calendars written before kinds existed keep their UIDs).
+    let name = match target.kind {
+        crate::orbit::EventKind::Transit => target.name.clone(),
+        k => format!("{} {}", target.name, k.label()),
+    };
     event_uid(
-        &target.name,
+        &name,
         e.night_of,
         slot,
         &site.station_label(e.telescope_index),
@@ -142,11 +147,20 @@ fn airmass_text(x: f64) -> String {
     }
 }
 
+/// `text` with its first letter in capitals.
+fn capitalised(text: &str) -> String {
+    let mut c = text.chars();
+    c.next()
+        .map(|f| f.to_uppercase().chain(c).collect())
+        .unwrap_or_default()
+}
+
 /// SUMMARY of an event: target, verdict and site.
 pub fn summary(e: &Event, site: &Site, target: &Target) -> String {
     format!(
-        "{} transit ({}) at {}",
+        "{} {} ({}) at {}",
         target.name,
+        target.kind.noun(),
         e.verdict.label(),
         site.station_label(e.telescope_index)
     )
@@ -157,13 +171,15 @@ pub fn summary(e: &Event, site: &Site, target: &Target) -> String {
 pub fn description(e: &Event, site: &Site, target: &Target) -> String {
     let eph = &target.ephemeris;
     let sig = format!("+-{:.1} min", e.sigma_min);
+    let names = target.kind.instant_labels();
     let mut lines = vec![
         format!(
-            "{} epoch {}: {}, {} of the transit in usable time",
+            "{} epoch {}: {}, {} of the {} in usable time",
             target.name,
             e.epoch,
             e.verdict.label(),
-            crate::outputs::percent_floor(e.coverage)
+            crate::outputs::percent_floor(e.coverage),
+            target.kind.noun()
         ),
         format!(
             "Night of {} at {}",
@@ -176,19 +192,22 @@ pub fn description(e: &Event, site: &Site, target: &Target) -> String {
             e.alt_block_start_deg
         ),
         format!(
-            "Ingress: {} {sig}, alt {:.1} deg, {}",
+            "{}: {} {sig}, alt {:.1} deg, {}",
+            capitalised(names[0]),
             both_times(e.ingress_utc, site),
             e.alt_ingress_deg,
             airmass_text(e.airmass_ingress)
         ),
         format!(
-            "Mid-transit: {} {sig}, alt {:.1} deg, {}",
+            "{}: {} {sig}, alt {:.1} deg, {}",
+            capitalised(names[1]),
             both_times(e.mid_utc, site),
             e.alt_mid_deg,
             airmass_text(e.airmass_mid)
         ),
         format!(
-            "Egress: {} {sig}, alt {:.1} deg, {}",
+            "{}: {} {sig}, alt {:.1} deg, {}",
+            capitalised(names[2]),
             both_times(e.egress_utc, site),
             e.alt_egress_deg,
             airmass_text(e.airmass_egress)

@@ -485,14 +485,32 @@ fn draw_legend(c: &mut NightCanvas, site: &Site) {
 /// only, heavy top and bottom edges for middle only) and the fill, rising from the bottom, how much of the
 /// transit is usable (`coverage`, rounded down to a tenth so it never looks fuller than it is). Colour only repeats
 /// the verdict, so the grid reads in greyscale.
-fn glyph(svg: &mut Svg, v: Verdict, coverage: f64, (x, y, s): (f64, f64, f64), title: &str) {
+///
+/// The outline tells the event's kind: a square for a transit, a circle for an occultation, a square with its
+/// top-right corner cut by a heavy diagonal for a window (radial-velocity extreme or phase window).
+fn glyph(
+    svg: &mut Svg,
+    (v, kind): (Verdict, crate::orbit::EventKind),
+    coverage: f64,
+    (x, y, s): (f64, f64, f64),
+    title: &str,
+) {
     let t = format!("<title>{}</title>", esc(title));
-    let class = format!("event verdict-{}", v.label());
+    let class = format!(
+        "event verdict-{} kind-{}",
+        v.label(),
+        kind.label().replace([':', '.'], "-")
+    );
     let colour = match v {
-        Verdict::Whole | Verdict::WholeShortBaseline => TEAL,
+        Verdict::Whole | Verdict::WholeShortBaseline | Verdict::WholeWindow => TEAL,
         Verdict::IngressOnly => OCHRE,
         Verdict::EgressOnly => PLUM,
-        Verdict::MiddleOnly | Verdict::NotObservable => SLATE,
+        Verdict::MiddleOnly | Verdict::PartWindow | Verdict::NotObservable => SLATE,
+    };
+    let rx = if kind == crate::orbit::EventKind::Occultation {
+        s / 2.0
+    } else {
+        0.0
     };
     let h = s * crate::outputs::floor_to(coverage.clamp(0.0, 1.0), 1);
     let dash = if v == Verdict::WholeShortBaseline {
@@ -501,8 +519,9 @@ fn glyph(svg: &mut Svg, v: Verdict, coverage: f64, (x, y, s): (f64, f64, f64), t
         ""
     };
     let mut body = format!(
-        r##"<rect x="{x:.1}" y="{y:.1}" width="{s:.1}" height="{s:.1}" fill="white" stroke="{colour}" stroke-width="1"{dash}/><rect class="fill" x="{x:.1}" y="{:.1}" width="{s:.1}" height="{h:.1}" fill="{colour}" fill-opacity="0.8"/>"##,
-        y + s - h
+        r##"<rect x="{x:.1}" y="{y:.1}" width="{s:.1}" height="{s:.1}" rx="{rx:.1}" fill="white" stroke="{colour}" stroke-width="1"{dash}/><rect class="fill" x="{x:.1}" y="{:.1}" width="{s:.1}" height="{h:.1}" rx="{:.1}" fill="{colour}" fill-opacity="0.8"/>"##,
+        y + s - h,
+        rx.min(h / 2.0)
     );
     let edge = |x1: f64, y1: f64, x2: f64, y2: f64| {
         format!(
@@ -512,11 +531,14 @@ fn glyph(svg: &mut Svg, v: Verdict, coverage: f64, (x, y, s): (f64, f64, f64), t
     match v {
         Verdict::IngressOnly => body.push_str(&edge(x, y, x, y + s)),
         Verdict::EgressOnly => body.push_str(&edge(x + s, y, x + s, y + s)),
-        Verdict::MiddleOnly | Verdict::NotObservable => {
+        Verdict::MiddleOnly | Verdict::PartWindow | Verdict::NotObservable => {
             body.push_str(&edge(x, y, x + s, y));
             body.push_str(&edge(x, y + s, x + s, y + s));
         }
-        Verdict::Whole | Verdict::WholeShortBaseline => {}
+        Verdict::Whole | Verdict::WholeShortBaseline | Verdict::WholeWindow => {}
+    }
+    if kind.is_window() {
+        body.push_str(&edge(x + s * 0.55, y, x + s, y + s * 0.45));
     }
     svg.raw(&format!(r##"<g class="{class}">{t}{body}</g>"##));
 }
@@ -559,7 +581,7 @@ pub fn season_svg_linked(
         .collect();
     let total_rows: usize = rows_per_site.iter().map(|r| r.len() + 2).sum();
     let w = label_w + n_cols * cell + 40.0;
-    let h = top + total_rows as f64 * cell + 50.0;
+    let h = top + total_rows as f64 * cell + 70.0;
     let title = format!(
         "Transits by night, {} to {}",
         nights.first().map(|d| d.to_string()).unwrap_or_default(),
@@ -598,7 +620,7 @@ pub fn season_svg_linked(
             svg.text(
                 16.0,
                 ry + 11.0,
-                &targets[ti].name,
+                &targets[ti].label(),
                 &format!(r##"fill="{INK}" font-size="11""##),
             );
             let row = GridRow {
@@ -675,7 +697,7 @@ fn draw_grid_row(
             let x = row.label_w + ci as f64 * row.cell + 1.5 + j as f64 * s;
             let tip = format!(
                 "{} epoch {} on {}: {} {}",
-                targets[row.ti].name,
+                targets[row.ti].label(),
                 e.epoch,
                 d,
                 e.verdict.label(),
@@ -686,7 +708,7 @@ fn draw_grid_row(
             }
             glyph(
                 svg,
-                e.verdict,
+                (e.verdict, targets[row.ti].kind),
                 e.coverage,
                 (x, row.y + 1.5 + (row.cell - 3.0 - s) / 2.0, s),
                 &tip,
@@ -709,7 +731,13 @@ fn draw_verdict_legend(svg: &mut Svg, ly: f64) {
         Verdict::MiddleOnly,
     ] {
         let mut g = Svg { buf: String::new() };
-        glyph(&mut g, v, 1.0, (lx, ly - 10.0, 11.0), v.label());
+        glyph(
+            &mut g,
+            (v, crate::orbit::EventKind::Transit),
+            1.0,
+            (lx, ly - 10.0, 11.0),
+            v.label(),
+        );
         svg.raw(&g.buf.replace("class=\"event ", "class=\"legend "));
         svg.text(
             lx + 16.0,
@@ -724,7 +752,7 @@ fn draw_verdict_legend(svg: &mut Svg, ly: f64) {
         let mut g = Svg { buf: String::new() };
         glyph(
             &mut g,
-            Verdict::Whole,
+            (Verdict::Whole, crate::orbit::EventKind::Transit),
             cov,
             (lx + 14.0 * k as f64, ly - 10.0, 11.0),
             "coverage",
@@ -737,6 +765,31 @@ fn draw_verdict_legend(svg: &mut Svg, ly: f64) {
         "fill = usable part of the transit",
         &format!(r##"fill="{INK}" font-size="11""##),
     );
+    // The outline: the kind of event.
+    let mut lx = 12.0;
+    let ly = ly + 18.0;
+    for (kind, label) in [
+        (crate::orbit::EventKind::Transit, "transit"),
+        (crate::orbit::EventKind::Occultation, "occultation"),
+        (crate::orbit::EventKind::RvMax, "RV extreme or phase window"),
+    ] {
+        let mut g = Svg { buf: String::new() };
+        glyph(
+            &mut g,
+            (Verdict::Whole, kind),
+            0.0,
+            (lx, ly - 10.0, 11.0),
+            label,
+        );
+        svg.raw(&g.buf.replace("class=\"event ", "class=\"legend "));
+        svg.text(
+            lx + 16.0,
+            ly,
+            label,
+            &format!(r##"fill="{INK}" font-size="11""##),
+        );
+        lx += 16.0 + 7.0 * label.len() as f64 + 16.0;
+    }
 }
 
 /// File name of an event's night chart inside the HTML bundle: `<site>-<target>-<night>.svg`, slugged.
@@ -745,7 +798,7 @@ pub fn night_chart_file(e: &Event, sites: &[Site], targets: &[Target]) -> String
     format!(
         "{}-{}-{}.svg",
         slug(&sites[e.site_index].station_label(e.telescope_index)),
-        slug(&targets[e.target_index].name),
+        slug(&targets[e.target_index].label()),
         e.night_of
     )
 }
@@ -777,7 +830,7 @@ pub fn season_html(
                 r##"<li><a href="{}">{} {}, {} ({})</a></li>"##,
                 esc(&link(e)),
                 e.night_of,
-                esc(&targets[e.target_index].name),
+                esc(&targets[e.target_index].label()),
                 e.verdict.label(),
                 crate::outputs::percent_floor(e.coverage)
             );

@@ -104,6 +104,11 @@ pub const EVENT_COLUMNS: &[Column<EventValue>] = &[
         value: |r| Value::Text(r.site.telescopes.get(r.event.telescope_index).map_or("", |t| t.name.as_str())),
     },
     Column {
+        name: "kind",
+        meta: Meta { datatype: "string", unit: None, description: "transit, occultation, rv-max, rv-min or phase:A-B" },
+        value: |r| Value::Owned(r.target.kind.label()),
+    },
+    Column {
         name: "epoch",
         meta: Meta { datatype: "int64", unit: None, description: "epoch number n since the catalogue T0" },
         value: |r| Value::Int(r.event.epoch),
@@ -125,18 +130,28 @@ pub const EVENT_COLUMNS: &[Column<EventValue>] = &[
     },
     Column {
         name: "mid_utc",
-        meta: Meta { datatype: "string", unit: None, description: "predicted mid-transit, UTC (RFC 3339)" },
+        meta: Meta { datatype: "string", unit: None, description: "predicted centre of the event (mid-transit, mid-occultation, the RV extreme, the window's centre), UTC (RFC 3339)" },
         value: |r| Value::Time(r.event.mid_utc),
+    },
+    Column {
+        name: "window_start_utc",
+        meta: Meta { datatype: "string", unit: None, description: "start of the window (RV extreme, phase window), UTC; null for transits and occultations" },
+        value: |r| Value::OptTime(r.target.kind.is_window().then_some(r.event.ingress_utc)),
+    },
+    Column {
+        name: "window_end_utc",
+        meta: Meta { datatype: "string", unit: None, description: "end of the window, UTC" },
+        value: |r| Value::OptTime(r.target.kind.is_window().then_some(r.event.egress_utc)),
     },
     Column {
         name: "ingress_utc",
         meta: Meta { datatype: "string", unit: None, description: "predicted first contact, UTC" },
-        value: |r| Value::Time(r.event.ingress_utc),
+        value: |r| Value::OptTime((!r.target.kind.is_window()).then_some(r.event.ingress_utc)),
     },
     Column {
         name: "egress_utc",
         meta: Meta { datatype: "string", unit: None, description: "predicted fourth contact, UTC" },
-        value: |r| Value::Time(r.event.egress_utc),
+        value: |r| Value::OptTime((!r.target.kind.is_window()).then_some(r.event.egress_utc)),
     },
     Column {
         name: "block_start_utc",

@@ -255,7 +255,7 @@ fn event_row(
     if !limits.is_empty() {
         notes.push(limits.join(","));
     }
-    let mut cells = super::event_cells(night_cell, &targets[e.target_index].name, e, site, utc);
+    let mut cells = super::event_cells(night_cell, &targets[e.target_index].label(), e, site, utc);
     cells.extend([
         Cell::new(format!("{:.1}m", e.sigma_min)).set_alignment(CellAlignment::Right),
         Cell::new(format!(

@@ -197,7 +197,7 @@ pub fn schedule_table(
                 ),
                 None => String::new(),
             };
-            let mut cells = super::event_cells(night, &targets[e.target_index].name, e, site, utc);
+            let mut cells = super::event_cells(night, &targets[e.target_index].label(), e, site, utc);
             cells.push(Cell::new(format!("{:.2}", c.score)).set_alignment(CellAlignment::Right));
             cells.push(Cell::new(note));
             table.add_row(cells);

@@ -174,14 +174,14 @@ fn next_action(
         None => "Next: nothing more to observe tonight.".to_string(),
         Some(e) if e.block_start_utc <= now => format!(
             "Next: {} is under way ({}); the block ends at {}, {}.",
-            on_telescope(&targets[e.target_index].name, e, site),
+            on_telescope(&targets[e.target_index].label(), e, site),
             e.verdict.label(),
             hhmm(e.block_end_utc, site, utc),
             countdown(e, now).replace("in progress, ", "")
         ),
         Some(e) => format!(
             "Next: start {} at {} ({}), {} of the transit usable; ingress {}, block ends {}.",
-            on_telescope(&targets[e.target_index].name, e, site),
+            on_telescope(&targets[e.target_index].label(), e, site),
             hhmm(e.block_start_utc, site, utc),
             countdown(e, now),
             crate::outputs::percent_floor(e.coverage),
@@ -207,11 +207,12 @@ fn on_telescope(name: &str, e: &Event, site: &Site) -> String {
 fn push_event(out: &mut String, e: &Event, t: &Target, site: &Site, now: Option<f64>, utc: bool) {
     let sig = format!("+-{:.1} min", e.sigma_min);
     out.push_str(&format!(
-        "\n{}  epoch {}  {}, {} of the transit{}{}\n",
-        t.name,
+        "\n{}  epoch {}  {}, {} of the {}{}{}\n",
+        t.label(),
         e.epoch,
         e.verdict.label(),
         crate::outputs::percent_floor(e.coverage),
+        t.kind.noun(),
         t.depth_ppt
             .map(|d| format!(", depth {d} ppt"))
             .unwrap_or_default(),
@@ -223,6 +224,7 @@ fn push_event(out: &mut String, e: &Event, t: &Target, site: &Site, now: Option<
             out.push_str(&format!("  telescope {}\n", tel.name));
         }
     }
+    let names = t.kind.instant_labels();
     let rows = [
         (
             "block start",
@@ -230,9 +232,9 @@ fn push_event(out: &mut String, e: &Event, t: &Target, site: &Site, now: Option<
             e.alt_block_start_deg,
             String::new(),
         ),
-        ("ingress", e.ingress_utc, e.alt_ingress_deg, sig.clone()),
-        ("mid-transit", e.mid_utc, e.alt_mid_deg, sig.clone()),
-        ("egress", e.egress_utc, e.alt_egress_deg, sig),
+        (names[0], e.ingress_utc, e.alt_ingress_deg, sig.clone()),
+        (names[1], e.mid_utc, e.alt_mid_deg, sig.clone()),
+        (names[2], e.egress_utc, e.alt_egress_deg, sig),
         (
             "block end",
             e.block_end_utc,

@@ -90,6 +90,8 @@ pub fn target_at(name: &str, s: &Site, jd_utc: f64, dec_deg: f64, t14_hours: f64
         pm_ra_cosdec_mas_per_yr: 0.0,
         pm_dec_mas_per_yr: 0.0,
         coord_epoch_jyear: 2000.0,
+        orbit: None,
+        kind: dipwatch::orbit::EventKind::Transit,
     }
 }
 
@@ -104,6 +106,8 @@ pub fn opts(first: NaiveDate, last: NaiveDate) -> PlanOptions {
         min_in_transit_min: 0.0,
         min_snr: 0.0,
         include_unobservable: true,
+        kinds: vec![dipwatch::orbit::EventKind::Transit],
+        rv_window_hours: 1.0,
     }
 }
 
@@ -141,6 +145,8 @@ pub fn plain_target(
         pm_ra_cosdec_mas_per_yr: 0.0,
         pm_dec_mas_per_yr: 0.0,
         coord_epoch_jyear: 2000.0,
+        orbit: None,
+        kind: dipwatch::orbit::EventKind::Transit,
     }
 }
 
