@@ -12,7 +12,7 @@ pub mod astro;
 pub mod constants;
 pub mod engine;
 pub mod ephemeris;
-pub mod orbit;
 pub mod inputs;
+pub mod orbit;
 pub mod outputs;
 pub mod testing;

@@ -118,7 +118,8 @@ impl EventKind {
     /// Parse `transit`, `occultation`, `rv-max`, `rv-min` or `phase:A-B` (0 <= A, B <= 1, A != B).
     pub fn parse(text: &str) -> Result<EventKind, String> {
         let t = text.trim().to_ascii_lowercase();
-        let expected = "expected transit, occultation, rv-max, rv-min or phase:A-B (A, B within 0..1, e.g. \
+        let expected =
+            "expected transit, occultation, rv-max, rv-min or phase:A-B (A, B within 0..1, e.g. \
                         phase:0.20-0.30)";
         match t.as_str() {
             "transit" => return Ok(EventKind::Transit),
@@ -130,9 +131,9 @@ impl EventKind {
         let Some(range) = t.strip_prefix("phase:") else {
             return Err(format!("found {text:?}, {expected}"));
         };
-        let parsed = range
-            .split_once('-')
-            .and_then(|(a, b)| Some((a.trim().parse::<f64>().ok()?, b.trim().parse::<f64>().ok()?)));
+        let parsed = range.split_once('-').and_then(|(a, b)| {
+            Some((a.trim().parse::<f64>().ok()?, b.trim().parse::<f64>().ok()?))
+        });
         match parsed {
             Some((a, b)) if (0.0..=1.0).contains(&a) && (0.0..=1.0).contains(&b) && a != b => {
                 Ok(EventKind::Phase(a, b))
@@ -188,7 +189,10 @@ impl EventKind {
     /// True for kinds observed as a window (no contacts, no out-of-event baseline): RV extremes and phase
     /// windows.
     pub fn is_window(&self) -> bool {
-        matches!(self, EventKind::RvMax | EventKind::RvMin | EventKind::Phase(..))
+        matches!(
+            self,
+            EventKind::RvMax | EventKind::RvMin | EventKind::Phase(..)
+        )
     }
 }
 
@@ -237,10 +241,13 @@ pub fn placement(
             ..*orbit
         })
     };
-    let d_de = wrap(with(orbit.ecc + de, orbit.omega_deg) - with((orbit.ecc - de).max(0.0), orbit.omega_deg))
-        / (orbit.ecc + de - (orbit.ecc - de).max(0.0));
-    let d_dw = wrap(with(orbit.ecc, orbit.omega_deg + dw) - with(orbit.ecc, orbit.omega_deg - dw)) / (2.0 * dw);
-    let sigma_phase = ((d_de * orbit.ecc_sigma).powi(2) + (d_dw * orbit.omega_sigma_deg).powi(2)).sqrt();
+    let d_de = wrap(
+        with(orbit.ecc + de, orbit.omega_deg) - with((orbit.ecc - de).max(0.0), orbit.omega_deg),
+    ) / (orbit.ecc + de - (orbit.ecc - de).max(0.0));
+    let d_dw = wrap(with(orbit.ecc, orbit.omega_deg + dw) - with(orbit.ecc, orbit.omega_deg - dw))
+        / (2.0 * dw);
+    let sigma_phase =
+        ((d_de * orbit.ecc_sigma).powi(2) + (d_dw * orbit.omega_sigma_deg).powi(2)).sqrt();
     let duration_hours = match kind {
         EventKind::Transit => t14_hours,
         EventKind::Occultation => orbit
@@ -321,10 +328,17 @@ mod tests {
         // The issue's values for P = 10 d, computed with an independent script by the Kepler route and Kopal's
         // closed form: e 0.1, omega 0: 5.6356 d; e 0.3, omega 45: 6.3710 d; e 0.5, omega 200: 2.0835 d.
         const TOLERANCE_DAYS: f64 = 0.000_05; // the quoted values have 4 decimals
-        for (e, w, want) in [(0.1, 0.0, 5.6356), (0.3, 45.0, 6.3710), (0.5, 200.0, 2.0835)] {
+        for (e, w, want) in [
+            (0.1, 0.0, 5.6356),
+            (0.3, 45.0, 6.3710),
+            (0.5, 200.0, 2.0835),
+        ] {
             let o = orbit(e, w);
             let got = 10.0 * occultation_phase(&o);
-            assert!((got - want).abs() < TOLERANCE_DAYS, "e {e} omega {w}: {got}");
+            assert!(
+                (got - want).abs() < TOLERANCE_DAYS,
+                "e {e} omega {w}: {got}"
+            );
             assert!((10.0 * occultation_phase_kopal(&o) - got).abs() < 1e-9);
         }
     }
@@ -336,7 +350,8 @@ mod tests {
         // shows; it never exceeds e^2 / 100 of the period here.
         for w in [0.0, 30.0, 60.0, 135.0, 250.0] {
             let err = |e: f64| {
-                (occultation_phase(&orbit(e, w)) - occultation_phase_first_order(&orbit(e, w))).abs()
+                (occultation_phase(&orbit(e, w)) - occultation_phase_first_order(&orbit(e, w)))
+                    .abs()
             };
             for e in [0.08, 0.04, 0.02] {
                 assert!(err(e) < e * e / 100.0, "omega {w} e {e}: {}", err(e));
@@ -362,16 +377,30 @@ mod tests {
         let mut o = orbit(0.01, 0.0);
         o.ecc_sigma = 0.001;
         let p = placement(EventKind::Occultation, &o, 10.0, 3.0, 1.0);
-        assert!((p.offset_sigma_days - 2.0 * 10.0 / PI * 0.001).abs() < 2e-5, "{p:?}");
-        assert_eq!(placement(EventKind::Transit, &o, 10.0, 3.0, 1.0).offset_sigma_days, 0.0);
+        assert!(
+            (p.offset_sigma_days - 2.0 * 10.0 / PI * 0.001).abs() < 2e-5,
+            "{p:?}"
+        );
+        assert_eq!(
+            placement(EventKind::Transit, &o, 10.0, 3.0, 1.0).offset_sigma_days,
+            0.0
+        );
     }
 
     #[test]
     fn kinds_parse_and_print() {
         assert_eq!(EventKind::parse("occultation"), Ok(EventKind::Occultation));
-        assert_eq!(EventKind::parse("Phase:0.2-0.3"), Ok(EventKind::Phase(0.2, 0.3)));
-        assert_eq!(EventKind::parse("phase:0.9-0.1").unwrap().label(), "phase:0.90-0.10");
+        assert_eq!(
+            EventKind::parse("Phase:0.2-0.3"),
+            Ok(EventKind::Phase(0.2, 0.3))
+        );
+        assert_eq!(
+            EventKind::parse("phase:0.9-0.1").unwrap().label(),
+            "phase:0.90-0.10"
+        );
         assert!(EventKind::parse("phase:0.2-1.3").is_err());
-        assert!(EventKind::parse("eclipse").unwrap_err().contains("expected transit, occultation"));
+        assert!(EventKind::parse("eclipse")
+            .unwrap_err()
+            .contains("expected transit, occultation"));
     }
 }

@@ -745,23 +745,41 @@ fn expected_noise(
     )
 }
 
+/// The planned block: [ingress - margin - baseline before, egress + margin + baseline after]; a window (RV
+/// extreme, phase window) has no out-of-event baseline.
+fn planned_block(p: &Pairing<'_>, ingress: f64, egress: f64, margin: f64) -> Interval {
+    let (before, after) = if p.target.kind.is_window() {
+        (0.0, 0.0)
+    } else {
+        (p.opts.baseline_before_min, p.opts.baseline_after_min)
+    };
+    Interval {
+        start: ingress - margin - before / 1440.0,
+        end: egress + margin + after / 1440.0,
+    }
+}
+
+/// A transit's verdict and baselines as the event's kind reads them: a window is seen whole (with its margins)
+/// or in part, and has no baseline.
+fn for_kind(p: &Pairing<'_>, (verdict, before, after): (Verdict, f64, f64)) -> (Verdict, f64, f64) {
+    if !p.target.kind.is_window() {
+        return (verdict, before, after);
+    }
+    let v = match verdict {
+        Verdict::Whole | Verdict::WholeShortBaseline => Verdict::WholeWindow,
+        Verdict::NotObservable => Verdict::NotObservable,
+        _ => Verdict::PartWindow,
+    };
+    (v, 0.0, 0.0)
+}
+
 /// Judge one transit at one site. Pure: everything it needs is passed in.
 fn evaluate(p: &Pairing<'_>, t: Predicted, night: &Night) -> Option<Event> {
     let (site, opts, tables) = (p.site, p.opts, p.tables);
     let half = p.target.half_duration_days();
     let (ingress, egress) = (t.mid_utc - half, t.mid_utc + half);
     let margin = opts.sigma_k * t.sigma_days;
-    // A window (RV extreme, phase window) has no out-of-event baseline.
-    let window = p.target.kind.is_window();
-    let (base_before, base_after) = if window {
-        (0.0, 0.0)
-    } else {
-        (opts.baseline_before_min, opts.baseline_after_min)
-    };
-    let block = Interval {
-        start: ingress - margin - base_before / 1440.0,
-        end: egress + margin + base_after / 1440.0,
-    };
+    let block = planned_block(p, ingress, egress, margin);
     let track = Track::new(&p.target.icrs_at(t.mid_utc), t.mid_utc, site, tables);
     if cannot_be_listed(p, &track, night, ingress, egress) {
         return None;
@@ -769,15 +787,8 @@ fn evaluate(p: &Pairing<'_>, t: Predicted, night: &Night) -> Option<Event> {
     let (usable, mut reasons) = usable_intervals_on_track(&track, site, night, &block, tables);
     let lost = t.sigma_days > LOST_SIGMA_FRACTION_OF_PERIOD * p.target.ephemeris.period_days;
     let (coverage, run) = best_run(&usable, ingress, egress);
-    let (mut verdict, mut before_min, mut after_min) = judge_run(run, ingress, egress, margin, opts);
-    if window {
-        verdict = match verdict {
-            Verdict::Whole | Verdict::WholeShortBaseline => Verdict::WholeWindow,
-            Verdict::NotObservable => Verdict::NotObservable,
-            _ => Verdict::PartWindow,
-        };
-        (before_min, after_min) = (0.0, 0.0);
-    }
+    let (verdict, before_min, after_min) =
+        for_kind(p, judge_run(run, ingress, egress, margin, opts));
     let mut observable = meets_criteria(p, verdict, coverage, lost, &mut reasons);
     if !observable && !opts.include_unobservable {
         return None;

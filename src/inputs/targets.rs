@@ -682,7 +682,7 @@ fn parse_row(
         );
         ok = false;
     }
-    if nums.get("ecc").is_some_and(|e| *e > 0.0) && nums.get("omega_deg").is_none() {
+    if nums.get("ecc").is_some_and(|e| *e > 0.0) && !nums.contains_key("omega_deg") {
         problems.push(
             line,
             "omega_deg",
@@ -731,7 +731,14 @@ fn parse_row(
 
 /// The orbit of a row, when any of its columns is given.
 fn orbit_of(num: &dyn Fn(&str) -> Option<f64>) -> Option<crate::orbit::Orbit> {
-    let keys = ["ecc", "omega_deg", "ecc_sigma", "omega_sigma_deg", "inc_deg", "t14_occ_hours"];
+    let keys = [
+        "ecc",
+        "omega_deg",
+        "ecc_sigma",
+        "omega_sigma_deg",
+        "inc_deg",
+        "t14_occ_hours",
+    ];
     if keys.iter().all(|k| num(k).is_none()) {
         return None;
     }

@@ -181,6 +181,24 @@ Verdict: whole = ingress to egress with their margins and both baselines; whole/
   baseline than asked; ingress, egress = only that contact with its margin; middle = in transit, neither contact;
   none = not observable.";
 
+/// The legend of event kinds, for tables listing anything besides transits.
+pub const KIND_LEGEND: &str = "\
+Kinds: [occ] = occultation (secondary eclipse; Ingr/Egr its contacts); [rv+], [rv-] = the star's largest
+  positive, negative radial velocity; [A-B] = orbital phase window (0 at mid-transit). For these windows the
+  three times are start, centre and end; window = the whole window with its margins, part = part of it.";
+
+/// The kinds legend when `targets` plan anything but transits, else nothing.
+pub fn kind_legend(targets: &[crate::inputs::targets::Target]) -> String {
+    if targets
+        .iter()
+        .any(|t| t.kind != crate::orbit::EventKind::Transit)
+    {
+        format!("{KIND_LEGEND}\n")
+    } else {
+        String::new()
+    }
+}
+
 /// The first cells of a table row about an event: night (as given), target, verdict, coverage, block, and the
 /// ingress, mid-transit and egress times; shared by the plan and schedule tables.
 fn event_cells(

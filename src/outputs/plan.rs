@@ -149,6 +149,7 @@ pub fn plan_table(
         out.push('\n');
         out.push_str(super::VERDICT_LEGEND);
         out.push('\n');
+        out.push_str(&super::kind_legend(targets));
         out.push_str(LEGEND);
         out.push('\n');
     }

@@ -197,7 +197,8 @@ pub fn schedule_table(
                 ),
                 None => String::new(),
             };
-            let mut cells = super::event_cells(night, &targets[e.target_index].label(), e, site, utc);
+            let mut cells =
+                super::event_cells(night, &targets[e.target_index].label(), e, site, utc);
             cells.push(Cell::new(format!("{:.2}", c.score)).set_alignment(CellAlignment::Right));
             cells.push(Cell::new(note));
             table.add_row(cells);
@@ -208,8 +209,13 @@ pub fn schedule_table(
     if !chosen.is_empty() {
         out.push('\n');
         out.push_str(super::VERDICT_LEGEND);
+        let kinds = super::kind_legend(targets);
+        if !kinds.is_empty() {
+            out.push('\n');
+            out.push_str(kinds.trim_end());
+        }
         out.push_str(&format!(
-            "\nScore: priority x ({} x coverage + {} x verdict value + {} / airmass at mid-transit + {} x Moon distance/90 deg\n  + {} x timing sigma/30 min + {} x SNR/20); verdict values whole 1, whole/sb 0.8, ingress or egress 0.5, middle 0.2.\n  Higher is better; each telescope-night takes the set of blocks with the highest total.\nNotes: + TELESCOPE = N%: paired with the other contact of the same transit there; together they cover N%.\n",
+            "\nScore: priority x ({} x coverage + {} x verdict value + {} / airmass at mid-transit + {} x Moon distance/90 deg\n  + {} x timing sigma/30 min + {} x SNR/20); verdict values whole 1, whole/sb 0.8, ingress or egress 0.5, middle 0.2,\n  window 1, part 0.5.\n  Higher is better; each telescope-night takes the set of blocks with the highest total.\nNotes: + TELESCOPE = N%: paired with the other contact of the same transit there; together they cover N%.\n",
             weights.coverage, weights.verdict, weights.airmass, weights.moon, weights.sigma, weights.snr
         ));
     }
