@@ -648,4 +648,37 @@ mod tests {
         cam.gain_e_per_adu = Some(5.0);
         assert_eq!(cam.saturation_e(), 200_000.0);
     }
+
+    #[test]
+    fn bright_stars_saturate_within_seconds_without_defocus() {
+        // Common practice, no source: a V = 6 star through a 1 m telescope in good seeing saturates in well under
+        // a second, so even the shortest exposure saturates and the set-up must defocus; a V = 12 star does not.
+        let cam = Camera {
+            aperture_m: 1.0,
+            obstruction: 0.3,
+            throughput: 0.5,
+            read_noise_e: 8.0,
+            dark_e_per_s: 0.02,
+            full_well_e: 100_000.0,
+            pixel_scale_arcsec: 0.4,
+            gain_e_per_adu: None,
+        };
+        let c = Conditions {
+            mag: 6.0,
+            airmass: 1.2,
+            exposure_s: 1.0,
+            sky_mag_arcsec2: 21.8,
+            extinction_mag: 0.15,
+            seeing_arcsec: 1.2,
+            aperture_radius_arcsec: 1.8,
+            site_altitude_m: 2000.0,
+            scintillation_cy: 1.5,
+        };
+        let v = band("V").unwrap();
+        assert!(suggested_exposure(v, &cam, &c, EXPOSURE_RANGE_S, WELL_FRACTION_LIMIT).1);
+        let faint = Conditions { mag: 12.0, ..c };
+        let (t, saturates) =
+            suggested_exposure(v, &cam, &faint, EXPOSURE_RANGE_S, WELL_FRACTION_LIMIT);
+        assert!(!saturates && t >= 2.0 && t <= 300.0, "{t}");
+    }
 }

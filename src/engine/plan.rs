@@ -807,10 +807,16 @@ fn evaluate(p: &Pairing<'_>, t: Predicted, night: &Night) -> Option<Event> {
         sep_deg: moon_sep,
         alt_deg: sky.moon_alt_deg,
     };
+    // A window's star is judged where it is observed: the middle of the usable run (a long window's centre may
+    // be in daylight or below the horizon).
+    let noise_jd = match run {
+        Some(r) if p.target.kind.is_window() => 0.5 * (r.start + r.end),
+        _ => t.mid_utc,
+    };
     let noise = expected_noise(
         p,
         &track,
-        (t.mid_utc, moon_sky),
+        (noise_jd, moon_sky),
         coverage,
         before_min + after_min,
     );
