@@ -679,6 +679,6 @@ mod tests {
         let faint = Conditions { mag: 12.0, ..c };
         let (t, saturates) =
             suggested_exposure(v, &cam, &faint, EXPOSURE_RANGE_S, WELL_FRACTION_LIMIT);
-        assert!(!saturates && t >= 2.0 && t <= 300.0, "{t}");
+        assert!(!saturates && (2.0..=300.0).contains(&t), "{t}");
     }
 }
