@@ -176,7 +176,9 @@ pub fn night_chart_svg(
     let track = night_track(site, target, almanac, events);
     let title = format!(
         "{} from {}, night of {}",
-        target.name, site.name, almanac.night_of
+        target.label(),
+        site.name,
+        almanac.night_of
     );
     let mut c = NightCanvas {
         svg: Svg::new(940.0, 560.0, &title),
@@ -187,7 +189,7 @@ pub fn night_chart_svg(
         start: track.start_utc,
         end: track.end_utc,
     };
-    draw_heading(&mut c, &title, events);
+    draw_heading(&mut c, &title, events, target.kind.noun());
     for span in &track.twilight {
         let class = format!("twilight {}", span.band.name());
         let style = format!(r##"fill="{}""##, band_fill(span.band));
@@ -205,7 +207,7 @@ pub fn night_chart_svg(
 }
 
 /// Title and the verdict line under it.
-fn draw_heading(c: &mut NightCanvas, title: &str, events: &[Event]) {
+fn draw_heading(c: &mut NightCanvas, title: &str, events: &[Event], noun: &str) {
     let x0 = c.x0;
     c.svg.text(
         x0,
@@ -215,7 +217,7 @@ fn draw_heading(c: &mut NightCanvas, title: &str, events: &[Event]) {
     );
     let sub = match events.iter().find(|e| e.observable) {
         Some(e) => format!(
-            "{}: {} of the transit usable; epoch {}, timing 1-sigma {:.1} min{}",
+            "{}: {} of the {noun} usable; epoch {}, timing 1-sigma {:.1} min{}",
             e.verdict.label(),
             crate::outputs::percent_floor(e.coverage),
             e.epoch,
@@ -225,8 +227,8 @@ fn draw_heading(c: &mut NightCanvas, title: &str, events: &[Event]) {
                 .map(|x| format!("; expected SNR {:.1}", crate::outputs::floor_to(x, 1)))
                 .unwrap_or_default()
         ),
-        None if events.is_empty() => "no transit this night".to_string(),
-        None => "transit not observable this night".to_string(),
+        None if events.is_empty() => format!("no {noun} this night"),
+        None => format!("{noun} not observable this night"),
     };
     c.svg.text(x0, 48.0, &sub, &format!(r##"fill="{SLATE}""##));
 }
