@@ -142,14 +142,23 @@ impl EventKind {
         }
     }
 
+    /// The `kind` field's text where it does not depend on the kind's values (not for phase windows).
+    pub fn fixed_label(&self) -> Option<&'static str> {
+        match self {
+            EventKind::Transit => Some("transit"),
+            EventKind::Occultation => Some("occultation"),
+            EventKind::RvMax => Some("rv-max"),
+            EventKind::RvMin => Some("rv-min"),
+            EventKind::Phase(..) => None,
+        }
+    }
+
     /// The name written in the `kind` field: `transit`, `occultation`, `rv-max`, `rv-min`, `phase:A-B`.
     pub fn label(&self) -> String {
-        match self {
-            EventKind::Transit => "transit".into(),
-            EventKind::Occultation => "occultation".into(),
-            EventKind::RvMax => "rv-max".into(),
-            EventKind::RvMin => "rv-min".into(),
-            EventKind::Phase(a, b) => format!("phase:{a:.2}-{b:.2}"),
+        match (self.fixed_label(), self) {
+            (Some(s), _) => s.into(),
+            (None, EventKind::Phase(a, b)) => format!("phase:{a:.2}-{b:.2}"),
+            (None, _) => unreachable!("only phase windows have no fixed label"),
         }
     }
 

@@ -35,9 +35,16 @@ pub fn rfc3339_utc(jd_utc: f64) -> String {
 /// date from the day count by Hinnant's `civil_from_days` algorithm ("chrono-Compatible Low-Level Date
 /// Algorithms", 2013). For output loops with hundreds of thousands of timestamps.
 pub fn push_rfc3339_utc(jd_utc: f64, out: &mut String) {
-    let ms = ((jd_utc - UNIX_EPOCH_JD) * 86_400_000.0).round() as i64;
-    let days = ms.div_euclid(86_400_000);
-    let mut rem = ms.rem_euclid(86_400_000);
+    let ms_f = (jd_utc - UNIX_EPOCH_JD) * 86_400_000.0;
+    // Instants before 1970 or past year 9999 (never planned) take the general formatter.
+    if !(0.0..253_402_300_799_000.0).contains(&ms_f) {
+        out.push_str(&rfc3339_utc(jd_utc));
+        return;
+    }
+    // Round half up by truncation (no libm call); ms_f >= 0 and below 2^53, so this is `round()`.
+    let ms = (ms_f + 0.5) as i64;
+    let days = ms / 86_400_000;
+    let mut rem = ms % 86_400_000;
     let z = days + 719_468;
     let era = z.div_euclid(146_097);
     let doe = z - era * 146_097;
@@ -54,29 +61,36 @@ pub fn push_rfc3339_utc(jd_utc: f64, out: &mut String) {
     let sec = rem / 1000;
     let milli = rem % 1000;
     let mut buf = [0u8; 24];
-    let put = |buf: &mut [u8], at: usize, v: i64, width: usize| {
-        let mut v = v;
-        for k in (0..width).rev() {
-            buf[at + k] = b'0' + (v % 10) as u8;
-            v /= 10;
-        }
-    };
-    put(&mut buf, 0, y, 4);
+    put_digits(&mut buf[0..4], y);
     buf[4] = b'-';
-    put(&mut buf, 5, m, 2);
+    put_two(&mut buf[5..7], m);
     buf[7] = b'-';
-    put(&mut buf, 8, d, 2);
+    put_two(&mut buf[8..10], d);
     buf[10] = b'T';
-    put(&mut buf, 11, h, 2);
+    put_two(&mut buf[11..13], h);
     buf[13] = b':';
-    put(&mut buf, 14, mi, 2);
+    put_two(&mut buf[14..16], mi);
     buf[16] = b':';
-    put(&mut buf, 17, sec, 2);
+    put_two(&mut buf[17..19], sec);
     buf[19] = b'.';
-    put(&mut buf, 20, milli, 3);
+    put_digits(&mut buf[20..23], milli);
     buf[23] = b'Z';
-    // ASCII digits and separators: each byte is one char.
-    out.extend(buf.iter().map(|&b| char::from(b)));
+    // ASCII digits and separators only, so the check cannot fail; one copy into `out`.
+    out.push_str(std::str::from_utf8(&buf).unwrap_or_default());
+}
+
+/// The decimal digits of `v` (0..10^len), zero-padded, into `buf`.
+fn put_digits(buf: &mut [u8], mut v: i64) {
+    for b in buf.iter_mut().rev() {
+        *b = b'0' + (v % 10) as u8;
+        v /= 10;
+    }
+}
+
+/// Two decimal digits of `v` (0..100) into `buf`.
+fn put_two(buf: &mut [u8], v: i64) {
+    buf[0] = b'0' + (v / 10) as u8;
+    buf[1] = b'0' + (v % 10) as u8;
 }
 
 /// UTC Julian Date of local noon on `date` in `tz`.
@@ -179,6 +193,12 @@ mod tests {
     fn fast_timestamps_match_chrono() {
         for k in 0..5000 {
             let jd = 2_441_317.5 + k as f64 * 7.318_473_1;
+            let mut fast = String::new();
+            push_rfc3339_utc(jd, &mut fast);
+            assert_eq!(fast, rfc3339_utc(jd), "jd {jd}");
+        }
+        // Before 1970 the general formatter takes over: same text.
+        for jd in [2_440_000.3, 2_440_587.499_999, 2_415_020.0] {
             let mut fast = String::new();
             push_rfc3339_utc(jd, &mut fast);
             assert_eq!(fast, rfc3339_utc(jd), "jd {jd}");

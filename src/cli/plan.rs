@@ -37,7 +37,6 @@ pub(super) fn stream_plan(
     out: Option<&Path>,
     format: Format,
 ) -> Result<()> {
-    use rayon::prelude::*;
     let planner = dipwatch::engine::plan::Planner::new(sites, targets, opts);
     let n_nights = (opts.last_night - opts.first_night).num_days() + 1;
     let chunks: Vec<(NaiveDate, NaiveDate)> = (0..n_nights)
@@ -66,31 +65,7 @@ pub(super) fn stream_plan(
     };
     let write_all = |w: &mut dyn Write| -> Result<()> {
         w.write_all(stream_head(sites, opts, format)?.as_bytes())?;
-        let mut lost = std::collections::BTreeMap::new();
-        let mut first = true;
-        for k in 0..planner.station_count() {
-            for &(a, b) in &chunks {
-                let (sp, chunk_lost) = planner.station_plan(k, a, b);
-                for (ti, sigma) in chunk_lost {
-                    lost.entry(ti).or_insert(sigma);
-                }
-                let parts: Vec<String> = sp
-                    .events
-                    .par_chunks(2048)
-                    .map(|c| format_events(c, sites, targets, format))
-                    .collect();
-                for p in parts.iter().filter(|p| !p.is_empty()) {
-                    if format == Format::Json && !first {
-                        w.write_all(b",\n")?;
-                    }
-                    first = false;
-                    w.write_all(p.as_bytes())?;
-                }
-                if let Some(b) = &bar {
-                    b.inc(1);
-                }
-            }
-        }
+        let lost = pipe_events(&planner, &chunks, (sites, targets), format, bar.as_ref(), w)?;
         if format == Format::Json {
             let lost: Vec<dipwatch::engine::plan::LostEphemeris> = lost
                 .into_iter()
@@ -127,6 +102,77 @@ pub(super) fn stream_plan(
         b.finish_and_clear();
     }
     result
+}
+
+/// Plan and format every telescope-month of the run and write it to `w`, computing overlapped with writing:
+/// a producer thread plans and formats each chunk (in parallel, on rayon's pool) and hands the text over a
+/// bounded channel while this thread writes it. Two chunks in flight bound the memory. Returns the lost
+/// ephemerides (target index to sigma in minutes).
+fn pipe_events(
+    planner: &dipwatch::engine::plan::Planner<'_>,
+    chunks: &[(NaiveDate, NaiveDate)],
+    (sites, targets): (&[Site], &[Target]),
+    format: Format,
+    bar: Option<&indicatif::ProgressBar>,
+    w: &mut dyn Write,
+) -> Result<std::collections::BTreeMap<usize, f64>> {
+    use rayon::prelude::*;
+    let (tx, rx) = std::sync::mpsc::sync_channel::<Vec<String>>(2);
+    std::thread::scope(|scope| -> Result<_> {
+        let producer = scope.spawn(|| {
+            // Owned here, so the channel closes when planning ends.
+            let tx = tx;
+            let mut lost = std::collections::BTreeMap::new();
+            for k in 0..planner.station_count() {
+                for &(a, b) in chunks {
+                    let (sp, chunk_lost) = planner.station_plan(k, a, b);
+                    for (ti, sigma) in chunk_lost {
+                        lost.entry(ti).or_insert(sigma);
+                    }
+                    let parts: Vec<String> = sp
+                        .events
+                        .par_chunks(2048)
+                        .map(|c| format_events(c, sites, targets, format))
+                        .filter(|p| !p.is_empty())
+                        .collect();
+                    if let Some(b) = bar {
+                        b.inc(1);
+                    }
+                    // The writer stopped (an error): stop planning too.
+                    if tx.send(parts).is_err() {
+                        return lost;
+                    }
+                }
+            }
+            lost
+        });
+        let mut first = true;
+        let mut written = Ok(());
+        for parts in rx.iter() {
+            for p in &parts {
+                if format == Format::Json && !first {
+                    written = w.write_all(b",\n");
+                }
+                first = false;
+                if written.is_ok() {
+                    written = w.write_all(p.as_bytes());
+                }
+                if written.is_err() {
+                    break;
+                }
+            }
+            if written.is_err() {
+                // Dropping the receiver ends the producer at its next send.
+                break;
+            }
+        }
+        drop(rx);
+        let lost = producer
+            .join()
+            .map_err(|_| anyhow::anyhow!("the planning thread failed"))?;
+        written?;
+        Ok(lost)
+    })
 }
 
 /// What comes before the events: the CSV or ECSV header, or the JSON document up to its `events` array.

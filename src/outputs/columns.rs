@@ -106,7 +106,10 @@ pub const EVENT_COLUMNS: &[Column<EventValue>] = &[
     Column {
         name: "kind",
         meta: Meta { datatype: "string", unit: None, description: "transit, occultation, rv-max, rv-min or phase:A-B" },
-        value: |r| Value::Owned(r.target.kind.label()),
+        value: |r| match r.target.kind.fixed_label() {
+            Some(s) => Value::Text(s),
+            None => Value::Owned(r.target.kind.label()),
+        },
     },
     Column {
         name: "epoch",
@@ -503,7 +506,7 @@ fn push_csv_value(v: &Value<'_>, out: &mut String) {
         }
         Value::Input(x) => {
             if let Some(x) = x {
-                out.push_str(&x.to_string());
+                push_shortest(*x, out);
             }
         }
         Value::Reasons(rs) => {
@@ -619,7 +622,7 @@ fn json_value(v: &Value<'_>) -> serde_json::Value {
 
 /// A CSV field, quoted when it holds a comma, quote or line break (RFC 4180 section 2).
 pub fn push_csv_text(s: &str, out: &mut String) {
-    if s.contains([',', '"', '\n', '\r']) {
+    if s.bytes().any(|b| matches!(b, b',' | b'"' | b'\n' | b'\r')) {
         out.push('"');
         out.push_str(&s.replace('"', "\"\""));
         out.push('"');
@@ -638,19 +641,39 @@ pub fn push_fixed(x: f64, decimals: u32, out: &mut String) {
         return;
     }
     let scale = 10_u64.pow(decimals);
-    let scaled = (x * scale as f64).round() as i64;
-    if scaled < 0 {
-        out.push('-');
+    let y = x * scale as f64;
+    // Half away from zero by truncation (no libm call): |y| < 1e18, and above 2^52 y is already whole.
+    let v = (y.abs() + 0.5) as u64;
+    // Sign, up to 13 integer digits, the point and up to 6 decimals, built back to front and copied once.
+    let mut buf = [b'0'; 24];
+    let mut i = buf.len();
+    let (mut int_part, mut frac) = (v / scale, v % scale);
+    for _ in 0..decimals {
+        i -= 1;
+        buf[i] = b'0' + (frac % 10) as u8;
+        frac /= 10;
     }
-    let v = scaled.unsigned_abs();
-    push_digits(v / scale, 1, out);
     if decimals > 0 {
-        out.push('.');
-        push_digits(v % scale, decimals as usize, out);
+        i -= 1;
+        buf[i] = b'.';
     }
+    loop {
+        i -= 1;
+        buf[i] = b'0' + (int_part % 10) as u8;
+        int_part /= 10;
+        if int_part == 0 {
+            break;
+        }
+    }
+    if y < 0.0 && v > 0 {
+        i -= 1;
+        buf[i] = b'-';
+    }
+    // ASCII only, so the check cannot fail.
+    out.push_str(std::str::from_utf8(&buf[i..]).unwrap_or_default());
 }
 
-/// Append the decimal digits of `v`, zero-padded to at least `width`.
+/// Append the decimal digits of `v`, zero-padded to at least `width` (at most 20), in one copy.
 fn push_digits(mut v: u64, width: usize, out: &mut String) {
     let mut digits = [b'0'; 20];
     let mut i = digits.len();
@@ -659,9 +682,36 @@ fn push_digits(mut v: u64, width: usize, out: &mut String) {
         digits[i] = b'0' + (v % 10) as u8;
         v /= 10;
     }
-    for &b in &digits[i..] {
-        out.push(char::from(b));
+    // ASCII digits only, so the check cannot fail.
+    out.push_str(std::str::from_utf8(&digits[i..]).unwrap_or_default());
+}
+
+/// Append an input number as Rust's shortest round-trip text (`f64`'s `Display`, as `x.to_string()` gives)
+/// without the general formatter when `x` has at most 9 decimals: the fewest decimals `k` whose rounded
+/// value divides back to exactly `x` (IEEE division is correctly rounded, so that text parses back to `x`
+/// and no shorter fixed text does). Other values go through the formatter.
+fn push_shortest(x: f64, out: &mut String) {
+    if x.is_finite() && x.abs() < 1e6 {
+        let mut scale = 1.0_f64;
+        for k in 0..=9u32 {
+            let scaled = (x * scale).round();
+            if scaled / scale == x {
+                if x < 0.0 || (x == 0.0 && x.is_sign_negative()) {
+                    out.push('-');
+                }
+                let v = scaled.abs() as u64;
+                let p = 10_u64.pow(k);
+                push_digits(v / p, 1, out);
+                if k > 0 {
+                    out.push('.');
+                    push_digits(v % p, k as usize, out);
+                }
+                return;
+            }
+            scale *= 10.0;
+        }
     }
+    out.push_str(&x.to_string());
 }
 
 #[cfg(test)]
@@ -681,6 +731,35 @@ mod tests {
             push_json_text(t, &mut s);
             let back: String = serde_json::from_str(&s).unwrap();
             assert_eq!(back, t);
+        }
+    }
+
+    #[test]
+    fn shortest_matches_display() {
+        let mut rng = 0x2545_f491_4f6c_dd1d_u64;
+        let mut next = || {
+            rng ^= rng << 13;
+            rng ^= rng >> 7;
+            rng ^= rng << 17;
+            rng
+        };
+        let mut cases = vec![
+            0.0, -0.0, 1.0, 2.0, 0.1, 0.2, 0.3, 1.5, 12.25, 0.000_123, 999_999.5, 1e-9, 3e-10,
+        ];
+        for _ in 0..20_000 {
+            let r = next();
+            // Depths and priorities as typed (few decimals), and arbitrary doubles.
+            let decimals = (r % 7) as i32;
+            let typed = ((r >> 8) % 1_000_000) as f64 / 10f64.powi(decimals);
+            cases.push(typed);
+            cases.push(-typed);
+            cases.push(f64::from_bits(next() >> 2));
+            cases.push((next() % 10_000_000) as f64 * 1e-7 * 1.000_000_1);
+        }
+        for x in cases {
+            let mut s = String::new();
+            push_shortest(x, &mut s);
+            assert_eq!(s, x.to_string(), "{x:e}");
         }
     }
 
