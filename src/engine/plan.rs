@@ -798,6 +798,27 @@ fn for_kind(p: &Pairing<'_>, (verdict, before, after): (Verdict, f64, f64)) -> (
 }
 
 /// Judge one transit at one site. Pure: everything it needs is passed in.
+/// The apparent track of a transit at mid-transit `mid_utc`, or None when the quick rejection says it cannot be
+/// listed: first from the catalogue place `mean` with the altitude limit loosened by the bound on its error
+/// (no apparent place needed), then from the apparent place.
+fn track_if_listable(
+    p: &Pairing<'_>,
+    mean: &Track,
+    mid_utc: f64,
+    night: &Night,
+    (ingress, egress): (f64, f64),
+) -> Option<Track> {
+    let loose_alt_deg = p.site.min_alt_deg - mean_place_error_deg(mid_utc);
+    if cannot_be_listed(p, (mean, loose_alt_deg), night, ingress, egress) {
+        return None;
+    }
+    let track = Track::new(&p.target.icrs_at(mid_utc), mid_utc, p.site, p.tables);
+    if cannot_be_listed(p, (&track, p.site.min_alt_deg), night, ingress, egress) {
+        return None;
+    }
+    Some(track)
+}
+
 /// `mean` is the target's [`Track::mean`] at the site: a first look that rejects, without the apparent place,
 /// transits that stay below the altitude limit by more than the mean place can be off.
 fn evaluate(p: &Pairing<'_>, t: Predicted, night: &Night, mean: &Track) -> Option<Event> {
@@ -806,14 +827,7 @@ fn evaluate(p: &Pairing<'_>, t: Predicted, night: &Night, mean: &Track) -> Optio
     let (ingress, egress) = (t.mid_utc - half, t.mid_utc + half);
     let margin = opts.sigma_k * t.sigma_days;
     let block = planned_block(p, ingress, egress, margin);
-    let loose_alt_deg = site.min_alt_deg - mean_place_error_deg(t.mid_utc);
-    if cannot_be_listed(p, (mean, loose_alt_deg), night, ingress, egress) {
-        return None;
-    }
-    let track = Track::new(&p.target.icrs_at(t.mid_utc), t.mid_utc, site, tables);
-    if cannot_be_listed(p, (&track, site.min_alt_deg), night, ingress, egress) {
-        return None;
-    }
+    let track = track_if_listable(p, mean, t.mid_utc, night, (ingress, egress))?;
     let (usable, mut reasons) = usable_intervals_on_track(&track, site, night, &block, tables);
     let lost = t.sigma_days > LOST_SIGMA_FRACTION_OF_PERIOD * p.target.ephemeris.period_days;
     let (coverage, run) = best_run(&usable, ingress, egress);
