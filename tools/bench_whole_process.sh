@@ -2,6 +2,9 @@
 # Whole-process timings for the README's Performance section. Rerun from the repo root:
 #   bash tools/bench_whole_process.sh
 # Needs /usr/bin/time (GNU time). Prints the median of 5 runs and the peak resident memory of each job.
+# To compare with another build on a machine whose speed drifts (shared virtual machines), give that build's
+# binary: `bash tools/bench_whole_process.sh /path/to/old/dipwatch` also runs the CSV job 5 times with each
+# binary, alternating, and prints both medians (wall and user CPU) from the same series.
 set -euo pipefail
 cd "$(dirname "$0")/.."
 cargo build --quiet --release --example synthetic_catalogue
@@ -40,4 +43,19 @@ for _ in 1 2 3 4 5; do
   per_run+=("$(( (e - s) / 20000 ))")
 done
 printf 'tonight, 1 site, 100 targets: median %s us per run of (%s)\n' "$(printf '%s\n' "${per_run[@]}" | sort -n | sed -n 3p)" "${per_run[*]}"
+if [ -n "${1:-}" ]; then
+  for b in old new; do : > "$work/cmp.$b"; done
+  for _ in 1 2 3 4 5; do
+    for b in old new; do
+      bin=./target/release/dipwatch; [ "$b" = old ] && bin=$1
+      /usr/bin/time -f "%e %U" -o "$work/t" "$bin" plan --sites "$work/sites.toml" --targets "$work/cat10k.csv" \
+        --from 2027-01-01 --days 365 --format csv > "$work/out"
+      cat "$work/t" >> "$work/cmp.$b"
+    done
+  done
+  for b in old new; do
+    printf 'CSV job, %s build, alternating: median wall %s s, median user CPU %s s\n' "$b" \
+      "$(cut -d' ' -f1 "$work/cmp.$b" | sort -n | sed -n 3p)" "$(cut -d' ' -f2 "$work/cmp.$b" | sort -n | sed -n 3p)"
+  done
+fi
 echo "machine: $(nproc) cores, $(grep -m1 'model name' /proc/cpuinfo | cut -d: -f2 | sed 's/^ //'), $(free -g | awk '/Mem:/{print $2}') GiB"
