@@ -155,10 +155,9 @@ impl EventKind {
 
     /// The name written in the `kind` field: `transit`, `occultation`, `rv-max`, `rv-min`, `phase:A-B`.
     pub fn label(&self) -> String {
-        match (self.fixed_label(), self) {
-            (Some(s), _) => s.into(),
-            (None, EventKind::Phase(a, b)) => format!("phase:{a:.2}-{b:.2}"),
-            (None, _) => unreachable!("only phase windows have no fixed label"),
+        match self {
+            EventKind::Phase(a, b) => format!("phase:{a:.2}-{b:.2}"),
+            _ => self.fixed_label().unwrap_or_default().into(),
         }
     }
 

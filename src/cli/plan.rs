@@ -146,26 +146,20 @@ fn pipe_events(
             }
             lost
         });
-        let mut first = true;
-        let mut written = Ok(());
-        for parts in rx.iter() {
-            for p in &parts {
-                if format == Format::Json && !first {
-                    written = w.write_all(b",\n");
-                }
-                first = false;
-                if written.is_ok() {
-                    written = w.write_all(p.as_bytes());
-                }
-                if written.is_err() {
-                    break;
+        // A write error stops the loop; dropping the receiver then ends the producer at its next send.
+        let written = (|| -> std::io::Result<()> {
+            let mut first = true;
+            for parts in &rx {
+                for p in &parts {
+                    if format == Format::Json && !first {
+                        w.write_all(b",\n")?;
+                    }
+                    first = false;
+                    w.write_all(p.as_bytes())?;
                 }
             }
-            if written.is_err() {
-                // Dropping the receiver ends the producer at its next send.
-                break;
-            }
-        }
+            Ok(())
+        })();
         drop(rx);
         let lost = producer
             .join()

@@ -797,7 +797,6 @@ fn for_kind(p: &Pairing<'_>, (verdict, before, after): (Verdict, f64, f64)) -> (
     (v, 0.0, 0.0)
 }
 
-/// Judge one transit at one site. Pure: everything it needs is passed in.
 /// The apparent track of a transit at mid-transit `mid_utc`, or None when the quick rejection says it cannot be
 /// listed: first from the catalogue place `mean` with the altitude limit loosened by the bound on its error
 /// (no apparent place needed), then from the apparent place.
@@ -819,6 +818,7 @@ fn track_if_listable(
     Some(track)
 }
 
+/// Judge one transit at one site. Pure: everything it needs is passed in.
 /// `mean` is the target's [`Track::mean`] at the site: a first look that rejects, without the apparent place,
 /// transits that stay below the altitude limit by more than the mean place can be off.
 fn evaluate(p: &Pairing<'_>, t: Predicted, night: &Night, mean: &Track) -> Option<Event> {

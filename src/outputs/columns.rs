@@ -694,18 +694,12 @@ fn push_shortest(x: f64, out: &mut String) {
     if x.is_finite() && x.abs() < 1e6 {
         let mut scale = 1.0_f64;
         for k in 0..=9u32 {
-            let scaled = (x * scale).round();
-            if scaled / scale == x {
-                if x < 0.0 || (x == 0.0 && x.is_sign_negative()) {
+            if (x * scale).round() / scale == x {
+                // `push_fixed` drops the sign of a zero; `Display` keeps it.
+                if x == 0.0 && x.is_sign_negative() {
                     out.push('-');
                 }
-                let v = scaled.abs() as u64;
-                let p = 10_u64.pow(k);
-                push_digits(v / p, 1, out);
-                if k > 0 {
-                    out.push('.');
-                    push_digits(v % p, k as usize, out);
-                }
+                push_fixed(x, k, out);
                 return;
             }
             scale *= 10.0;
