@@ -1113,7 +1113,12 @@ fn events_of_target(
     let half = target.half_duration_days();
     let mut events = Vec::new();
     let mut lost_sigma = None;
-    let first = mids.partition_point(|&(_, t)| t < range.start - 0.001);
+    // The epochs are consecutive, so the first one in range is near (start - first mid) / P.
+    let from = range.start - 0.001;
+    let guess = mids.first().map_or(0.0, |&(_, t0)| {
+        ((from - t0) / eph.period_days).ceil().max(0.0)
+    });
+    let first = partition_point_near(mids, guess as usize, |&(_, t)| t < from);
     for &(n, geo) in mids[first..]
         .iter()
         .take_while(|&&(_, t)| t < range.end + 0.001)
@@ -1121,7 +1126,7 @@ fn events_of_target(
         if !opts.include_unobservable {
             // Cheap first look with the geocentric time (the site term is <= 21 ms; 1 s of margin): skip
             // transits whose in-transit part misses the dark time of the neighbouring nights.
-            let k = nights.partition_point(|nt| nt.window.start <= geo);
+            let k = night_after(nights, geo);
             let m = 1.0 / 86_400.0;
             let near_dark = nights[k.saturating_sub(2)..(k + 1).min(nights.len())]
                 .iter()
@@ -1139,7 +1144,7 @@ fn events_of_target(
             geo - crate::astro::barycentric::observer_delay_days(JdUtc(geo), &icrs, &site.observer)
         };
         // The night whose solar-noon-to-noon window holds the mid-transit.
-        let k = nights.partition_point(|nt| nt.window.start <= mid);
+        let k = night_after(nights, mid);
         if k == 0 || mid >= nights[k - 1].window.end {
             continue;
         }
@@ -1171,6 +1176,29 @@ fn events_of_target(
         }
     }
     (events, lost_sigma)
+}
+
+/// `s.partition_point(pred)` for a predicate true then false along `s`, found by stepping from `guess`: a few
+/// comparisons of neighbouring entries when the guess is close, instead of a binary search whose every step
+/// can miss the cache.
+fn partition_point_near<T>(s: &[T], guess: usize, pred: impl Fn(&T) -> bool) -> usize {
+    let mut i = guess.min(s.len());
+    while i > 0 && !pred(&s[i - 1]) {
+        i -= 1;
+    }
+    while i < s.len() && pred(&s[i]) {
+        i += 1;
+    }
+    i
+}
+
+/// The index of the first night whose window starts after `t` (UTC JD): the windows run from one local mean
+/// solar noon to the next, a day apart, so the index is guessed from the first window's start.
+fn night_after(nights: &[Night], t: f64) -> usize {
+    let guess = nights
+        .first()
+        .map_or(0.0, |n| (t - n.window.start).floor().max(-1.0) + 1.0);
+    partition_point_near(nights, guess as usize, |nt| nt.window.start <= t)
 }
 
 /// The first predicted mid-transit of `target` after `jd_utc` as seen from `site`, UTC JD.
@@ -1280,6 +1308,45 @@ mod mean_place_tests {
             assert!(worst < bound, "{year}: {worst} deg vs bound {bound}");
             // Not wastefully loose either: within 0.2 deg of the largest offset seen.
             assert!(bound - worst < 0.2, "{year}: {worst} deg vs bound {bound}");
+        }
+    }
+}
+
+#[cfg(test)]
+mod index_tests {
+    use super::*;
+    use proptest::prelude::*;
+
+    proptest! {
+        /// Stepping from any guess finds what the binary search finds, on sorted lists with repeats.
+        #[test]
+        fn partition_point_near_matches_the_binary_search(
+            mut values in proptest::collection::vec(-50i32..50, 0..40),
+            t in -60i32..60,
+            guess in 0usize..80,
+        ) {
+            values.sort_unstable();
+            let expected = values.partition_point(|&v| v <= t);
+            prop_assert_eq!(partition_point_near(&values, guess, |&v| v <= t), expected);
+        }
+
+        /// The night of an instant by its index guess, for windows a day apart starting at any time of day.
+        #[test]
+        fn night_after_matches_the_binary_search(
+            start in 2_461_000.0f64..2_461_001.0,
+            n in 0usize..40,
+            dt in -3.0f64..45.0,
+        ) {
+            let nights: Vec<Night> = (0..n)
+                .map(|k| Night {
+                    night_of: NaiveDate::from_ymd_opt(2026, 1, 1).expect("date") + chrono::Duration::days(k as i64),
+                    window: Interval { start: start + k as f64, end: start + k as f64 + 1.0 },
+                    dark: None,
+                })
+                .collect();
+            let t = start + dt;
+            let expected = nights.partition_point(|nt| nt.window.start <= t);
+            prop_assert_eq!(night_after(&nights, t), expected);
         }
     }
 }
