@@ -450,58 +450,110 @@ fn complement_within(list: &[Interval], block: &Interval) -> Vec<Interval> {
     out
 }
 
-/// A bound on the angle between a target's ICRS direction (at a date within a year of `jd`) and its apparent
-/// place of date, deg; the altitude computed from one differs from the other's by at most this. Precession
-/// turns the sky by 50.3"/yr about the ecliptic pole (Lieske et al. 1977; 52"/yr taken), plus up to 20" of
-/// nutation, 20.5" of annual aberration and the equation of the equinoxes (folded into the hour angle, up to
-/// 1.2"), and 20" for proper motion over a year; 36" added for safety. Common practice, no source for the
-/// rounding.
-fn mean_place_error_deg(jd: f64) -> f64 {
-    let years = ((jd - 2_451_545.0) / 365.25).abs();
-    (52.0 * years + 20.0 + 20.5 + 1.2 + 20.0 + 36.0) / 3600.0
+/// A bound on the angle between a target's catalogue (ICRS) direction taken at `first_jd` and its apparent
+/// place of date at any time up to `last_jd`, deg; the altitude computed from one differs from the other's by
+/// at most this. Precession turns the sky by 50.3"/yr about the ecliptic pole (Lieske et al. 1977; 52"/yr
+/// taken) since J2000, plus up to 20" of nutation, 20.5" of annual aberration and the equation of the equinoxes
+/// (folded into the hour angle, up to 1.2"), the proper motion `pm_mas_per_yr` (total) over the span, and 36"
+/// for safety. Common practice, no source for the rounding.
+fn mean_place_error_deg(first_jd: f64, last_jd: f64, pm_mas_per_yr: f64) -> f64 {
+    let years_since_j2000 = (first_jd - 2_451_545.0)
+        .abs()
+        .max((last_jd - 2_451_545.0).abs())
+        / 365.25;
+    let span_years = (last_jd - first_jd).abs() / 365.25;
+    (52.0 * years_since_j2000 + 20.0 + 20.5 + 1.2 + pm_mas_per_yr / 1000.0 * span_years + 36.0)
+        / 3600.0
+}
+
+/// A target's altitude limit at a site as an hour-angle limit: above `min_alt_deg` when |H| <= H0 with
+/// cos H0 = (sin h - sin phi sin dec) / (cos phi cos dec) (Meeus 1998 eq. 15.1 for any altitude h), the hour
+/// angle H advancing at the sidereal rate. Computed once, it answers for any stretch of time without
+/// trigonometry.
+#[derive(Clone, Copy)]
+struct AltLimit {
+    /// cos H0; <= -1 when the target never goes below the limit, >= 1 when it never reaches it.
+    cos_h0: f64,
+    /// H0, rad (0 when `cos_h0` is outside -1..1).
+    h0_rad: f64,
+}
+
+impl AltLimit {
+    fn new(track: &Track, min_alt_deg: f64) -> AltLimit {
+        let (sl, cl) = track.lat_rad.sin_cos();
+        let (sd, cd) = track.dec_rad.sin_cos();
+        let sh = min_alt_deg.to_radians().sin();
+        let denom = cl * cd;
+        let cos_h0 = if denom.abs() < 1e-12 {
+            // At a pole, or a target at a celestial pole: the altitude does not change.
+            if sl * sd >= sh {
+                -2.0
+            } else {
+                2.0
+            }
+        } else {
+            (sh - sl * sd) / denom
+        };
+        let h0_rad = if cos_h0.abs() < 1.0 {
+            cos_h0.acos()
+        } else {
+            0.0
+        };
+        AltLimit { cos_h0, h0_rad }
+    }
+
+    /// The hour-angle runs [2 pi k - H0, 2 pi k + H0] met by the hour angles [ha_a, ha_b], clipped to them:
+    /// called with each (start, end) pair in order.
+    fn runs(&self, ha_a: f64, ha_b: f64, mut each: impl FnMut(f64, f64)) {
+        let h0 = self.h0_rad;
+        let k0 = ((ha_a - h0) / TAU).floor() as i64 - 1;
+        let k1 = ((ha_b + h0) / TAU).ceil() as i64 + 1;
+        for k in k0..=k1 {
+            let a = (TAU * k as f64 - h0).max(ha_a);
+            let b = (TAU * k as f64 + h0).min(ha_b);
+            if b > a {
+                each(a, b);
+            }
+        }
+    }
+
+    /// Whether the target is at or above the limit at some time in `w` (what [`alt_intervals`] being
+    /// non-empty says, without building the list).
+    fn met_within(&self, track: &Track, w: &Interval) -> bool {
+        if self.cos_h0 <= -1.0 {
+            return true;
+        }
+        if self.cos_h0 >= 1.0 {
+            return false;
+        }
+        let ha_a = track.ha_rad(w.start);
+        let ha_b = ha_a + TAU * GMST_RATE_PER_UT1_DAY * (w.end - w.start);
+        let mut met = false;
+        self.runs(ha_a, ha_b, |_, _| met = true);
+        met
+    }
 }
 
 /// The sub-intervals of `block` where the target is at or above `min_alt_deg`, solved exactly for the frozen
-/// apparent place: above the limit when |H| <= H0 with cos H0 = (sin h - sin phi sin dec) / (cos phi cos dec)
-/// (Meeus 1998 eq. 15.1 for any altitude h), the hour angle H advancing at the sidereal rate.
+/// apparent place (see [`AltLimit`]).
 fn alt_intervals(track: &Track, min_alt_deg: f64, block: &Interval) -> Vec<Interval> {
-    let (sl, cl) = track.lat_rad.sin_cos();
-    let (sd, cd) = track.dec_rad.sin_cos();
-    let sh = min_alt_deg.to_radians().sin();
-    let denom = cl * cd;
-    let c0 = if denom.abs() < 1e-12 {
-        // At a pole, or a target at a celestial pole: the altitude does not change.
-        if sl * sd >= sh {
-            -2.0
-        } else {
-            2.0
-        }
-    } else {
-        (sh - sl * sd) / denom
-    };
-    if c0 <= -1.0 {
+    let limit = AltLimit::new(track, min_alt_deg);
+    if limit.cos_h0 <= -1.0 {
         return vec![*block];
     }
-    if c0 >= 1.0 {
+    if limit.cos_h0 >= 1.0 {
         return Vec::new();
     }
-    let h0 = c0.acos();
     let omega = TAU * GMST_RATE_PER_UT1_DAY;
     let ha_a = track.ha_rad(block.start);
     let ha_b = ha_a + omega * (block.end - block.start);
     let mut out = Vec::new();
-    let k0 = ((ha_a - h0) / TAU).floor() as i64 - 1;
-    let k1 = ((ha_b + h0) / TAU).ceil() as i64 + 1;
-    for k in k0..=k1 {
-        let a = (TAU * k as f64 - h0).max(ha_a);
-        let b = (TAU * k as f64 + h0).min(ha_b);
-        if b > a {
-            out.push(Interval {
-                start: block.start + (a - ha_a) / omega,
-                end: block.start + (b - ha_a) / omega,
-            });
-        }
-    }
+    limit.runs(ha_a, ha_b, |a, b| {
+        out.push(Interval {
+            start: block.start + (a - ha_a) / omega,
+            end: block.start + (b - ha_a) / omega,
+        });
+    });
     out
 }
 
@@ -732,7 +784,7 @@ fn cannot_be_listed(
             end: egress,
         })
     });
-    !matches!(transit_dark, Some(w) if !alt_intervals(track, min_alt_deg, &w).is_empty())
+    !matches!(transit_dark, Some(w) if AltLimit::new(track, min_alt_deg).met_within(track, &w))
 }
 
 /// The expected noise of an event (None without a photometric set-up at the site or a magnitude for the target):
@@ -797,37 +849,17 @@ fn for_kind(p: &Pairing<'_>, (verdict, before, after): (Verdict, f64, f64)) -> (
     (v, 0.0, 0.0)
 }
 
-/// The apparent track of a transit at mid-transit `mid_utc`, or None when the quick rejection says it cannot be
-/// listed: first from the catalogue place `mean` with the altitude limit loosened by the bound on its error
-/// (no apparent place needed), then from the apparent place.
-fn track_if_listable(
-    p: &Pairing<'_>,
-    mean: &Track,
-    mid_utc: f64,
-    night: &Night,
-    (ingress, egress): (f64, f64),
-) -> Option<Track> {
-    let loose_alt_deg = p.site.min_alt_deg - mean_place_error_deg(mid_utc);
-    if cannot_be_listed(p, (mean, loose_alt_deg), night, ingress, egress) {
-        return None;
-    }
-    let track = Track::new(&p.target.icrs_at(mid_utc), mid_utc, p.site, p.tables);
-    if cannot_be_listed(p, (&track, p.site.min_alt_deg), night, ingress, egress) {
-        return None;
-    }
-    Some(track)
-}
-
 /// Judge one transit at one site. Pure: everything it needs is passed in.
-/// `mean` is the target's [`Track::mean`] at the site: a first look that rejects, without the apparent place,
-/// transits that stay below the altitude limit by more than the mean place can be off.
-fn evaluate(p: &Pairing<'_>, t: Predicted, night: &Night, mean: &Track) -> Option<Event> {
+fn evaluate(p: &Pairing<'_>, t: Predicted, night: &Night) -> Option<Event> {
     let (site, opts, tables) = (p.site, p.opts, p.tables);
     let half = p.target.half_duration_days();
     let (ingress, egress) = (t.mid_utc - half, t.mid_utc + half);
     let margin = opts.sigma_k * t.sigma_days;
     let block = planned_block(p, ingress, egress, margin);
-    let track = track_if_listable(p, mean, t.mid_utc, night, (ingress, egress))?;
+    let track = Track::new(&p.target.icrs_at(t.mid_utc), t.mid_utc, site, tables);
+    if cannot_be_listed(p, (&track, site.min_alt_deg), night, ingress, egress) {
+        return None;
+    }
     let (usable, mut reasons) = usable_intervals_on_track(&track, site, night, &block, tables);
     let lost = t.sigma_days > LOST_SIGMA_FRACTION_OF_PERIOD * p.target.ephemeris.period_days;
     let (coverage, run) = best_run(&usable, ingress, egress);
@@ -1108,7 +1140,16 @@ fn events_of_target(
 ) -> (Vec<Event>, Option<f64>) {
     let (target, site, opts) = (p.target, p.site, p.opts);
     let icrs = target.icrs_at(range.start);
+    // The first look: the catalogue place, with the altitude limit loosened by the bound on its error, rejects
+    // transits that stay low without the apparent place (see `mean_place_error_deg`).
     let mean = Track::mean(&icrs, site);
+    let pm_mas_per_yr = target
+        .pm_ra_cosdec_mas_per_yr
+        .hypot(target.pm_dec_mas_per_yr);
+    let loose = AltLimit::new(
+        &mean,
+        site.min_alt_deg - mean_place_error_deg(range.start, range.end, pm_mas_per_yr),
+    );
     let eph = &target.ephemeris;
     let half = target.half_duration_days();
     let mut events = Vec::new();
@@ -1125,16 +1166,22 @@ fn events_of_target(
     {
         if !opts.include_unobservable {
             // Cheap first look with the geocentric time (the site term is <= 21 ms; 1 s of margin): skip
-            // transits whose in-transit part misses the dark time of the neighbouring nights.
+            // transits whose in-transit part misses the dark time of the neighbouring nights, or meets it only
+            // with the catalogue place below the loosened altitude limit.
             let k = night_after(nights, geo);
             let m = 1.0 / 86_400.0;
-            let near_dark = nights[k.saturating_sub(2)..(k + 1).min(nights.len())]
+            let transit = Interval {
+                start: geo - half - m,
+                end: geo + half + m,
+            };
+            let may_list = nights[k.saturating_sub(2)..(k + 1).min(nights.len())]
                 .iter()
                 .any(|nt| {
                     nt.dark
-                        .is_some_and(|d| geo + half + m > d.start && geo - half - m < d.end)
+                        .and_then(|d| d.intersect(&transit))
+                        .is_some_and(|w| loose.met_within(&mean, &w))
                 });
-            if !near_dark {
+            if !may_list {
                 continue;
             }
         }
@@ -1171,7 +1218,7 @@ fn events_of_target(
             mid_utc: mid,
             sigma_days: sigma,
         };
-        if let Some(ev) = evaluate(p, predicted, night, &mean) {
+        if let Some(ev) = evaluate(p, predicted, night) {
             events.push(ev);
         }
     }
@@ -1292,7 +1339,7 @@ mod mean_place_tests {
         for year in [2000.0, 2014.0, 2027.0, 2043.0, 2060.0] {
             let jd0 = 2_451_545.0 + (year - 2000.0) * 365.25;
             let tables = SkyTables::new(jd0, jd0 + 366.0);
-            let bound = mean_place_error_deg(jd0 + 365.0);
+            let bound = mean_place_error_deg(jd0, jd0 + 366.0, 0.0);
             let mut worst = 0.0_f64;
             for k in 0..400 {
                 // A spiral of directions from pole to pole, and dates through the year (aberration's cycle).
