@@ -7,8 +7,10 @@
 //! the `vsop87` crate; measured within 8e-6 au (4 ms of light time) of ERFA's epv00.
 
 use crate::astro::frames::{Observer, Vec3};
-use crate::astro::time::{jd_tdb_from_utc, jd_utc_from_tdb, JdTdb, JdUtc};
-use crate::constants::{AU_LIGHT_TIME_S, AU_M, OBLIQUITY_J2000_DEG, SECONDS_PER_DAY};
+use crate::astro::time::{jd_tdb_from_utc, jd_utc_from_tt, tai_minus_utc_s, tdb_minus_tt_s, JdUtc};
+use crate::constants::{
+    AU_LIGHT_TIME_S, AU_M, OBLIQUITY_J2000_DEG, SECONDS_PER_DAY, TT_MINUS_TAI_S,
+};
 
 /// The time system a mid-transit time is quoted in.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, serde::Serialize, serde::Deserialize)]
@@ -72,6 +74,10 @@ pub struct EarthTable {
     first_jd_tdb: f64,
     bary_au: Vec<Vec3>,
     helio_au: Vec<Vec3>,
+    /// TDB - TT at the same nodes, s ([`tdb_minus_tt_s`]).
+    tdb_minus_tt_s: Vec<f64>,
+    /// TAI - UTC, s, when it is the same over the whole table (no leap second inside it).
+    tai_minus_utc_s: Option<f64>,
 }
 
 impl EarthTable {
@@ -86,10 +92,19 @@ impl EarthTable {
                 .map(|i| earth_positions_au(first + i as f64))
                 .unzip()
         };
+        let tdb_minus_tt_s = (0..n).map(|i| tdb_minus_tt_s(first + i as f64)).collect();
+        // TAI - UTC only steps up: equal at both ends (a day beyond each, for the TDB - UTC offset) means
+        // constant throughout.
+        let (a, b) = (
+            tai_minus_utc_s(JdUtc(first - 1.0)),
+            tai_minus_utc_s(JdUtc(first + n as f64 + 1.0)),
+        );
         EarthTable {
             first_jd_tdb: first,
             bary_au,
             helio_au,
+            tdb_minus_tt_s,
+            tai_minus_utc_s: (a == b).then_some(a),
         }
     }
 
@@ -142,6 +157,21 @@ impl EarthTable {
     }
 
     /// Light-time delay of the observer relative to the barycentre (or the Sun) along `target`, days.
+    /// UTC of a TDB instant, as [`jd_utc_from_tdb`] but with TDB - TT interpolated in the table (4-point
+    /// Lagrange on daily nodes: within 1e-9 s of the series, whose terms have periods of a year or more) and
+    /// TAI - UTC taken once when no leap second falls inside the table.
+    pub fn utc_from_tdb(&self, jd_tdb: f64) -> JdUtc {
+        let dt_s = match self.stencil(jd_tdb) {
+            Some((i, w, _)) => (0..4).map(|k| w[k] * self.tdb_minus_tt_s[i + k]).sum(),
+            None => tdb_minus_tt_s(jd_tdb),
+        };
+        let tt = jd_tdb - dt_s / SECONDS_PER_DAY;
+        match self.tai_minus_utc_s {
+            Some(leap_s) => JdUtc(tt - (leap_s + TT_MINUS_TAI_S) / SECONDS_PER_DAY),
+            None => jd_utc_from_tt(tt),
+        }
+    }
+
     fn delay_days(&self, jd_tdb: f64, target: &Vec3, observer_au: &Vec3, helio: bool) -> f64 {
         let r = if helio {
             self.earth_helio_au(jd_tdb)
@@ -196,7 +226,7 @@ impl EarthTable {
                 // TDB-TT is evaluated once (it changes by < 1e-9 s over the 8 min of light time).
                 let d0 = self.delay_days(value, target, &[0.0; 3], false);
                 let tdb_geo = value - self.delay_days(value - d0, target, &[0.0; 3], false);
-                let utc_geo = jd_utc_from_tdb(JdTdb(tdb_geo));
+                let utc_geo = self.utc_from_tdb(tdb_geo);
                 let obs = observer_icrs_au(utc_geo, observer);
                 let site_days = (obs[0] * target[0] + obs[1] * target[1] + obs[2] * target[2])
                     * AU_LIGHT_TIME_S
@@ -276,6 +306,21 @@ mod tests {
             let b = earth_positions_au(jd).0;
             let d = ((a[0] - b[0]).powi(2) + (a[1] - b[1]).powi(2) + (a[2] - b[2]).powi(2)).sqrt();
             assert!(d < TOL_AU, "jd {jd}: table off by {d} au");
+        }
+    }
+
+    /// The table's TDB -> UTC against the direct one ([`crate::astro::time::jd_utc_from_tdb`]), on a span
+    /// without a leap second and on one holding the 2016-12-31 leap second (IERS Bulletin C 52).
+    #[test]
+    fn table_utc_from_tdb_matches_the_direct_conversion() {
+        for (from, to) in [(2_461_000.0, 2_461_400.0), (2_457_700.0, 2_457_800.0)] {
+            let table = EarthTable::new(from, to);
+            for k in 0..400 {
+                let tdb = from + (to - from) * f64::from(k) / 399.0;
+                let direct = crate::astro::time::jd_utc_from_tdb(crate::astro::time::JdTdb(tdb)).0;
+                let fast = table.utc_from_tdb(tdb).0;
+                assert!((fast - direct).abs() * SECONDS_PER_DAY < 1e-6, "{tdb}: {fast} vs {direct}");
+            }
         }
     }
 
