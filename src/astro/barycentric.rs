@@ -319,7 +319,10 @@ mod tests {
                 let tdb = from + (to - from) * f64::from(k) / 399.0;
                 let direct = crate::astro::time::jd_utc_from_tdb(crate::astro::time::JdTdb(tdb)).0;
                 let fast = table.utc_from_tdb(tdb).0;
-                assert!((fast - direct).abs() * SECONDS_PER_DAY < 1e-6, "{tdb}: {fast} vs {direct}");
+                assert!(
+                    (fast - direct).abs() * SECONDS_PER_DAY < 1e-6,
+                    "{tdb}: {fast} vs {direct}"
+                );
             }
         }
     }

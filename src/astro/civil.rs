@@ -45,27 +45,23 @@ pub fn push_rfc3339_utc(jd_utc: f64, out: &mut String) {
     let ms = (ms_f + 0.5) as i64;
     let days = ms / 86_400_000;
     let mut rem = ms % 86_400_000;
-    let z = days + 719_468;
-    let era = z.div_euclid(146_097);
-    let doe = z - era * 146_097;
-    let yoe = (doe - doe / 1460 + doe / 36_524 - doe / 146_096) / 365;
-    let doy = doe - (365 * yoe + yoe / 4 - yoe / 100);
-    let mp = (5 * doy + 2) / 153;
-    let d = doy - (153 * mp + 2) / 5 + 1;
-    let m = if mp < 10 { mp + 3 } else { mp - 9 };
-    let y = yoe + era * 400 + i64::from(m <= 2);
+    let mut buf = [0u8; 24];
+    // A night's times fall on two dates, one even and one odd: the text of the last of each is kept per thread.
+    buf[0..10].copy_from_slice(&LAST_DATES.with(|c| {
+        let mut slots = c.get();
+        let k = (days & 1) as usize;
+        if slots[k].0 != days {
+            slots[k] = (days, date_text(days));
+            c.set(slots);
+        }
+        slots[k].1
+    }));
     let h = rem / 3_600_000;
     rem %= 3_600_000;
     let mi = rem / 60_000;
     rem %= 60_000;
     let sec = rem / 1000;
     let milli = rem % 1000;
-    let mut buf = [0u8; 24];
-    put_digits(&mut buf[0..4], y);
-    buf[4] = b'-';
-    put_two(&mut buf[5..7], m);
-    buf[7] = b'-';
-    put_two(&mut buf[8..10], d);
     buf[10] = b'T';
     put_two(&mut buf[11..13], h);
     buf[13] = b':';
@@ -77,6 +73,33 @@ pub fn push_rfc3339_utc(jd_utc: f64, out: &mut String) {
     buf[23] = b'Z';
     // ASCII digits and separators only, so the check cannot fail; one copy into `out`.
     out.push_str(std::str::from_utf8(&buf).unwrap_or_default());
+}
+
+thread_local! {
+    /// (days since 1970-01-01, its YYYY-MM-DD text) of the last even and odd days [`push_rfc3339_utc`] printed.
+    static LAST_DATES: std::cell::Cell<[(i64, [u8; 10]); 2]> =
+        const { std::cell::Cell::new([(i64::MIN, [0; 10]); 2]) };
+}
+
+/// YYYY-MM-DD of a day counted from 1970-01-01 (days >= 0): the proleptic Gregorian "civil from days"
+/// algorithm of H. Hinnant, chrono-Compatible Low-Level Date Algorithms (2013).
+fn date_text(days: i64) -> [u8; 10] {
+    let z = days + 719_468;
+    let era = z.div_euclid(146_097);
+    let doe = z - era * 146_097;
+    let yoe = (doe - doe / 1460 + doe / 36_524 - doe / 146_096) / 365;
+    let doy = doe - (365 * yoe + yoe / 4 - yoe / 100);
+    let mp = (5 * doy + 2) / 153;
+    let d = doy - (153 * mp + 2) / 5 + 1;
+    let m = if mp < 10 { mp + 3 } else { mp - 9 };
+    let y = yoe + era * 400 + i64::from(m <= 2);
+    let mut buf = [0u8; 10];
+    put_digits(&mut buf[0..4], y);
+    buf[4] = b'-';
+    put_two(&mut buf[5..7], m);
+    buf[7] = b'-';
+    put_two(&mut buf[8..10], d);
+    buf
 }
 
 /// The decimal digits of `v` (0..10^len), zero-padded, into `buf`.
@@ -193,6 +216,13 @@ mod tests {
     fn fast_timestamps_match_chrono() {
         for k in 0..5000 {
             let jd = 2_441_317.5 + k as f64 * 7.318_473_1;
+            let mut fast = String::new();
+            push_rfc3339_utc(jd, &mut fast);
+            assert_eq!(fast, rfc3339_utc(jd), "jd {jd}");
+        }
+        // Times hopping back and forth over neighbouring days, as a night's columns do (the date cache).
+        for k in 0..3000 {
+            let jd = 2_461_400.2 + f64::from(k % 97) * 0.37 - f64::from(k % 5) * 1.01;
             let mut fast = String::new();
             push_rfc3339_utc(jd, &mut fast);
             assert_eq!(fast, rfc3339_utc(jd), "jd {jd}");

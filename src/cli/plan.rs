@@ -199,7 +199,7 @@ fn format_events(
     targets: &[Target],
     format: Format,
 ) -> String {
-    let mut s = String::with_capacity(events.len() * 420);
+    let mut s = String::with_capacity(events.len() * 512);
     match format {
         Format::Json => {
             for (i, e) in events.iter().enumerate() {

@@ -631,37 +631,35 @@ pub fn push_csv_text(s: &str, out: &mut String) {
     }
 }
 
-/// Append `x` with exactly `decimals` decimals (0-6) without the general float formatter: scale, round half
+/// Append `x` with exactly `decimals` decimals (0-9) without the general float formatter: scale, round half
 /// away from zero, print the digits. Equal to `format!("{x:.decimals$}")` except that a negative value which
 /// rounds to zero prints as `0.00`, not `-0.00`.
 pub fn push_fixed(x: f64, decimals: u32, out: &mut String) {
-    if !x.is_finite() || x.abs() >= 1e12 {
+    const SCALES: [f64; 10] = [1.0, 10.0, 100.0, 1e3, 1e4, 1e5, 1e6, 1e7, 1e8, 1e9];
+    let decimals = decimals as usize;
+    let y = x * SCALES.get(decimals).copied().unwrap_or(f64::INFINITY);
+    if !x.is_finite() || x.abs() >= 1e12 || y.is_nan() || y.abs() >= 1e17 {
         use std::fmt::Write;
-        let _ = write!(out, "{x:.prec$}", prec = decimals as usize);
+        let _ = write!(out, "{x:.decimals$}");
         return;
     }
-    let scale = 10_u64.pow(decimals);
-    let y = x * scale as f64;
-    // Half away from zero by truncation (no libm call): |y| < 1e18, and above 2^52 y is already whole.
+    // Half away from zero by truncation (no libm call): |y| < 1e17, and above 2^52 y is already whole.
     let v = (y.abs() + 0.5) as u64;
-    // Sign, up to 13 integer digits, the point and up to 6 decimals, built back to front and copied once.
+    // Sign, the point and up to 17 digits, built back to front from the digits of
+    // the scaled value (division by 10 only, which compiles to a multiplication) and copied once.
     let mut buf = [b'0'; 24];
     let mut i = buf.len();
-    let (mut int_part, mut frac) = (v / scale, v % scale);
-    for _ in 0..decimals {
-        i -= 1;
-        buf[i] = b'0' + (frac % 10) as u8;
-        frac /= 10;
-    }
-    if decimals > 0 {
-        i -= 1;
-        buf[i] = b'.';
-    }
+    let (mut rest, mut written) = (v, 0);
     loop {
+        if written == decimals && decimals > 0 {
+            i -= 1;
+            buf[i] = b'.';
+        }
         i -= 1;
-        buf[i] = b'0' + (int_part % 10) as u8;
-        int_part /= 10;
-        if int_part == 0 {
+        buf[i] = b'0' + (rest % 10) as u8;
+        rest /= 10;
+        written += 1;
+        if rest == 0 && written > decimals {
             break;
         }
     }
@@ -754,6 +752,22 @@ mod tests {
             let mut s = String::new();
             push_shortest(x, &mut s);
             assert_eq!(s, x.to_string(), "{x:e}");
+        }
+    }
+
+    proptest::proptest! {
+        /// Away from ties, the fixed text is the formatter's, for every decimal count it serves.
+        #[test]
+        fn fixed_text_is_the_formatters_away_from_ties(x in -2.0e6f64..2.0e6, d in 0u32..=9) {
+            let y = (x * 10f64.powi(d as i32)).abs();
+            proptest::prop_assume!((y.fract() - 0.5).abs() > 1e-6 && y < 1e15);
+            let mut s = String::new();
+            push_fixed(x, d, &mut s);
+            let mut want = format!("{x:.prec$}", prec = d as usize);
+            if want.starts_with('-') && want[1..].bytes().all(|b| b == b'0' || b == b'.') {
+                want.remove(0);
+            }
+            proptest::prop_assert_eq!(s, want);
         }
     }
 
