@@ -250,11 +250,12 @@ impl EarthTable {
 /// the first node index and the weights (and their derivatives per unit of `x`) of nodes floor(x)-1 ..
 /// floor(x)+2; `None` when the stencil leaves the grid. Abramowitz & Stegun 25.2.13.
 pub fn lagrange4(x: f64, len: usize) -> Option<(usize, [f64; 4], [f64; 4])> {
-    let i = x.floor() as isize - 1;
+    let fl = crate::astro::frames::floor_fast(x);
+    let i = fl as isize - 1;
     if i < 0 || i as usize + 3 >= len {
         return None;
     }
-    let u = x - x.floor();
+    let u = x - fl;
     let w = [
         -u * (u - 1.0) * (u - 2.0) / 6.0,
         (u + 1.0) * (u - 1.0) * (u - 2.0) / 2.0,

@@ -66,11 +66,28 @@ pub fn norm(v: &Vec3) -> f64 {
     (v[0] * v[0] + v[1] * v[1] + v[2] * v[2]).sqrt()
 }
 
+/// `x.floor()` by truncation to an integer: exact for |x| < 2^52 (every such double's floor is an integer
+/// below 2^52, held exactly), the library call otherwise. Portable builds have no floor instruction (SSE4.1),
+/// so `f64::floor` is a function call; this is a conversion and a compare.
+#[inline]
+pub fn floor_fast(x: f64) -> f64 {
+    if x.abs() < 4_503_599_627_370_496.0 {
+        let t = x as i64 as f64;
+        if t > x {
+            t - 1.0
+        } else {
+            t
+        }
+    } else {
+        x.floor()
+    }
+}
+
 /// `x` reduced to `[0, m)` with a floor instead of the (slow) `fmod` behind `rem_euclid`; equal to
 /// `x.rem_euclid(m)` up to rounding in the last place.
 #[inline]
 pub fn wrap_to(x: f64, m: f64) -> f64 {
-    let r = x - m * (x / m).floor();
+    let r = x - m * floor_fast(x / m);
     if r >= m || r < 0.0 {
         0.0
     } else {
@@ -226,9 +243,13 @@ impl Observer {
 /// Given: `ha_rad` hour angle (west +), `dec_rad`, `lat_rad` geodetic latitude. Returns: (altitude rad,
 /// azimuth rad 0..2pi, north 0, east +pi/2). Source: Meeus (1998) eq. 13.5-13.6 with azimuth from north.
 pub fn alt_az_from_hadec(ha_rad: f64, dec_rad: f64, lat_rad: f64) -> (f64, f64) {
+    alt_az_from_hadec_sc(ha_rad, dec_rad.sin_cos(), lat_rad.sin_cos())
+}
+
+/// [`alt_az_from_hadec`] with the sines and cosines of declination and latitude given, as (sin, cos): for
+/// loops over many instants of one direction at one site.
+pub fn alt_az_from_hadec_sc(ha_rad: f64, (sd, cd): (f64, f64), (sl, cl): (f64, f64)) -> (f64, f64) {
     let (sh, ch) = ha_rad.sin_cos();
-    let (sd, cd) = dec_rad.sin_cos();
-    let (sl, cl) = lat_rad.sin_cos();
     let x = -ch * cd * sl + sd * cl;
     let y = -sh * cd;
     let z = ch * cd * cl + sd * sl;
@@ -240,9 +261,16 @@ pub fn alt_az_from_hadec(ha_rad: f64, dec_rad: f64, lat_rad: f64) -> (f64, f64) 
 /// Geometric altitude only (rad) from hour angle, declination and latitude: sin h = sin phi sin dec +
 /// cos phi cos dec cos H (Meeus 1998 eq. 13.6); cheaper than [`alt_az_from_hadec`] when the azimuth is not needed.
 pub fn alt_from_hadec(ha_rad: f64, dec_rad: f64, lat_rad: f64) -> f64 {
-    (lat_rad.sin() * dec_rad.sin() + lat_rad.cos() * dec_rad.cos() * ha_rad.cos())
-        .clamp(-1.0, 1.0)
-        .asin()
+    alt_from_hadec_sc(
+        ha_rad,
+        (dec_rad.sin(), dec_rad.cos()),
+        (lat_rad.sin(), lat_rad.cos()),
+    )
+}
+
+/// [`alt_from_hadec`] with the sines and cosines of declination and latitude given, as (sin, cos).
+pub fn alt_from_hadec_sc(ha_rad: f64, (sd, cd): (f64, f64), (sl, cl): (f64, f64)) -> f64 {
+    (sl * sd + cl * cd * ha_rad.cos()).clamp(-1.0, 1.0).asin()
 }
 
 /// Hour angle wrapped to -pi..pi (west +).
@@ -349,6 +377,16 @@ pub fn apply_proper_motion(
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    proptest::proptest! {
+        /// The truncating floor is the library's, signed zeros aside, small and large.
+        #[test]
+        fn floor_fast_is_floor(x in proptest::num::f64::NORMAL | proptest::num::f64::ZERO, small in -1e7f64..1e7) {
+            for v in [x, small, small.trunc(), -small.trunc()] {
+                proptest::prop_assert_eq!(floor_fast(v), v.floor(), "{}", v);
+            }
+        }
+    }
 
     #[test]
     fn precession_is_a_rotation() {

@@ -10,7 +10,7 @@ use crate::astro::atmosphere::airmass_kasten_young;
 use crate::astro::barycentric::EarthTable;
 use crate::astro::crossings::{intervals_where_nonnegative, Interval, DEFAULT_STEP_DAYS};
 use crate::astro::frames::GMST_RATE_PER_UT1_DAY;
-use crate::astro::frames::{alt_az_from_hadec, gmst_rad, separation_rad, wrap_pi, Vec3};
+use crate::astro::frames::{alt_az_from_hadec_sc, gmst_rad, separation_rad, wrap_pi, Vec3};
 use crate::astro::tables::SkyTables;
 use crate::astro::time::JdUtc;
 use crate::engine::almanac::{dark_interval, night_window};
@@ -363,32 +363,35 @@ pub(crate) struct Track {
     dec_rad: f64,
     eqeq_rad: f64,
     lon_rad: f64,
-    lat_rad: f64,
+    /// (sin, cos) of the declination and of the latitude, computed once for every instant asked.
+    sc_dec: (f64, f64),
+    sc_lat: (f64, f64),
 }
 
 impl Track {
-    pub(crate) fn new(icrs: &Vec3, t_ref: f64, site: &Site, tables: &SkyTables) -> Track {
-        let (ra_rad, dec_rad) = tables.apparent_radec(icrs, t_ref);
+    fn from_place(ra_rad: f64, dec_rad: f64, eqeq_rad: f64, site: &Site) -> Track {
+        let lat_rad = site.observer.lat_rad;
         Track {
             ra_rad,
             dec_rad,
-            eqeq_rad: wrap_pi(tables.gast_rad(t_ref) - gmst_rad(t_ref)),
+            eqeq_rad,
             lon_rad: site.observer.lon_rad,
-            lat_rad: site.observer.lat_rad,
+            sc_dec: (dec_rad.sin(), dec_rad.cos()),
+            sc_lat: (lat_rad.sin(), lat_rad.cos()),
         }
+    }
+
+    pub(crate) fn new(icrs: &Vec3, t_ref: f64, site: &Site, tables: &SkyTables) -> Track {
+        let (ra_rad, dec_rad) = tables.apparent_radec(icrs, t_ref);
+        let eqeq_rad = wrap_pi(tables.gast_rad(t_ref) - gmst_rad(t_ref));
+        Track::from_place(ra_rad, dec_rad, eqeq_rad, site)
     }
 
     /// The catalogue (ICRS) place as if it were the apparent one: within [`mean_place_error_deg`] of the
     /// apparent place, so it can reject a transit before the apparent place is computed.
     fn mean(icrs: &Vec3, site: &Site) -> Track {
         let (ra_rad, dec_rad) = crate::astro::frames::radec_from_vec(icrs);
-        Track {
-            ra_rad,
-            dec_rad,
-            eqeq_rad: 0.0,
-            lon_rad: site.observer.lon_rad,
-            lat_rad: site.observer.lat_rad,
-        }
+        Track::from_place(ra_rad, dec_rad, 0.0, site)
     }
 
     /// Hour angle, rad -pi..pi (west +).
@@ -398,13 +401,13 @@ impl Track {
 
     /// Altitude, deg.
     pub(crate) fn alt_deg(&self, t: f64) -> f64 {
-        crate::astro::frames::alt_from_hadec(self.ha_rad(t), self.dec_rad, self.lat_rad)
+        crate::astro::frames::alt_from_hadec_sc(self.ha_rad(t), self.sc_dec, self.sc_lat)
             .to_degrees()
     }
 
     /// (altitude deg, azimuth deg).
     pub(crate) fn alt_az_deg(&self, t: f64) -> (f64, f64) {
-        let (alt, az) = alt_az_from_hadec(self.ha_rad(t), self.dec_rad, self.lat_rad);
+        let (alt, az) = alt_az_from_hadec_sc(self.ha_rad(t), self.sc_dec, self.sc_lat);
         (alt.to_degrees(), az.to_degrees())
     }
 
@@ -480,8 +483,8 @@ struct AltLimit {
 
 impl AltLimit {
     fn new(track: &Track, min_alt_deg: f64) -> AltLimit {
-        let (sl, cl) = track.lat_rad.sin_cos();
-        let (sd, cd) = track.dec_rad.sin_cos();
+        let (sl, cl) = track.sc_lat;
+        let (sd, cd) = track.sc_dec;
         let sh = min_alt_deg.to_radians().sin();
         let denom = cl * cd;
         let cos_h0 = if denom.abs() < 1e-12 {
