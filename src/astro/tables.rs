@@ -10,8 +10,8 @@
 
 use crate::astro::barycentric::{lagrange4, EarthTable};
 use crate::astro::frames::{
-    alt_az_from_hadec, gmst_rad, mat_vec, radec_from_vec, unit_from_radec, EarthOrientation, Mat3,
-    Observer, Vec3,
+    alt_az_from_hadec, gmst_rad, mat_vec, norm, radec_from_vec, unit_from_radec, EarthOrientation,
+    Mat3, Observer, Vec3,
 };
 use crate::astro::sky::{moon_apparent, moon_illuminated_fraction, topocentric, ApparentPlace};
 use crate::astro::time::{jd_tt_from_utc, JdUtc};
@@ -126,6 +126,12 @@ impl SkyTables {
     /// Apparent right ascension and declination of date (rad) of a catalogue direction at `t`, with annual
     /// aberration.
     pub fn apparent_radec(&self, icrs: &Vec3, t: f64) -> (f64, f64) {
+        radec_from_vec(&self.apparent_vec(icrs, t))
+    }
+
+    /// The apparent direction of date of a catalogue direction at `t` (as [`SkyTables::apparent_radec`]), as a
+    /// vector of length within 1e-4 of one (aberration is not renormalised).
+    pub fn apparent_vec(&self, icrs: &Vec3, t: f64) -> Vec3 {
         let v = self.earth.earth_bary_vel_au_per_day(self.tdb(t));
         let k = AU_LIGHT_TIME_S / SECONDS_PER_DAY;
         let beta = [v[0] * k, v[1] * k, v[2] * k];
@@ -135,7 +141,7 @@ impl SkyTables {
             icrs[1] + beta[1] - icrs[1] * pdotv,
             icrs[2] + beta[2] - icrs[2] * pdotv,
         ];
-        radec_from_vec(&mat_vec(&self.frame(t).pn, &p))
+        mat_vec(&self.frame(t).pn, &p)
     }
 
     /// Apparent geocentric place of the Sun: minus the tabulated heliocentric Earth, aberrated by the Earth's
@@ -171,6 +177,17 @@ impl SkyTables {
 
     /// Apparent geocentric place of the Moon (interpolated).
     pub fn moon_geocentric(&self, t: f64) -> ApparentPlace {
+        let v = self.moon_geocentric_km(t);
+        let (ra_rad, dec_rad) = radec_from_vec(&v);
+        ApparentPlace {
+            ra_rad,
+            dec_rad,
+            dist_km: (v[0] * v[0] + v[1] * v[1] + v[2] * v[2]).sqrt(),
+        }
+    }
+
+    /// The Moon's geocentric apparent position of date, km (interpolated).
+    fn moon_geocentric_km(&self, t: f64) -> Vec3 {
         let x = (t - self.moon_first_utc) / MOON_STEP_DAYS;
         let v = match lagrange4(x, self.moon_km.len()) {
             Some((i, w, _)) => {
@@ -189,12 +206,7 @@ impl SkyTables {
                 [u[0] * m.dist_km, u[1] * m.dist_km, u[2] * m.dist_km]
             }
         };
-        let (ra_rad, dec_rad) = radec_from_vec(&v);
-        ApparentPlace {
-            ra_rad,
-            dec_rad,
-            dist_km: (v[0] * v[0] + v[1] * v[1] + v[2] * v[2]).sqrt(),
-        }
+        v
     }
 
     /// Topocentric place of the Moon and its altitude and azimuth at a site, at UTC JD `t`.
@@ -217,23 +229,56 @@ impl SkyTables {
     /// The Sun's altitude, the Moon's topocentric place and altitude and its illuminated fraction at UTC JD `t`,
     /// computing the Sun and the Moon once.
     pub fn sun_moon(&self, t: f64, obs: &Observer) -> SunMoonSky {
+        // In vectors of the true equator and equinox of date: sin(altitude) is the direction's dot product with
+        // the geodetic zenith (cos phi cos LAST, cos phi sin LAST, sin phi), which is Meeus (1998) eq. 13.6
+        // written as a dot product; the Moon's topocentric position is its geocentric one minus the site's
+        // (as `topocentric`); the elongation for the illuminated fraction comes from the cross and dot products
+        // of the geocentric directions (Meeus eq. 48.2-48.3, 48.1, as `moon_illuminated_fraction`).
         let last = self.last_rad(t, obs.lon_rad);
-        let sun = self.sun(t);
-        let sun_alt =
-            crate::astro::frames::alt_from_hadec(last - sun.ra_rad, sun.dec_rad, obs.lat_rad)
-                .to_degrees();
-        let geo = self.moon_geocentric(t);
-        let topo = topocentric(&geo, obs, last);
-        let moon_alt =
-            crate::astro::frames::alt_from_hadec(last - topo.ra_rad, topo.dec_rad, obs.lat_rad)
-                .to_degrees();
+        let (sl, cl) = (obs.lat_rad.sin(), obs.lat_rad.cos());
+        let (sa, ca) = last.sin_cos();
+        let zenith = [cl * ca, cl * sa, sl];
+        let sin_alt = |v: &Vec3, len: f64| (dot(v, &zenith) / len).clamp(-1.0, 1.0).asin();
+        let h = self.earth.earth_helio_au(self.tdb(t));
+        let sun_au = (h[0] * h[0] + h[1] * h[1] + h[2] * h[2]).sqrt();
+        let sun = self.apparent_vec(&[-h[0] / sun_au, -h[1] / sun_au, -h[2] / sun_au], t);
+        let sun_alt = sin_alt(&sun, norm(&sun));
+        let geo = self.moon_geocentric_km(t);
+        let o = obs.geocentric_m(last);
+        let topo = [
+            geo[0] - o[0] / 1000.0,
+            geo[1] - o[1] / 1000.0,
+            geo[2] - o[2] / 1000.0,
+        ];
+        let topo_km = norm(&topo);
+        let (ra_rad, dec_rad) = radec_from_vec(&topo);
+        let moon_alt = sin_alt(&topo, topo_km);
+        let psi = norm(&cross(&sun, &geo)).atan2(dot(&sun, &geo));
+        let (sun_km, moon_km) = (sun_au * AU_M / 1000.0, norm(&geo));
+        let i = (sun_km * psi.sin()).atan2(moon_km - sun_km * psi.cos());
         SunMoonSky {
-            sun_alt_deg: sun_alt,
-            moon: topo,
-            moon_alt_deg: moon_alt,
-            moon_illum: moon_illuminated_fraction(&sun, &geo),
+            sun_alt_deg: sun_alt.to_degrees(),
+            moon: ApparentPlace {
+                ra_rad,
+                dec_rad,
+                dist_km: topo_km,
+            },
+            moon_alt_deg: moon_alt.to_degrees(),
+            moon_illum: (1.0 + i.cos()) / 2.0,
         }
     }
+}
+
+fn dot(a: &Vec3, b: &Vec3) -> f64 {
+    a[0] * b[0] + a[1] * b[1] + a[2] * b[2]
+}
+
+fn cross(a: &Vec3, b: &Vec3) -> Vec3 {
+    [
+        a[1] * b[2] - a[2] * b[1],
+        a[2] * b[0] - a[0] * b[2],
+        a[0] * b[1] - a[1] * b[0],
+    ]
 }
 
 #[cfg(test)]
@@ -268,6 +313,31 @@ mod tests {
                     < 0.002
             );
             assert!((tables.moon_illum(t) - direct.moon_illum).abs() < 5e-4);
+            // The vector form used for listed events: the same Sun, Moon and illuminated fraction.
+            let both = tables.sun_moon(t, &obs);
+            assert!(
+                (both.sun_alt_deg - direct.sun_alt_deg).abs() < TOL_DEG,
+                "Sun at {t}"
+            );
+            assert!(
+                (both.moon_alt_deg - direct.moon_alt_deg).abs() < TOL_DEG,
+                "Moon at {t}"
+            );
+            assert!(
+                (both.moon_illum - direct.moon_illum).abs() < 5e-4,
+                "illumination at {t}"
+            );
+            let sep = crate::astro::frames::separation_rad(
+                both.moon.ra_rad,
+                both.moon.dec_rad,
+                m.place.ra_rad,
+                m.place.dec_rad,
+            );
+            assert!(sep.to_degrees() < 1e-6, "Moon place at {t}");
+            assert!(
+                (both.moon.dist_km - m.place.dist_km).abs() < 1e-6,
+                "Moon distance at {t}"
+            );
             let (alt, _) = target_alt_az_deg(&icrs, JdUtc(t), &obs, &tables.earth);
             let (ra, dec) = tables.apparent_radec(&icrs, t);
             let alt2 = alt_az_from_hadec(tables.last_rad(t, obs.lon_rad) - ra, dec, obs.lat_rad)
