@@ -411,6 +411,22 @@ impl Track {
         (alt.to_degrees(), az.to_degrees())
     }
 
+    /// The first upper meridian crossing within [start, end], UTC JD: the first of
+    /// [`Track::culminations`]' upper crossings, without building the lists.
+    pub(crate) fn first_upper_culmination(&self, start: f64, end: f64) -> Option<f64> {
+        let day = 1.0 / GMST_RATE_PER_UT1_DAY;
+        let t0 = start - self.ha_rad(start) / TAU * day;
+        let mut k = -1.0;
+        while t0 + k * day <= end + day {
+            let t = t0 + k * day;
+            if t >= start && t <= end {
+                return Some(t);
+            }
+            k += 1.0;
+        }
+        None
+    }
+
     /// Upper and lower meridian crossings within [start, end], UTC JD: (upper, lower).
     pub(crate) fn culminations(&self, start: f64, end: f64) -> (Vec<f64>, Vec<f64>) {
         let day = 1.0 / GMST_RATE_PER_UT1_DAY;
@@ -608,8 +624,6 @@ fn usable_intervals_on_track(
     tables: &SkyTables,
 ) -> (Vec<Interval>, Vec<Reason>) {
     let block = *block;
-    let (upper, lower) = track.culminations(block.start, block.end);
-    let extrema: Vec<f64> = upper.iter().chain(lower.iter()).copied().collect();
     let step = DEFAULT_STEP_DAYS;
     let mut reasons = Vec::new();
     let mut usable = vec![block];
@@ -636,6 +650,8 @@ fn usable_intervals_on_track(
         );
     }
     if !site.horizon.is_empty() {
+        let (upper, lower) = track.culminations(block.start, block.end);
+        let extrema: Vec<f64> = upper.iter().chain(lower.iter()).copied().collect();
         let f = |t: f64| {
             let (alt, az) = track.alt_az_deg(t);
             alt - site.horizon.min_alt_deg(az)
@@ -649,6 +665,7 @@ fn usable_intervals_on_track(
             (ha_h - east_h).min(west_h - ha_h)
         };
         // The hour angle wraps at +-12 h (lower culmination): sample there too.
+        let lower = track.culminations(block.start, block.end).1;
         let ok = intervals_where_nonnegative(&f, block.start, block.end, step, &lower);
         apply(ok, Reason::HourAngleLimit, &mut usable);
     }
@@ -952,11 +969,7 @@ fn evaluate(p: &Pairing<'_>, t: Predicted, night: &Night) -> Option<Event> {
         moon_alt_mid_deg: moon_alt,
         moon_sep_deg: moon_sep,
         moon_illum,
-        meridian_utc: track
-            .culminations(block.start, block.end)
-            .0
-            .first()
-            .copied(),
+        meridian_utc: track.first_upper_culmination(block.start, block.end),
         reasons,
         noise,
     })
@@ -1378,6 +1391,28 @@ mod index_tests {
             values.sort_unstable();
             let expected = values.partition_point(|&v| v <= t);
             prop_assert_eq!(partition_point_near(&values, guess, |&v| v <= t), expected);
+        }
+
+        /// The first upper culmination found without lists is the first of the list.
+        #[test]
+        fn first_upper_culmination_is_the_first_of_the_list(
+            ra in 0.0f64..std::f64::consts::TAU,
+            dec in -1.5f64..1.5,
+            lat in -1.5f64..1.5,
+            lon in -std::f64::consts::PI..std::f64::consts::PI,
+            start in 2_461_000.0f64..2_461_400.0,
+            len in 0.0f64..3.0,
+        ) {
+            let track = Track {
+                ra_rad: ra,
+                dec_rad: dec,
+                eqeq_rad: 0.0,
+                lon_rad: lon,
+                sc_dec: (dec.sin(), dec.cos()),
+                sc_lat: (lat.sin(), lat.cos()),
+            };
+            let (upper, _) = track.culminations(start, start + len);
+            prop_assert_eq!(track.first_upper_culmination(start, start + len), upper.first().copied());
         }
 
         /// The night of an instant by its index guess, for windows a day apart starting at any time of day.
