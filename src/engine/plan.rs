@@ -1145,8 +1145,9 @@ impl<'a> Planner<'a> {
     }
 }
 
-/// The events of one target at one site over the nights; and the timing sigma (minutes) if its ephemeris is
-/// lost in the range. Transits whose block misses the night's dark time are dropped before any geometry unless
+/// The events of one target at one site over the nights; and, if its ephemeris is lost in the range, the timing
+/// sigma (minutes) of its first transit in the range that is lost (in daylight or not, so the figure does not
+/// depend on the filters below or on `include_unobservable`). Transits whose block misses the night's dark time are dropped before any geometry unless
 /// the options ask for unobservable events.
 fn events_of_target(
     p: &Pairing<'_>,
@@ -1170,6 +1171,7 @@ fn events_of_target(
     let half = target.half_duration_days();
     let mut events = Vec::new();
     let mut lost_sigma = None;
+    let lost_limit_days = LOST_SIGMA_FRACTION_OF_PERIOD * eph.period_days;
     // The epochs are consecutive, so the first one in range is near (start - first mid) / P.
     let from = range.start - 0.001;
     let guess = mids.first().map_or(0.0, |&(_, t0)| {
@@ -1180,6 +1182,13 @@ fn events_of_target(
         .iter()
         .take_while(|&&(_, t)| t < range.end + 0.001)
     {
+        // Lost or not is said of the first transit in the range, whether or not it falls in the dark.
+        if lost_sigma.is_none() {
+            let sigma = eph.sigma_days(n);
+            if sigma > lost_limit_days {
+                lost_sigma = Some(sigma * 1440.0);
+            }
+        }
         if !opts.include_unobservable {
             // Cheap first look with the geocentric time (the site term is <= 21 ms; 1 s of margin): skip
             // transits whose in-transit part misses the dark time of the neighbouring nights, or meets it only
@@ -1213,10 +1222,7 @@ fn events_of_target(
         }
         let night = &nights[k - 1];
         let sigma = eph.sigma_days(n);
-        let is_lost = sigma > LOST_SIGMA_FRACTION_OF_PERIOD * eph.period_days;
-        if is_lost && lost_sigma.is_none() {
-            lost_sigma = Some(sigma * 1440.0);
-        }
+        let is_lost = sigma > lost_limit_days;
         if !opts.include_unobservable {
             if is_lost {
                 continue;
