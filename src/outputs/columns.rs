@@ -543,6 +543,12 @@ pub fn push_json_object<'v, F>(
 /// A JSON string literal (RFC 8259 section 7 escapes).
 fn push_json_text(s: &str, out: &mut String) {
     out.push('"');
+    // Most text (every column name) needs no escape: copied whole.
+    if s.bytes().all(|b| b >= 0x20 && b != b'"' && b != b'\\') {
+        out.push_str(s);
+        out.push('"');
+        return;
+    }
     for ch in s.chars() {
         match ch {
             '"' => out.push_str("\\\""),
@@ -580,10 +586,7 @@ fn push_json_value(v: &Value<'_>, out: &mut String) {
             out.push('"');
         }
         // As serde_json prints a double (2.0, not 2), so that both forms parse to the same value.
-        Value::Input(Some(x)) if x.is_finite() => match serde_json::Number::from_f64(*x) {
-            Some(n) => out.push_str(&n.to_string()),
-            None => out.push_str("null"),
-        },
+        Value::Input(Some(x)) if x.is_finite() => push_json_number(*x, out),
         Value::Reasons(rs) => {
             out.push('[');
             for (k, r) in rs.iter().enumerate() {
@@ -595,6 +598,24 @@ fn push_json_value(v: &Value<'_>, out: &mut String) {
             out.push(']');
         }
         _ => out.push_str("null"),
+    }
+}
+
+/// A double as serde_json prints it (shortest round-trip digits, `2.0` for two): the shortest text of
+/// [`push_shortest`] with `.0` added to whole numbers, where serde_json would not use an exponent; serde_json
+/// itself for the rest.
+fn push_json_number(x: f64, out: &mut String) {
+    if x == 0.0 || (1e-4..1e6).contains(&x.abs()) {
+        let from = out.len();
+        push_shortest(x, out);
+        if !out[from..].contains('.') {
+            out.push_str(".0");
+        }
+        return;
+    }
+    match serde_json::Number::from_f64(x) {
+        Some(n) => out.push_str(&n.to_string()),
+        None => out.push_str("null"),
     }
 }
 
@@ -756,6 +777,30 @@ mod tests {
     }
 
     proptest::proptest! {
+        /// Input numbers print in JSON exactly as serde_json prints them, over the magnitudes inputs take.
+        #[test]
+        fn json_numbers_are_serde_jsons(
+            m in -1_000_000_000i64..1_000_000_000,
+            k in 0i32..12,
+            raw in proptest::num::f64::NORMAL,
+        ) {
+            for x in [m as f64 / 10f64.powi(k), raw, (m as f64).sqrt(), -0.0, 0.0] {
+                if let Some(n) = serde_json::Number::from_f64(x) {
+                    let mut s = String::new();
+                    push_json_number(x, &mut s);
+                    proptest::prop_assert_eq!(s, n.to_string(), "{}", x);
+                }
+            }
+        }
+
+        /// Column names and texts come out as serde_json writes them.
+        #[test]
+        fn json_text_is_serde_jsons(t in "\\PC{0,12}|[ -~]{0,20}") {
+            let mut s = String::new();
+            push_json_text(&t, &mut s);
+            proptest::prop_assert_eq!(s, serde_json::to_string(&t).unwrap_or_default());
+        }
+
         /// Away from ties, the fixed text is the formatter's, for every decimal count it serves.
         #[test]
         fn fixed_text_is_the_formatters_away_from_ties(x in -2.0e6f64..2.0e6, d in 0u32..=9) {
