@@ -118,6 +118,16 @@ fn pipe_events(
 ) -> Result<std::collections::BTreeMap<usize, f64>> {
     use rayon::prelude::*;
     let (tx, rx) = std::sync::mpsc::sync_channel::<Vec<String>>(2);
+    // Written text buffers come back here for the next chunks: fresh ones would be new pages from the
+    // system, zeroed by the kernel, for every megabyte of output.
+    let spare: std::sync::Mutex<Vec<String>> = std::sync::Mutex::new(Vec::new());
+    let take_buffer = || {
+        spare
+            .lock()
+            .ok()
+            .and_then(|mut v| v.pop())
+            .unwrap_or_default()
+    };
     std::thread::scope(|scope| -> Result<_> {
         let producer = scope.spawn(|| {
             // Owned here, so the channel closes when planning ends.
@@ -132,7 +142,7 @@ fn pipe_events(
                     let parts: Vec<String> = sp
                         .events
                         .par_chunks(2048)
-                        .map(|c| format_events(c, sites, targets, format))
+                        .map(|c| format_events(c, sites, targets, format, take_buffer()))
                         .filter(|p| !p.is_empty())
                         .collect();
                     if let Some(b) = bar {
@@ -156,6 +166,15 @@ fn pipe_events(
                     }
                     first = false;
                     w.write_all(p.as_bytes())?;
+                }
+                if let Ok(mut v) = spare.lock() {
+                    // Enough for the chunks in flight; the rest are freed.
+                    for mut p in parts {
+                        if v.len() < 64 {
+                            p.clear();
+                            v.push(p);
+                        }
+                    }
                 }
             }
             Ok(())
@@ -192,14 +211,17 @@ fn stream_head(sites: &[Site], opts: &PlanOptions, format: Format) -> Result<Str
     })
 }
 
-/// One chunk of events as CSV or ECSV lines, or JSON objects one per line (comma-separated, no trailing comma).
+/// One chunk of events as CSV or ECSV lines, or JSON objects one per line (comma-separated, no trailing comma),
+/// appended to `s` (an empty buffer, perhaps with room from earlier chunks).
 fn format_events(
     events: &[dipwatch::engine::plan::Event],
     sites: &[Site],
     targets: &[Target],
     format: Format,
+    mut s: String,
 ) -> String {
-    let mut s = String::with_capacity(events.len() * 512);
+    let per_event = if format == Format::Json { 1536 } else { 512 };
+    s.reserve(events.len() * per_event);
     match format {
         Format::Json => {
             for (i, e) in events.iter().enumerate() {
