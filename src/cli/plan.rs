@@ -224,6 +224,7 @@ fn format_events(
     s.reserve(events.len() * per_event);
     match format {
         Format::Json => {
+            let keys = dipwatch::outputs::columns::json_keys(report::EVENT_COLUMNS);
             for (i, e) in events.iter().enumerate() {
                 if i > 0 {
                     s.push_str(",\n");
@@ -232,6 +233,7 @@ fn format_events(
                 let row = report::EventRow::of(e, sites, targets);
                 dipwatch::outputs::columns::push_json_object(
                     report::EVENT_COLUMNS,
+                    &keys,
                     |f| f(&row),
                     &mut s,
                 );

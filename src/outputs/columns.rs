@@ -521,20 +521,33 @@ fn push_csv_value(v: &Value<'_>, out: &mut String) {
     }
 }
 
+/// The key text of each column in a compact JSON object: `"name":`, with the comma before every key but the
+/// first. Made once for many rows of [`push_json_object`].
+pub fn json_keys<F>(columns: &[Column<F>]) -> Vec<String> {
+    columns
+        .iter()
+        .enumerate()
+        .map(|(i, c)| {
+            let mut k = String::from(if i > 0 { "," } else { "" });
+            push_json_text(c.name, &mut k);
+            k.push(':');
+            k
+        })
+        .collect()
+}
+
 /// Append one row as a compact JSON object `{"name":value,...}` without building a value tree: the same
 /// values as [`insert_json`] gives (numbers printed with their fixed decimals parse to the same doubles).
+/// `keys` is [`json_keys`] of `columns`.
 pub fn push_json_object<'v, F>(
     columns: &[Column<F>],
+    keys: &[String],
     value: impl Fn(&F) -> Value<'v>,
     out: &mut String,
 ) {
     out.push('{');
-    for (i, c) in columns.iter().enumerate() {
-        if i > 0 {
-            out.push(',');
-        }
-        push_json_text(c.name, out);
-        out.push(':');
+    for (c, k) in columns.iter().zip(keys) {
+        out.push_str(k);
         push_json_value(&value(&c.value), out);
     }
     out.push('}');
