@@ -104,7 +104,11 @@ impl SkyTables {
     }
 
     fn frame(&self, t: f64) -> &Frame {
-        let i = ((t - self.first_day_utc).round().max(0.0) as usize).min(self.frames.len() - 1);
+        // The nearest day: rounding half up by truncation (no library call; negative offsets clamp to 0 either way).
+        let x = t - self.first_day_utc;
+        let f = crate::astro::frames::floor_fast(x);
+        let nearest = if x - f >= 0.5 { f + 1.0 } else { f };
+        let i = (nearest.max(0.0) as usize).min(self.frames.len() - 1);
         &self.frames[i]
     }
 

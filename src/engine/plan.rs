@@ -10,7 +10,9 @@ use crate::astro::atmosphere::airmass_kasten_young;
 use crate::astro::barycentric::EarthTable;
 use crate::astro::crossings::{intervals_where_nonnegative, Interval, DEFAULT_STEP_DAYS};
 use crate::astro::frames::GMST_RATE_PER_UT1_DAY;
-use crate::astro::frames::{alt_az_from_hadec_sc, gmst_rad, separation_rad, wrap_pi, Vec3};
+use crate::astro::frames::{
+    alt_az_from_hadec_sc, floor_fast, gmst_rad, separation_rad, wrap_pi, Vec3,
+};
 use crate::astro::tables::SkyTables;
 use crate::astro::time::JdUtc;
 use crate::engine::almanac::{dark_interval, night_window};
@@ -525,8 +527,9 @@ impl AltLimit {
     /// called with each (start, end) pair in order.
     fn runs(&self, ha_a: f64, ha_b: f64, mut each: impl FnMut(f64, f64)) {
         let h0 = self.h0_rad;
-        let k0 = ((ha_a - h0) / TAU).floor() as i64 - 1;
-        let k1 = ((ha_b + h0) / TAU).ceil() as i64 + 1;
+        // floor and ceil (as -floor(-x)) by truncation: no library calls in this per-transit test.
+        let k0 = floor_fast((ha_a - h0) / TAU) as i64 - 1;
+        let k1 = -floor_fast(-(ha_b + h0) / TAU) as i64 + 1;
         for k in k0..=k1 {
             let a = (TAU * k as f64 - h0).max(ha_a);
             let b = (TAU * k as f64 + h0).min(ha_b);
@@ -1266,7 +1269,7 @@ fn partition_point_near<T>(s: &[T], guess: usize, pred: impl Fn(&T) -> bool) -> 
 fn night_after(nights: &[Night], t: f64) -> usize {
     let guess = nights
         .first()
-        .map_or(0.0, |n| (t - n.window.start).floor().max(-1.0) + 1.0);
+        .map_or(0.0, |n| floor_fast(t - n.window.start).max(-1.0) + 1.0);
     partition_point_near(nights, guess as usize, |nt| nt.window.start <= t)
 }
 
