@@ -60,6 +60,30 @@ mod tests {
         }
     }
 
+    proptest::proptest! {
+        /// The sigma over a run of epochs never exceeds the larger of its two ends (the planner checks only
+        /// the ends for a lost ephemeris), whatever the covariance, consistent or not.
+        #[test]
+        fn sigma_peaks_at_an_end_of_any_run_of_epochs(
+            st in 0.0f64..0.01,
+            sp in 0.0f64..1e-4,
+            rho in -1.5f64..1.5,
+            a in -5000i64..5000,
+            len in 0i64..400,
+        ) {
+            let e = Ephemeris {
+                t0_sigma_days: st,
+                period_sigma_days: sp,
+                cov_t0_period_days2: rho * st * sp,
+                ..eph()
+            };
+            let ends = e.sigma_days(a).max(e.sigma_days(a + len));
+            for n in a..=a + len {
+                proptest::prop_assert!(e.sigma_days(n) <= ends * (1.0 + 1e-12) + 1e-18, "epoch {}", n);
+            }
+        }
+    }
+
     #[test]
     fn sigma_grows_with_epoch() {
         let e = eph();

@@ -1181,12 +1181,19 @@ fn events_of_target(
         ((from - t0) / eph.period_days).ceil().max(0.0)
     });
     let first = partition_point_near(mids, guess as usize, |&(_, t)| t < from);
-    for &(n, geo) in mids[first..]
-        .iter()
-        .take_while(|&&(_, t)| t < range.end + 0.001)
-    {
+    let in_range = &mids[first..];
+    let in_range = &in_range[..in_range.partition_point(|&(_, t)| t < range.end + 0.001)];
+    // The timing sigma is the square root of a quadratic in the epoch, so it peaks at an end of the range:
+    // when neither end is lost, no transit in between is, and the per-transit check is skipped.
+    let may_be_lost = match (in_range.first(), in_range.last()) {
+        (Some(&(a, _)), Some(&(b, _))) => {
+            eph.sigma_days(a) > lost_limit_days || eph.sigma_days(b) > lost_limit_days
+        }
+        _ => false,
+    };
+    for &(n, geo) in in_range {
         // Lost or not is said of the first transit in the range, whether or not it falls in the dark.
-        if lost_sigma.is_none() {
+        if may_be_lost && lost_sigma.is_none() {
             let sigma = eph.sigma_days(n);
             if sigma > lost_limit_days {
                 lost_sigma = Some(sigma * 1440.0);
