@@ -24,10 +24,12 @@ pub(super) fn run_plan(args: PlanArgs) -> Result<()> {
     emit(&text, args.output.out.as_deref())
 }
 
-/// Nights planned at a time when streaming CSV: bounds memory at catalogue scale.
-pub(super) const STREAM_CHUNK_NIGHTS: i64 = 32;
+/// Nights planned at a time when streaming: bounds memory at catalogue scale. 64 rather than 32 measured 7%
+/// faster on the benchmark job (fewer chunk boundaries, each a fresh pass over every target) for 116 MiB peak
+/// instead of 88 (CSV; JSON 150).
+pub(super) const STREAM_CHUNK_NIGHTS: i64 = 64;
 
-/// Plan and write CSV, ECSV or JSON site by site and month by month, formatting the events in parallel and never
+/// Plan and write CSV, ECSV or JSON site by site and [`STREAM_CHUNK_NIGHTS`] nights at a time, formatting the events in parallel and never
 /// holding the whole plan: the output is that of `report::plan_csv` (or the ECSV, or the same JSON document as
 /// `report::plan_json`, one event per line) of the whole plan. A progress bar shows on a terminal for long runs.
 pub(super) fn stream_plan(
@@ -54,7 +56,7 @@ pub(super) fn stream_plan(
         let b = indicatif::ProgressBar::new((chunks.len() * planner.station_count()) as u64);
         b.set_style(
             indicatif::ProgressStyle::with_template(
-                "{msg} [{bar:30}] {pos}/{len} telescope-months, {eta} left",
+                "{msg} [{bar:30}] {pos}/{len} telescope-chunks of nights, {eta} left",
             )
             .unwrap_or_else(|_| indicatif::ProgressStyle::default_bar()),
         );
@@ -104,7 +106,7 @@ pub(super) fn stream_plan(
     result
 }
 
-/// Plan and format every telescope-month of the run and write it to `w`, computing overlapped with writing:
+/// Plan and format every telescope-chunk of nights of the run and write it to `w`, computing overlapped with writing:
 /// a producer thread plans and formats each chunk (in parallel, on rayon's pool) and hands the text over a
 /// bounded channel while this thread writes it. Two chunks in flight bound the memory. Returns the lost
 /// ephemerides (target index to sigma in minutes).
