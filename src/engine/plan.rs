@@ -1182,7 +1182,9 @@ fn events_of_target(
     });
     let first = partition_point_near(mids, guess as usize, |&(_, t)| t < from);
     let in_range = &mids[first..];
-    let in_range = &in_range[..in_range.partition_point(|&(_, t)| t < range.end + 0.001)];
+    let to = range.end + 0.001;
+    let count_guess = ((to - from) / eph.period_days).max(0.0) as usize;
+    let in_range = &in_range[..partition_point_near(in_range, count_guess, |&(_, t)| t < to)];
     // The timing sigma is the square root of a quadratic in the epoch, so it peaks at an end of the range:
     // when neither end is lost, no transit in between is, and the per-transit check is skipped.
     let may_be_lost = match (in_range.first(), in_range.last()) {
