@@ -188,8 +188,7 @@ pub fn moonlight_v_mag(moon: &MoonSky, target_alt_deg: f64, k_v: f64) -> Option<
     let alpha = (2.0 * moon.illum.clamp(0.0, 1.0) - 1.0).acos().to_degrees();
     let i_moon = pow10(-0.4 * (3.84 + 0.026 * alpha + 4e-9 * alpha.powi(4)));
     let rho = moon.sep_deg.clamp(0.0, 180.0);
-    let f =
-        pow10(5.36) * (1.06 + rho.to_radians().cos().powi(2)) + pow10(6.15 - rho / 40.0);
+    let f = pow10(5.36) * (1.06 + rho.to_radians().cos().powi(2)) + pow10(6.15 - rho / 40.0);
     let (z_moon, z) = (
         90.0 - moon.alt_deg,
         (90.0 - target_alt_deg).clamp(0.0, 90.0),
