@@ -1120,22 +1120,31 @@ impl<'a> Planner<'a> {
                 events_of_target(&pairing, &self.mids[ti], &nights, &range)
             })
             .collect();
-        let total: usize = per_target.iter().map(|(e, _)| e.len()).sum();
-        let mut events = Vec::with_capacity(total);
-        let mut lost = Vec::new();
-        for (ti, (evs, lost_sigma)) in per_target.into_iter().enumerate() {
-            if let Some(sigma) = lost_sigma {
-                lost.push((ti, sigma));
-            }
-            events.extend(evs);
-        }
-        // (block start, target, epoch) is unique, so the unstable sort is deterministic.
-        events.par_sort_unstable_by(|a, b| {
-            a.block_start_utc
-                .total_cmp(&b.block_start_utc)
-                .then(a.target_index.cmp(&b.target_index))
-                .then(a.epoch.cmp(&b.epoch))
+        let lost: Vec<(usize, f64)> = per_target
+            .iter()
+            .enumerate()
+            .filter_map(|(ti, (_, sigma))| sigma.map(|s| (ti, s)))
+            .collect();
+        // Sorted by (block start, target, epoch), which is unique, so the unstable sort is deterministic. The
+        // small keys are sorted and the (368-byte) events copied once into place in parallel: moving them
+        // through a sort, or one by one into a single list, cost more and ran partly serially.
+        let mut keys: Vec<(f64, usize, i64, usize)> = per_target
+            .iter()
+            .enumerate()
+            .flat_map(|(ti, (evs, _))| {
+                evs.iter()
+                    .enumerate()
+                    .map(move |(pos, e)| (e.block_start_utc, ti, e.epoch, pos))
+            })
+            .collect();
+        keys.par_sort_unstable_by(|a, b| {
+            a.0.total_cmp(&b.0).then(a.1.cmp(&b.1)).then(a.2.cmp(&b.2))
         });
+        let events: Vec<Event> = keys
+            .par_iter()
+            .map(|&(_, ti, _, pos)| per_target[ti].0[pos].clone())
+            .collect();
+        per_target.into_par_iter().for_each(drop);
         (
             SitePlan {
                 site_index: si,
