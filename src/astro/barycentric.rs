@@ -156,7 +156,6 @@ impl EarthTable {
         }
     }
 
-    /// Light-time delay of the observer relative to the barycentre (or the Sun) along `target`, days.
     /// UTC of a TDB instant, as [`jd_utc_from_tdb`] but with TDB - TT interpolated in the table (4-point
     /// Lagrange on daily nodes: within 1e-9 s of the series, whose terms have periods of a year or more) and
     /// TAI - UTC taken once when no leap second falls inside the table.
@@ -172,6 +171,7 @@ impl EarthTable {
         }
     }
 
+    /// Light-time delay of the observer relative to the barycentre (or the Sun) along `target`, days.
     fn delay_days(&self, jd_tdb: f64, target: &Vec3, observer_au: &Vec3, helio: bool) -> f64 {
         let r = if helio {
             self.earth_helio_au(jd_tdb)

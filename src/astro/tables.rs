@@ -244,7 +244,7 @@ impl SkyTables {
         let zenith = [cl * ca, cl * sa, sl];
         let sin_alt = |v: &Vec3, len: f64| (dot(v, &zenith) / len).clamp(-1.0, 1.0).asin();
         let h = self.earth.earth_helio_au(self.tdb(t));
-        let sun_au = (h[0] * h[0] + h[1] * h[1] + h[2] * h[2]).sqrt();
+        let sun_au = norm(&h);
         let sun = self.apparent_vec(&[-h[0] / sun_au, -h[1] / sun_au, -h[2] / sun_au], t);
         let sun_alt = sin_alt(&sun, norm(&sun));
         let geo = self.moon_geocentric_km(t);

@@ -29,8 +29,8 @@ pub(super) fn run_plan(args: PlanArgs) -> Result<()> {
 /// instead of 88 (CSV; JSON 150).
 pub(super) const STREAM_CHUNK_NIGHTS: i64 = 64;
 
-/// Plan and write CSV, ECSV or JSON site by site and [`STREAM_CHUNK_NIGHTS`] nights at a time, formatting the events in parallel and never
-/// holding the whole plan: the output is that of `report::plan_csv` (or the ECSV, or the same JSON document as
+/// Plan and write CSV, ECSV or JSON site by site and [`STREAM_CHUNK_NIGHTS`] nights at a time, formatting the
+/// events in parallel and never holding the whole plan: the output is that of `report::plan_csv` (or the ECSV, or the same JSON document as
 /// `report::plan_json`, one event per line) of the whole plan. A progress bar shows on a terminal for long runs.
 pub(super) fn stream_plan(
     sites: &[Site],
@@ -106,8 +106,8 @@ pub(super) fn stream_plan(
     result
 }
 
-/// Plan and format every telescope-chunk of nights of the run and write it to `w`, computing overlapped with writing:
-/// a producer thread plans and formats each chunk (in parallel, on rayon's pool) and hands the text over a
+/// Plan and format every telescope-chunk of nights of the run and write it to `w`, computing overlapped with
+/// writing: a producer thread plans and formats each chunk (in parallel, on rayon's pool) and hands the text over a
 /// bounded channel while this thread writes it. Two chunks in flight bound the memory. Returns the lost
 /// ephemerides (target index to sigma in minutes).
 fn pipe_events(

@@ -542,12 +542,6 @@ impl AltLimit {
     /// Whether the target is at or above the limit at some time in `w` (what [`alt_intervals`] being
     /// non-empty says, without building the list).
     fn met_within(&self, track: &Track, w: &Interval) -> bool {
-        if self.cos_h0 <= -1.0 {
-            return true;
-        }
-        if self.cos_h0 >= 1.0 {
-            return false;
-        }
         let ha_a = track.ha_rad(w.start);
         self.met_between(ha_a, ha_a + TAU * GMST_RATE_PER_UT1_DAY * (w.end - w.start))
     }
@@ -1169,8 +1163,8 @@ impl<'a> Planner<'a> {
 
 /// The events of one target at one site over the nights; and, if its ephemeris is lost in the range, the timing
 /// sigma (minutes) of its first transit in the range that is lost (in daylight or not, so the figure does not
-/// depend on the filters below or on `include_unobservable`). Transits whose block misses the night's dark time are dropped before any geometry unless
-/// the options ask for unobservable events.
+/// depend on the filters below or on `include_unobservable`). Transits whose block misses the night's dark
+/// time are dropped before any geometry unless the options ask for unobservable events.
 fn events_of_target(
     p: &Pairing<'_>,
     mids: &[(i64, f64)],
