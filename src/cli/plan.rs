@@ -119,10 +119,10 @@ fn pipe_events(
     w: &mut dyn Write,
 ) -> Result<std::collections::BTreeMap<usize, f64>> {
     use rayon::prelude::*;
-    let (tx, rx) = std::sync::mpsc::sync_channel::<Vec<String>>(2);
+    let (tx, rx) = std::sync::mpsc::sync_channel::<Vec<Vec<u8>>>(2);
     // Written text buffers come back here for the next chunks: fresh ones would be new pages from the
     // system, zeroed by the kernel, for every megabyte of output.
-    let spare: std::sync::Mutex<Vec<String>> = std::sync::Mutex::new(Vec::new());
+    let spare: std::sync::Mutex<Vec<Vec<u8>>> = std::sync::Mutex::new(Vec::new());
     let take_buffer = || {
         spare
             .lock()
@@ -141,7 +141,7 @@ fn pipe_events(
                     for (ti, sigma) in chunk_lost {
                         lost.entry(ti).or_insert(sigma);
                     }
-                    let parts: Vec<String> = sp
+                    let parts: Vec<Vec<u8>> = sp
                         .events
                         .par_chunks(2048)
                         .map(|c| format_events(c, sites, targets, format, take_buffer()))
@@ -167,7 +167,7 @@ fn pipe_events(
                         w.write_all(b",\n")?;
                     }
                     first = false;
-                    w.write_all(p.as_bytes())?;
+                    w.write_all(p)?;
                 }
                 if let Ok(mut v) = spare.lock() {
                     // Enough for the chunks in flight; the rest are freed.
@@ -220,8 +220,8 @@ fn format_events(
     sites: &[Site],
     targets: &[Target],
     format: Format,
-    mut s: String,
-) -> String {
+    mut s: Vec<u8>,
+) -> Vec<u8> {
     let per_event = if format == Format::Json { 1536 } else { 512 };
     s.reserve(events.len() * per_event);
     match format {
@@ -229,9 +229,9 @@ fn format_events(
             let keys = dipwatch::outputs::columns::json_keys(report::EVENT_COLUMNS);
             for (i, e) in events.iter().enumerate() {
                 if i > 0 {
-                    s.push_str(",\n");
+                    s.extend_from_slice(b",\n");
                 }
-                s.push_str("    ");
+                s.extend_from_slice(b"    ");
                 let row = report::EventRow::of(e, sites, targets);
                 dipwatch::outputs::columns::push_json_object(
                     report::EVENT_COLUMNS,

@@ -165,6 +165,96 @@ impl Reason {
     }
 }
 
+impl Reason {
+    /// Every reason, in the order outputs list them.
+    pub const ALL: [Reason; 10] = [
+        Reason::Daylight,
+        Reason::BelowAltitudeLimit,
+        Reason::AboveAltitudeLimit,
+        Reason::BelowHorizonProfile,
+        Reason::HourAngleLimit,
+        Reason::MoonTooClose,
+        Reason::CoverageBelowMinimum,
+        Reason::InTransitBelowMinimum,
+        Reason::SnrBelowMinimum,
+        Reason::EphemerisLost,
+    ];
+
+    fn bit(self) -> u16 {
+        1 << self as u16
+    }
+}
+
+/// The reasons of one event, as a set of bits: each reason at most once, listed in the order of
+/// [`Reason::ALL`]. A plain value (no heap memory), so events are copied without allocating.
+#[derive(Clone, Copy, Default, PartialEq, Eq, Hash)]
+pub struct ReasonSet(u16);
+
+impl ReasonSet {
+    /// No reasons.
+    pub const fn new() -> ReasonSet {
+        ReasonSet(0)
+    }
+
+    /// Add `r` (no change if it is already in the set).
+    pub fn insert(&mut self, r: Reason) {
+        self.0 |= r.bit();
+    }
+
+    /// Whether `r` is in the set.
+    pub fn contains(&self, r: &Reason) -> bool {
+        self.0 & r.bit() != 0
+    }
+
+    /// Whether the set is empty.
+    pub fn is_empty(&self) -> bool {
+        self.0 == 0
+    }
+
+    /// How many reasons the set holds.
+    pub fn len(&self) -> usize {
+        self.0.count_ones() as usize
+    }
+
+    /// The reasons in the order of [`Reason::ALL`].
+    pub fn iter(self) -> impl Iterator<Item = Reason> {
+        Reason::ALL.into_iter().filter(move |r| self.contains(r))
+    }
+
+    /// The reasons as a list, in the order of [`Reason::ALL`].
+    pub fn to_vec(self) -> Vec<Reason> {
+        self.iter().collect()
+    }
+}
+
+impl FromIterator<Reason> for ReasonSet {
+    fn from_iter<I: IntoIterator<Item = Reason>>(iter: I) -> ReasonSet {
+        let mut set = ReasonSet::new();
+        for r in iter {
+            set.insert(r);
+        }
+        set
+    }
+}
+
+impl std::fmt::Debug for ReasonSet {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.debug_list().entries(self.iter()).finish()
+    }
+}
+
+impl PartialEq<Vec<Reason>> for ReasonSet {
+    fn eq(&self, other: &Vec<Reason>) -> bool {
+        self.to_vec() == *other
+    }
+}
+
+impl serde::Serialize for ReasonSet {
+    fn serialize<S: serde::Serializer>(&self, s: S) -> Result<S::Ok, S::Error> {
+        s.collect_seq(self.iter())
+    }
+}
+
 /// One night at one site.
 #[derive(Debug, Clone, PartialEq)]
 pub struct Night {
@@ -177,7 +267,7 @@ pub struct Night {
 }
 
 /// One transit at one site, with its geometry and verdict. Times are UTC Julian Dates.
-#[derive(Debug, Clone, PartialEq)]
+#[derive(Debug, Clone, Copy, PartialEq)]
 pub struct Event {
     /// Index of the target in the input list.
     pub target_index: usize,
@@ -251,7 +341,7 @@ pub struct Event {
     /// Upper meridian crossing inside the block, UTC JD (a flip for German equatorial mounts).
     pub meridian_utc: Option<f64>,
     /// Why (part of) the block is unusable.
-    pub reasons: Vec<Reason>,
+    pub reasons: ReasonSet,
     /// Expected noise and transit SNR, when the site has a photometric set-up and the target a magnitude.
     pub noise: Option<crate::engine::noise::EventNoise>,
 }
@@ -616,7 +706,7 @@ pub fn usable_intervals(
     target: &Target,
     night: &Night,
     block: &Interval,
-) -> (Vec<Interval>, Vec<Reason>) {
+) -> (Vec<Interval>, ReasonSet) {
     let mid = 0.5 * (block.start + block.end);
     let tables = SkyTables::new(block.start - 1.0, block.end + 1.0);
     let track = Track::new(&target.icrs_at(mid), mid, site, &tables);
@@ -629,14 +719,14 @@ fn usable_intervals_on_track(
     night: &Night,
     block: &Interval,
     tables: &SkyTables,
-) -> (Vec<Interval>, Vec<Reason>) {
+) -> (Vec<Interval>, ReasonSet) {
     let block = *block;
     let step = DEFAULT_STEP_DAYS;
-    let mut reasons = Vec::new();
+    let mut reasons = ReasonSet::new();
     let mut usable = vec![block];
     let mut apply = |list: Vec<Interval>, reason: Reason, usable: &mut Vec<Interval>| {
         if !covers(&list, &block) {
-            reasons.push(reason);
+            reasons.insert(reason);
         }
         *usable = intersect_lists(usable, &list);
     };
@@ -772,24 +862,22 @@ fn meets_criteria(
     verdict: Verdict,
     coverage: f64,
     lost: bool,
-    reasons: &mut Vec<Reason>,
+    reasons: &mut ReasonSet,
 ) -> bool {
     if lost {
-        reasons.push(Reason::EphemerisLost);
+        reasons.insert(Reason::EphemerisLost);
     }
     let mut observable = verdict != Verdict::NotObservable && !lost;
     if observable && coverage < p.opts.min_coverage {
-        reasons.push(Reason::CoverageBelowMinimum);
+        reasons.insert(Reason::CoverageBelowMinimum);
         observable = false;
     }
     let in_transit_min = coverage * p.target.t14_hours * 60.0;
     let needed_min = p.opts.min_in_transit_min.min(p.target.t14_hours * 60.0);
     if observable && in_transit_min < needed_min - EDGE_SLACK_DAYS * 1440.0 {
-        reasons.push(Reason::InTransitBelowMinimum);
+        reasons.insert(Reason::InTransitBelowMinimum);
         observable = false;
     }
-    reasons.sort();
-    reasons.dedup();
     observable
 }
 
@@ -927,7 +1015,7 @@ fn evaluate(p: &Pairing<'_>, t: Predicted, night: &Night) -> Option<Event> {
         && opts.min_snr > 0.0
         && noise.and_then(|n| n.snr).is_some_and(|x| x < opts.min_snr)
     {
-        reasons.push(Reason::SnrBelowMinimum);
+        reasons.insert(Reason::SnrBelowMinimum);
         observable = false;
     }
     if !observable && !opts.include_unobservable {
@@ -1372,7 +1460,7 @@ pub(crate) mod tests_support {
             moon_sep_deg: 90.0,
             moon_illum: 0.5,
             meridian_utc: None,
-            reasons: Vec::new(),
+            reasons: ReasonSet::new(),
             noise: None,
         }
     }

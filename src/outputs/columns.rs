@@ -5,7 +5,7 @@
 
 use super::{floor_to, round};
 use crate::astro::civil::{push_rfc3339_utc, rfc3339_utc};
-use crate::engine::plan::{Event, Reason};
+use crate::engine::plan::{Event, ReasonSet};
 use crate::inputs::sites::Site;
 use crate::inputs::targets::Target;
 
@@ -57,7 +57,7 @@ pub enum Value<'a> {
     /// A number from the inputs, printed as given (shortest form); may be missing.
     Input(Option<f64>),
     /// Reason labels: joined with `;` in CSV, an array in JSON.
-    Reasons(&'a [Reason]),
+    Reasons(ReasonSet),
     /// Missing: empty in CSV, null in JSON.
     Null,
 }
@@ -327,7 +327,7 @@ pub const EVENT_COLUMNS: &[Column<EventValue>] = &[
     Column {
         name: "reasons",
         meta: Meta { datatype: "string", unit: None, description: "limits that cut the block, separated by ;" },
-        value: |r| Value::Reasons(&r.event.reasons),
+        value: |r| Value::Reasons(r.event.reasons),
     },
 ];
 
@@ -356,11 +356,11 @@ pub fn push_header<F>(columns: &[Column<F>], out: &mut String) {
 pub fn push_csv_fields<'v, F>(
     columns: &[Column<F>],
     value: impl Fn(&F) -> Value<'v>,
-    out: &mut String,
+    out: &mut Vec<u8>,
 ) {
     for (i, c) in columns.iter().enumerate() {
         if i > 0 {
-            out.push(',');
+            out.push(b',');
         }
         push_csv_value(&value(&c.value), out);
     }
@@ -414,7 +414,7 @@ pub fn metas<F>(columns: &[Column<F>]) -> impl Iterator<Item = (&'static str, &M
 pub fn push_ecsv_fields<'v, F>(
     columns: &[Column<F>],
     value: impl Fn(&F) -> Value<'v>,
-    out: &mut String,
+    out: &mut Vec<u8>,
 ) {
     let ecsv_value = |f: &F| match value(f) {
         Value::Bool(b) => Value::Text(if b { "True" } else { "False" }),
@@ -425,9 +425,15 @@ pub fn push_ecsv_fields<'v, F>(
 
 /// ECSV of events: the header and one line per event.
 pub fn events_ecsv(events: &[Event], sites: &[Site], targets: &[Target]) -> String {
-    let mut out = ecsv_event_header();
+    let mut out = ecsv_event_header().into_bytes();
     push_event_ecsv_rows(events, sites, targets, &mut out);
-    out
+    into_text(out)
+}
+
+/// The text of bytes that the row writers of this module appended. They append only whole UTF-8 texts (input
+/// strings and ASCII), so nothing is replaced; invalid bytes, were there any, would become U+FFFD.
+pub fn into_text(bytes: Vec<u8>) -> String {
+    String::from_utf8(bytes).unwrap_or_else(|e| String::from_utf8_lossy(e.as_bytes()).into_owned())
 }
 
 /// The ECSV header of events (see [`push_ecsv_header`]).
@@ -442,21 +448,26 @@ pub fn push_event_ecsv_rows(
     events: &[Event],
     sites: &[Site],
     targets: &[Target],
-    out: &mut String,
+    out: &mut Vec<u8>,
 ) {
     for e in events {
         let row = EventRow::of(e, sites, targets);
         push_ecsv_fields(EVENT_COLUMNS, |f| f(&row), out);
-        out.push('\n');
+        out.push(b'\n');
     }
 }
 
 /// Append one CSV line per event: the fields of [`EVENT_COLUMNS`].
-pub fn push_event_csv_rows(events: &[Event], sites: &[Site], targets: &[Target], out: &mut String) {
+pub fn push_event_csv_rows(
+    events: &[Event],
+    sites: &[Site],
+    targets: &[Target],
+    out: &mut Vec<u8>,
+) {
     for e in events {
         let row = EventRow::of(e, sites, targets);
         push_csv_fields(EVENT_COLUMNS, |f| f(&row), out);
-        out.push('\n');
+        out.push(b'\n');
     }
 }
 
@@ -477,12 +488,12 @@ pub fn event_json(row: &EventRow<'_>) -> serde_json::Map<String, serde_json::Val
 
 /// One CSV value. Numbers use fixed decimals without the general float formatter; times and dates allocate
 /// nothing.
-fn push_csv_value(v: &Value<'_>, out: &mut String) {
+fn push_csv_value(v: &Value<'_>, out: &mut Vec<u8>) {
     match v {
         Value::Text(s) => push_csv_text(s, out),
         Value::Owned(s) => push_csv_text(s, out),
         Value::Int(i) => push_fixed(*i as f64, 0, out),
-        Value::Bool(b) => out.push_str(if *b { "true" } else { "false" }),
+        Value::Bool(b) => out.extend_from_slice(if *b { "true" } else { "false" }.as_bytes()),
         Value::Fixed(x, d) => push_fixed(*x, *d, out),
         Value::FloorFixed(x, d) => push_fixed(floor_to(*x, *d as i32), *d, out),
         Value::OptFixed(x, d) => {
@@ -499,9 +510,9 @@ fn push_csv_value(v: &Value<'_>, out: &mut String) {
         Value::Date(d) => {
             use chrono::Datelike;
             push_digits(d.year().max(0) as u64, 4, out);
-            out.push('-');
+            out.push(b'-');
             push_digits(u64::from(d.month()), 2, out);
-            out.push('-');
+            out.push(b'-');
             push_digits(u64::from(d.day()), 2, out);
         }
         Value::Input(x) => {
@@ -512,9 +523,9 @@ fn push_csv_value(v: &Value<'_>, out: &mut String) {
         Value::Reasons(rs) => {
             for (k, r) in rs.iter().enumerate() {
                 if k > 0 {
-                    out.push(';');
+                    out.push(b';');
                 }
-                out.push_str(r.label());
+                out.extend_from_slice(r.label().as_bytes());
             }
         }
         Value::Null => {}
@@ -523,14 +534,14 @@ fn push_csv_value(v: &Value<'_>, out: &mut String) {
 
 /// The key text of each column in a compact JSON object: `"name":`, with the comma before every key but the
 /// first. Made once for many rows of [`push_json_object`].
-pub fn json_keys<F>(columns: &[Column<F>]) -> Vec<String> {
+pub fn json_keys<F>(columns: &[Column<F>]) -> Vec<Vec<u8>> {
     columns
         .iter()
         .enumerate()
         .map(|(i, c)| {
-            let mut k = String::from(if i > 0 { "," } else { "" });
+            let mut k = if i > 0 { b",".to_vec() } else { Vec::new() };
             push_json_text(c.name, &mut k);
-            k.push(':');
+            k.push(b':');
             k
         })
         .collect()
@@ -541,94 +552,97 @@ pub fn json_keys<F>(columns: &[Column<F>]) -> Vec<String> {
 /// `keys` is [`json_keys`] of `columns`.
 pub fn push_json_object<'v, F>(
     columns: &[Column<F>],
-    keys: &[String],
+    keys: &[Vec<u8>],
     value: impl Fn(&F) -> Value<'v>,
-    out: &mut String,
+    out: &mut Vec<u8>,
 ) {
-    out.push('{');
+    out.push(b'{');
     for (c, k) in columns.iter().zip(keys) {
-        out.push_str(k);
+        out.extend_from_slice(k);
         push_json_value(&value(&c.value), out);
     }
-    out.push('}');
+    out.push(b'}');
 }
 
 /// A JSON string literal (RFC 8259 section 7 escapes).
-fn push_json_text(s: &str, out: &mut String) {
-    out.push('"');
+fn push_json_text(s: &str, out: &mut Vec<u8>) {
+    out.push(b'"');
     // Most text (every column name) needs no escape: copied whole.
     if s.bytes().all(|b| b >= 0x20 && b != b'"' && b != b'\\') {
-        out.push_str(s);
-        out.push('"');
+        out.extend_from_slice(s.as_bytes());
+        out.push(b'"');
         return;
     }
     for ch in s.chars() {
         match ch {
-            '"' => out.push_str("\\\""),
-            '\\' => out.push_str("\\\\"),
-            '\n' => out.push_str("\\n"),
-            '\r' => out.push_str("\\r"),
-            '\t' => out.push_str("\\t"),
+            '"' => out.extend_from_slice("\\\"".as_bytes()),
+            '\\' => out.extend_from_slice("\\\\".as_bytes()),
+            '\n' => out.extend_from_slice("\\n".as_bytes()),
+            '\r' => out.extend_from_slice("\\r".as_bytes()),
+            '\t' => out.extend_from_slice("\\t".as_bytes()),
             c if (c as u32) < 0x20 => {
-                use std::fmt::Write;
+                use std::io::Write;
                 let _ = write!(out, "\\u{:04x}", c as u32);
             }
-            c => out.push(c),
+            c => {
+                let mut utf8 = [0; 4];
+                out.extend_from_slice(c.encode_utf8(&mut utf8).as_bytes());
+            }
         }
     }
-    out.push('"');
+    out.push(b'"');
 }
 
-fn push_json_value(v: &Value<'_>, out: &mut String) {
+fn push_json_value(v: &Value<'_>, out: &mut Vec<u8>) {
     match v {
         Value::Text(s) => push_json_text(s, out),
         Value::Owned(s) => push_json_text(s, out),
         Value::Int(i) => push_fixed(*i as f64, 0, out),
-        Value::Bool(b) => out.push_str(if *b { "true" } else { "false" }),
+        Value::Bool(b) => out.extend_from_slice(if *b { "true" } else { "false" }.as_bytes()),
         Value::Fixed(x, d) if x.is_finite() => push_fixed(*x, *d, out),
         Value::FloorFixed(x, d) if x.is_finite() => push_fixed(floor_to(*x, *d as i32), *d, out),
         Value::OptFixed(Some(x), d) if x.is_finite() => push_fixed(*x, *d, out),
         Value::Time(jd) | Value::OptTime(Some(jd)) => {
-            out.push('"');
+            out.push(b'"');
             push_rfc3339_utc(*jd, out);
-            out.push('"');
+            out.push(b'"');
         }
         Value::Date(_) => {
-            out.push('"');
+            out.push(b'"');
             push_csv_value(v, out);
-            out.push('"');
+            out.push(b'"');
         }
         // As serde_json prints a double (2.0, not 2), so that both forms parse to the same value.
         Value::Input(Some(x)) if x.is_finite() => push_json_number(*x, out),
         Value::Reasons(rs) => {
-            out.push('[');
+            out.push(b'[');
             for (k, r) in rs.iter().enumerate() {
                 if k > 0 {
-                    out.push(',');
+                    out.push(b',');
                 }
                 push_json_text(r.label(), out);
             }
-            out.push(']');
+            out.push(b']');
         }
-        _ => out.push_str("null"),
+        _ => out.extend_from_slice("null".as_bytes()),
     }
 }
 
 /// A double as serde_json prints it (shortest round-trip digits, `2.0` for two): the shortest text of
 /// [`push_shortest`] with `.0` added to whole numbers, where serde_json would not use an exponent; serde_json
 /// itself for the rest.
-fn push_json_number(x: f64, out: &mut String) {
+fn push_json_number(x: f64, out: &mut Vec<u8>) {
     if x == 0.0 || (1e-4..1e6).contains(&x.abs()) {
         let from = out.len();
         push_shortest(x, out);
-        if !out[from..].contains('.') {
-            out.push_str(".0");
+        if !out[from..].contains(&b'.') {
+            out.extend_from_slice(".0".as_bytes());
         }
         return;
     }
     match serde_json::Number::from_f64(x) {
-        Some(n) => out.push_str(&n.to_string()),
-        None => out.push_str("null"),
+        Some(n) => out.extend_from_slice(&n.to_string().as_bytes()),
+        None => out.extend_from_slice("null".as_bytes()),
     }
 }
 
@@ -655,25 +669,25 @@ fn json_value(v: &Value<'_>) -> serde_json::Value {
 }
 
 /// A CSV field, quoted when it holds a comma, quote or line break (RFC 4180 section 2).
-pub fn push_csv_text(s: &str, out: &mut String) {
+pub fn push_csv_text(s: &str, out: &mut Vec<u8>) {
     if s.bytes().any(|b| matches!(b, b',' | b'"' | b'\n' | b'\r')) {
-        out.push('"');
-        out.push_str(&s.replace('"', "\"\""));
-        out.push('"');
+        out.push(b'"');
+        out.extend_from_slice(&s.replace('"', "\"\"").as_bytes());
+        out.push(b'"');
     } else {
-        out.push_str(s);
+        out.extend_from_slice(s.as_bytes());
     }
 }
 
 /// Append `x` with exactly `decimals` decimals (0-9) without the general float formatter: scale, round half
 /// away from zero, print the digits. Equal to `format!("{x:.decimals$}")` except that a negative value which
 /// rounds to zero prints as `0.00`, not `-0.00`.
-pub fn push_fixed(x: f64, decimals: u32, out: &mut String) {
+pub fn push_fixed(x: f64, decimals: u32, out: &mut Vec<u8>) {
     const SCALES: [f64; 10] = [1.0, 10.0, 100.0, 1e3, 1e4, 1e5, 1e6, 1e7, 1e8, 1e9];
     let decimals = decimals as usize;
     let y = x * SCALES.get(decimals).copied().unwrap_or(f64::INFINITY);
     if !x.is_finite() || x.abs() >= 1e12 || y.is_nan() || y.abs() >= 1e17 {
-        use std::fmt::Write;
+        use std::io::Write;
         let _ = write!(out, "{x:.decimals$}");
         return;
     }
@@ -702,11 +716,11 @@ pub fn push_fixed(x: f64, decimals: u32, out: &mut String) {
         buf[i] = b'-';
     }
     // ASCII only, so the check cannot fail.
-    out.push_str(std::str::from_utf8(&buf[i..]).unwrap_or_default());
+    out.extend_from_slice(&buf[i..]);
 }
 
 /// Append the decimal digits of `v`, zero-padded to at least `width` (at most 20), in one copy.
-fn push_digits(mut v: u64, width: usize, out: &mut String) {
+fn push_digits(mut v: u64, width: usize, out: &mut Vec<u8>) {
     let mut digits = [b'0'; 20];
     let mut i = digits.len();
     while v > 0 || digits.len() - i < width {
@@ -715,21 +729,21 @@ fn push_digits(mut v: u64, width: usize, out: &mut String) {
         v /= 10;
     }
     // ASCII digits only, so the check cannot fail.
-    out.push_str(std::str::from_utf8(&digits[i..]).unwrap_or_default());
+    out.extend_from_slice(&digits[i..]);
 }
 
 /// Append an input number as Rust's shortest round-trip text (`f64`'s `Display`, as `x.to_string()` gives)
 /// without the general formatter when `x` has at most 9 decimals: the fewest decimals `k` whose rounded
 /// value divides back to exactly `x` (IEEE division is correctly rounded, so that text parses back to `x`
 /// and no shorter fixed text does). Other values go through the formatter.
-fn push_shortest(x: f64, out: &mut String) {
+fn push_shortest(x: f64, out: &mut Vec<u8>) {
     if x.is_finite() && x.abs() < 1e6 {
         let mut scale = 1.0_f64;
         for k in 0..=9u32 {
             if (x * scale).round() / scale == x {
                 // `push_fixed` drops the sign of a zero; `Display` keeps it.
                 if x == 0.0 && x.is_sign_negative() {
-                    out.push('-');
+                    out.push(b'-');
                 }
                 push_fixed(x, k, out);
                 return;
@@ -737,7 +751,7 @@ fn push_shortest(x: f64, out: &mut String) {
             scale *= 10.0;
         }
     }
-    out.push_str(&x.to_string());
+    out.extend_from_slice(x.to_string().as_bytes());
 }
 
 #[cfg(test)]
@@ -753,8 +767,9 @@ mod tests {
             "ctrl \u{1} \u{1f}",
             "Kestrel Moor \u{e9}",
         ] {
-            let mut s = String::new();
+            let mut s = Vec::new();
             push_json_text(t, &mut s);
+            let s = into_text(s);
             let back: String = serde_json::from_str(&s).unwrap();
             assert_eq!(back, t);
         }
@@ -783,8 +798,9 @@ mod tests {
             cases.push((next() % 10_000_000) as f64 * 1e-7 * 1.000_000_1);
         }
         for x in cases {
-            let mut s = String::new();
+            let mut s = Vec::new();
             push_shortest(x, &mut s);
+            let s = into_text(s);
             assert_eq!(s, x.to_string(), "{x:e}");
         }
     }
@@ -799,8 +815,9 @@ mod tests {
         ) {
             for x in [m as f64 / 10f64.powi(k), raw, (m as f64).sqrt(), -0.0, 0.0] {
                 if let Some(n) = serde_json::Number::from_f64(x) {
-                    let mut s = String::new();
+                    let mut s = Vec::new();
                     push_json_number(x, &mut s);
+            let s = into_text(s);
                     proptest::prop_assert_eq!(s, n.to_string(), "{}", x);
                 }
             }
@@ -809,8 +826,9 @@ mod tests {
         /// Column names and texts come out as serde_json writes them.
         #[test]
         fn json_text_is_serde_jsons(t in "\\PC{0,12}|[ -~]{0,20}") {
-            let mut s = String::new();
+            let mut s = Vec::new();
             push_json_text(&t, &mut s);
+            let s = into_text(s);
             proptest::prop_assert_eq!(s, serde_json::to_string(&t).unwrap_or_default());
         }
 
@@ -819,8 +837,9 @@ mod tests {
         fn fixed_text_is_the_formatters_away_from_ties(x in -2.0e6f64..2.0e6, d in 0u32..=9) {
             let y = (x * 10f64.powi(d as i32)).abs();
             proptest::prop_assume!((y.fract() - 0.5).abs() > 1e-6 && y < 1e15);
-            let mut s = String::new();
+            let mut s = Vec::new();
             push_fixed(x, d, &mut s);
+            let s = into_text(s);
             let mut want = format!("{x:.prec$}", prec = d as usize);
             if want.starts_with('-') && want[1..].bytes().all(|b| b == b'0' || b == b'.') {
                 want.remove(0);
@@ -844,8 +863,9 @@ mod tests {
             2_460_000.123_456,
         ] {
             for d in 0..4u32 {
-                let mut s = String::new();
+                let mut s = Vec::new();
                 push_fixed(x, d, &mut s);
+                let s = into_text(s);
                 let want = format!("{x:.prec$}", prec = d as usize);
                 // Ties may round differently (half away from zero vs the formatter's exact decimal); allow that.
                 let close = (s.parse::<f64>().unwrap() - want.parse::<f64>().unwrap()).abs()

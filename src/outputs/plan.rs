@@ -1,6 +1,6 @@
 //! `plan` outputs: the terminal table, CSV and JSON.
 
-use super::columns::{csv_header, event_json, push_event_csv_rows, EventRow};
+use super::columns::{csv_header, event_json, into_text, push_event_csv_rows, EventRow};
 use super::{hhmm, round};
 use crate::engine::plan::{Event, Plan, PlanOptions, Reason, SitePlan, Verdict};
 use crate::inputs::sites::Site;
@@ -18,11 +18,11 @@ fn event_objects(plan: &Plan, sites: &[Site], targets: &[Target]) -> Vec<serde_j
 
 /// CSV: a header and one line per event, the JSON fields as columns (`reasons` joined with `;`).
 pub fn plan_csv(plan: &Plan, sites: &[Site], targets: &[Target]) -> String {
-    let mut out = csv_header();
+    let mut out = csv_header().into_bytes();
     for sp in &plan.sites {
         push_event_csv_rows(&sp.events, sites, targets, &mut out);
     }
-    out
+    into_text(out)
 }
 
 /// JSON: `{"options": ..., "sites": [...], "events": [...], "lost_ephemerides": [...]}`.
@@ -252,7 +252,7 @@ fn event_row(
     if let Some(m) = e.meridian_utc {
         notes.push(format!("flip {}", hhmm(m, site, utc)));
     }
-    let limits: Vec<&str> = e.reasons.iter().map(|r| reason_note(*r)).collect();
+    let limits: Vec<&str> = e.reasons.iter().map(reason_note).collect();
     if !limits.is_empty() {
         notes.push(limits.join(","));
     }

@@ -106,8 +106,9 @@ pub fn schedule_csv(
     out.push(',');
     push_header(SCHEDULE_COLUMNS, &mut out);
     out.push('\n');
+    let mut out = out.into_bytes();
     push_rows(chosen, (tels, sites, targets), false, &mut out);
-    out
+    super::columns::into_text(out)
 }
 
 /// ECSV (astropy APE 6): the event columns, then `telescope`, `score`, `paired_with`, `combined_coverage`.
@@ -123,8 +124,9 @@ pub fn schedule_ecsv(
         metas(EVENT_COLUMNS).chain(metas(SCHEDULE_COLUMNS)),
         &mut out,
     );
+    let mut out = out.into_bytes();
     push_rows(chosen, (tels, sites, targets), true, &mut out);
-    out
+    super::columns::into_text(out)
 }
 
 /// One line per chosen block: the event columns, then the schedule's, as CSV (or ECSV with `ecsv`).
@@ -132,7 +134,7 @@ fn push_rows(
     chosen: &[Chosen],
     (tels, sites, targets): (&[TelescopeEvents], &[Site], &[Target]),
     ecsv: bool,
-    out: &mut String,
+    out: &mut Vec<u8>,
 ) {
     use super::columns::push_ecsv_fields;
     for c in chosen {
@@ -144,14 +146,14 @@ fn push_rows(
         };
         if ecsv {
             push_ecsv_fields(EVENT_COLUMNS, |f| f(&row), out);
-            out.push(',');
+            out.push(b',');
             push_ecsv_fields(SCHEDULE_COLUMNS, |f| f(&extra), out);
         } else {
             push_csv_fields(EVENT_COLUMNS, |f| f(&row), out);
-            out.push(',');
+            out.push(b',');
             push_csv_fields(SCHEDULE_COLUMNS, |f| f(&extra), out);
         }
-        out.push('\n');
+        out.push(b'\n');
     }
 }
 
