@@ -26,7 +26,7 @@ fn single_event(s: &Site, t: &Target, d: NaiveDate) -> dipwatch::engine::plan::E
     );
     let evs = &p.sites[0].events;
     assert_eq!(evs.len(), 1, "expected one event, got {evs:?}");
-    evs[0].clone()
+    evs[0]
 }
 
 #[test]

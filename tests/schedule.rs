@@ -79,16 +79,11 @@ fn inputs() -> (Vec<dipwatch::inputs::sites::Site>, Vec<Target>, Vec<Event>) {
 fn two_overlapping_blocks_of_different_priority() {
     let (_, mut targets, events) = inputs();
     // Two whole transits made to overlap on one night; the higher-priority target must win.
-    let mut a = events
-        .iter()
-        .find(|e| e.verdict == Verdict::Whole)
-        .unwrap()
-        .clone();
-    let mut b = events
+    let mut a = *events.iter().find(|e| e.verdict == Verdict::Whole).unwrap();
+    let mut b = *events
         .iter()
         .find(|e| e.verdict == Verdict::Whole && e.target_index != a.target_index)
-        .unwrap()
-        .clone();
+        .unwrap();
     b.night_of = a.night_of;
     b.block_start_utc = a.block_start_utc + 0.02;
     b.block_end_utc = a.block_end_utc + 0.02;
@@ -100,7 +95,7 @@ fn two_overlapping_blocks_of_different_priority() {
         site_index: 0,
         telescope_index: 0,
         telescope: "main".into(),
-        events: vec![a.clone(), b.clone()],
+        events: vec![a, b],
     }];
     let chosen = schedule(&tels, &targets, &ScoreWeights::default(), 10.0, false);
     assert_eq!(chosen.len(), 1);
@@ -144,20 +139,16 @@ fn each_transit_is_taken_once_across_telescopes_unless_repeats_are_allowed() {
 #[test]
 fn complementary_ingress_and_egress_at_two_sites_are_paired() {
     let (_, targets, events) = inputs();
-    let base = events
-        .iter()
-        .find(|e| e.verdict == Verdict::Whole)
-        .unwrap()
-        .clone();
+    let base = *events.iter().find(|e| e.verdict == Verdict::Whole).unwrap();
     let mid = base.mid_utc;
-    let mut ing = base.clone();
+    let mut ing = base;
     ing.verdict = Verdict::IngressOnly;
     ing.usable = Some(dipwatch::astro::crossings::Interval {
         start: base.block_start_utc,
         end: mid + 0.01,
     });
     ing.coverage = 0.6;
-    let mut egr = base.clone();
+    let mut egr = base;
     egr.site_index = 1;
     egr.verdict = Verdict::EgressOnly;
     egr.usable = Some(dipwatch::astro::crossings::Interval {
@@ -190,13 +181,9 @@ fn complementary_ingress_and_egress_at_two_sites_are_paired() {
 #[test]
 fn complementary_pairs_with_any_number_of_telescopes_per_site() {
     let (_, targets, events) = inputs();
-    let base = events
-        .iter()
-        .find(|e| e.verdict == Verdict::Whole)
-        .unwrap()
-        .clone();
+    let base = *events.iter().find(|e| e.verdict == Verdict::Whole).unwrap();
     let mid = base.mid_utc;
-    let mut ing = base.clone();
+    let mut ing = base;
     ing.verdict = Verdict::IngressOnly;
     ing.usable = Some(dipwatch::astro::crossings::Interval {
         start: base.block_start_utc,
@@ -204,7 +191,7 @@ fn complementary_pairs_with_any_number_of_telescopes_per_site() {
     });
     ing.block_end_utc = mid + 0.01;
     ing.coverage = 0.6;
-    let mut egr = base.clone();
+    let mut egr = base;
     egr.site_index = 1;
     egr.verdict = Verdict::EgressOnly;
     egr.usable = Some(dipwatch::astro::crossings::Interval {
@@ -215,7 +202,7 @@ fn complementary_pairs_with_any_number_of_telescopes_per_site() {
     egr.coverage = 0.6;
     // Each telescope also has a transit of its own, later the same night (distinct epochs: distinct transits).
     let own = |e: &Event, n: i64| {
-        let mut o = base.clone();
+        let mut o = base;
         o.site_index = e.site_index;
         o.epoch = 10_000 + n;
         let shift = base.block_end_utc - base.block_start_utc + 0.05;
@@ -231,7 +218,7 @@ fn complementary_pairs_with_any_number_of_telescopes_per_site() {
                     site_index: 0,
                     telescope_index: i,
                     telescope: format!("a{i}"),
-                    events: vec![ing.clone(), own(&ing, tels.len() as i64)],
+                    events: vec![ing, own(&ing, tels.len() as i64)],
                 });
             }
             for i in 0..n_b {
@@ -239,7 +226,7 @@ fn complementary_pairs_with_any_number_of_telescopes_per_site() {
                     site_index: 1,
                     telescope_index: i,
                     telescope: format!("b{i}"),
-                    events: vec![egr.clone(), own(&egr, tels.len() as i64)],
+                    events: vec![egr, own(&egr, tels.len() as i64)],
                 });
             }
             let chosen = schedule(&tels, &targets, &ScoreWeights::default(), 10.0, false);

@@ -34,7 +34,7 @@ fn a_sliver_of_transit_is_not_observable_and_says_why() {
     );
     let mut o = opts(d, d);
     o.min_in_transit_min = DEFAULT_MIN_IN_TRANSIT_MIN;
-    let e = plan(std::slice::from_ref(&s), std::slice::from_ref(&t), &o).sites[0].events[0].clone();
+    let e = plan(std::slice::from_ref(&s), std::slice::from_ref(&t), &o).sites[0].events[0];
     assert_eq!(e.verdict, Verdict::EgressOnly, "{e:?}");
     assert!(!e.observable, "{e:?}");
     assert!(e.reasons.contains(&Reason::InTransitBelowMinimum), "{e:?}");
@@ -80,8 +80,7 @@ fn an_egress_without_its_margin_is_not_an_egress() {
         &opts(d, d),
     )
     .sites[0]
-        .events[0]
-        .clone();
+        .events[0];
     assert_eq!(e.verdict, Verdict::IngressOnly, "{e:?}");
     // And 1 min after egress plus margin it is.
     let t = target_at(
@@ -97,8 +96,7 @@ fn an_egress_without_its_margin_is_not_an_egress() {
         &opts(d, d),
     )
     .sites[0]
-        .events[0]
-        .clone();
+        .events[0];
     assert_eq!(e.verdict, Verdict::WholeShortBaseline, "{e:?}");
     // Egress 0.3 min after darkness begins: the egress is not seen with its margin on the early side either.
     let t = target_at(
@@ -114,8 +112,7 @@ fn an_egress_without_its_margin_is_not_an_egress() {
         &opts(d, d),
     )
     .sites[0]
-        .events[0]
-        .clone();
+        .events[0];
     assert_eq!(e.verdict, Verdict::MiddleOnly, "{e:?}");
 }
 
@@ -132,8 +129,7 @@ fn a_partial_event_is_acted_on_only_where_the_sky_allows() {
         &opts(d, d),
     )
     .sites[0]
-        .events[0]
-        .clone();
+        .events[0];
     assert_eq!(e.verdict, Verdict::EgressOnly, "{e:?}");
     assert!(e.full_block_start_utc < dark.start - 1.0 / 24.0);
     // The start acted on is in darkness, on the first whole minute of it.
@@ -190,12 +186,11 @@ fn the_scheduler_keeps_a_telescope_busy_only_while_it_can_observe() {
         .unwrap();
     assert_eq!(a.verdict, Verdict::IngressOnly, "{a:?}");
     assert!(a.end_clipped());
-    let mut b = p.sites[0]
+    let mut b = *p.sites[0]
         .events
         .iter()
         .find(|e| e.target_index == 1)
-        .unwrap()
-        .clone();
+        .unwrap();
     // Move the second event into the gap between the first's usable end and its planned end.
     let shift = a.block_end_utc + 15.0 / 1440.0 - b.block_start_utc;
     assert!(a.block_end_utc + 15.0 / 1440.0 < a.full_block_end_utc);
@@ -211,7 +206,7 @@ fn the_scheduler_keeps_a_telescope_busy_only_while_it_can_observe() {
         site_index: 0,
         telescope_index: 0,
         telescope: "main".into(),
-        events: vec![a.clone(), b],
+        events: vec![*a, b],
     }];
     let chosen = schedule(&tels, &targets, &ScoreWeights::default(), 10.0, false);
     assert_eq!(chosen.len(), 2, "{chosen:?}");

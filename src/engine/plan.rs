@@ -1234,7 +1234,7 @@ impl<'a> Planner<'a> {
         });
         let events: Vec<Event> = keys
             .par_iter()
-            .map(|&(_, ti, _, pos)| per_target[ti].0[pos].clone())
+            .map(|&(_, ti, _, pos)| per_target[ti].0[pos])
             .collect();
         per_target.into_par_iter().for_each(drop);
         (

@@ -225,7 +225,7 @@ pub fn keep_scheduled(plan: &mut Plan, chosen: &[Chosen]) {
             .filter(|c| {
                 c.event.site_index == sp.site_index && c.event.telescope_index == sp.telescope_index
             })
-            .map(|c| c.event.clone())
+            .map(|c| c.event)
             .collect();
         sp.events
             .sort_by(|a, b| a.block_start_utc.total_cmp(&b.block_start_utc));
@@ -271,7 +271,7 @@ pub fn schedule(
                 for i in best_subset(&jobs, gap) {
                     chosen.push(Chosen {
                         telescope_index: ti,
-                        event: evs[i].clone(),
+                        event: *evs[i],
                         score: jobs[i].value,
                         pair: None,
                     });

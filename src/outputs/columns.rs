@@ -641,7 +641,7 @@ fn push_json_number(x: f64, out: &mut Vec<u8>) {
         return;
     }
     match serde_json::Number::from_f64(x) {
-        Some(n) => out.extend_from_slice(&n.to_string().as_bytes()),
+        Some(n) => out.extend_from_slice(n.to_string().as_bytes()),
         None => out.extend_from_slice("null".as_bytes()),
     }
 }
@@ -672,7 +672,7 @@ fn json_value(v: &Value<'_>) -> serde_json::Value {
 pub fn push_csv_text(s: &str, out: &mut Vec<u8>) {
     if s.bytes().any(|b| matches!(b, b',' | b'"' | b'\n' | b'\r')) {
         out.push(b'"');
-        out.extend_from_slice(&s.replace('"', "\"\"").as_bytes());
+        out.extend_from_slice(s.replace('"', "\"\"").as_bytes());
         out.push(b'"');
     } else {
         out.extend_from_slice(s.as_bytes());
