@@ -211,11 +211,6 @@ impl ReasonSet {
         self.0 == 0
     }
 
-    /// How many reasons the set holds.
-    pub fn len(&self) -> usize {
-        self.0.count_ones() as usize
-    }
-
     /// The reasons in the order of [`Reason::ALL`].
     pub fn iter(self) -> impl Iterator<Item = Reason> {
         Reason::ALL.into_iter().filter(move |r| self.contains(r))
@@ -246,12 +241,6 @@ impl std::fmt::Debug for ReasonSet {
 impl PartialEq<Vec<Reason>> for ReasonSet {
     fn eq(&self, other: &Vec<Reason>) -> bool {
         self.to_vec() == *other
-    }
-}
-
-impl serde::Serialize for ReasonSet {
-    fn serialize<S: serde::Serializer>(&self, s: S) -> Result<S::Ok, S::Error> {
-        s.collect_seq(self.iter())
     }
 }
 
@@ -1555,6 +1544,22 @@ mod index_tests {
             let t = start + dt;
             let expected = nights.partition_point(|nt| nt.window.start <= t);
             prop_assert_eq!(night_after(&nights, t), expected);
+        }
+
+        /// A reason set lists what a list did after `sort` and `dedup` (how events kept their reasons before
+        /// they became bits), whatever the order and repeats of the insertions.
+        #[test]
+        fn reason_set_lists_as_the_sorted_deduplicated_list(picks in prop::collection::vec(0usize..10, 0..14)) {
+            let inserted: Vec<Reason> = picks.iter().map(|&i| Reason::ALL[i]).collect();
+            let set: ReasonSet = inserted.iter().copied().collect();
+            let mut list = inserted.clone();
+            list.sort();
+            list.dedup();
+            prop_assert_eq!(set.is_empty(), list.is_empty());
+            for r in Reason::ALL {
+                prop_assert_eq!(set.contains(&r), list.contains(&r));
+            }
+            prop_assert_eq!(set.to_vec(), list);
         }
     }
 }
