@@ -228,19 +228,60 @@ pub fn ccd_snr(star_e: f64, pixels: f64, sky_e: f64, dark_e: f64, read_e: f64) -
     star_e / (star_e + pixels * (sky_e + dark_e + read_e * read_e)).sqrt()
 }
 
+/// The counts of one exposure that both its noise budget and its peak pixel need.
+struct Counts {
+    /// Photoelectrons from the star in all, e-.
+    star_total: f64,
+    /// Gaussian sigma of the seeing disc, arcsec.
+    sigma_arcsec: f64,
+    /// Pixel area, arcsec^2.
+    pixel_area: f64,
+    /// Sky photoelectrons per pixel, e-.
+    sky_e: f64,
+    /// Dark electrons per pixel, e-.
+    dark_e: f64,
+}
+
+impl Counts {
+    fn of(b: &Band, cam: &Camera, c: &Conditions) -> Counts {
+        let t = c.exposure_s;
+        let collected = cam.area_m2() * cam.throughput * t;
+        let pixel_area = cam.pixel_scale_arcsec.powi(2);
+        Counts {
+            star_total: photon_rate_m2(b, c.mag + c.extinction_mag * c.airmass) * collected,
+            sigma_arcsec: c.seeing_arcsec / (2.0 * (2.0 * 2f64.ln()).sqrt()),
+            pixel_area,
+            sky_e: photon_rate_m2(b, c.sky_mag_arcsec2) * collected * pixel_area,
+            dark_e: cam.dark_e_per_s * t,
+        }
+    }
+
+    /// Peak pixel over the camera's saturation level: a Gaussian's centre holds total / (2 pi s^2) per
+    /// arcsec^2, times the pixel area, plus sky and dark.
+    fn peak_well_fraction(&self, cam: &Camera) -> f64 {
+        let s = self.sigma_arcsec;
+        let peak = self.star_total / (2.0 * std::f64::consts::PI * s * s) * self.pixel_area
+            + self.sky_e
+            + self.dark_e;
+        peak / cam.saturation_e()
+    }
+}
+
 /// The noise budget of one exposure.
 pub fn budget(b: &Band, cam: &Camera, c: &Conditions) -> Budget {
     let t = c.exposure_s;
-    let collected = cam.area_m2() * cam.throughput * t;
-    let star_total = photon_rate_m2(b, c.mag + c.extinction_mag * c.airmass) * collected;
+    let counts = Counts::of(b, cam, c);
+    let Counts {
+        star_total,
+        sigma_arcsec: s,
+        pixel_area,
+        sky_e,
+        dark_e,
+    } = counts;
     // Fraction of a Gaussian PSF of this FWHM inside the aperture radius r: 1 - exp(-r^2 / (2 s^2)).
-    let s = c.seeing_arcsec / (2.0 * (2.0 * 2f64.ln()).sqrt());
     let enclosed = 1.0 - (-(c.aperture_radius_arcsec.powi(2)) / (2.0 * s * s)).exp();
     let star_e = star_total * enclosed;
-    let pixel_area = cam.pixel_scale_arcsec.powi(2);
     let pixels = std::f64::consts::PI * c.aperture_radius_arcsec.powi(2) / pixel_area;
-    let sky_e = photon_rate_m2(b, c.sky_mag_arcsec2) * collected * pixel_area;
-    let dark_e = cam.dark_e_per_s * t;
     let rel = |v: f64| v.sqrt() / star_e * 1000.0;
     let source_ppt = rel(star_e);
     let sky_ppt = rel(pixels * sky_e);
@@ -259,8 +300,6 @@ pub fn budget(b: &Band, cam: &Camera, c: &Conditions) -> Budget {
         + read_ppt.powi(2)
         + scintillation_ppt.powi(2))
     .sqrt();
-    // Peak pixel of a Gaussian: total / (2 pi s^2) per arcsec^2 at the centre, times the pixel area.
-    let peak = star_total / (2.0 * std::f64::consts::PI * s * s) * pixel_area + sky_e + dark_e;
     Budget {
         star_e,
         sky_e_per_pixel: sky_e,
@@ -271,7 +310,7 @@ pub fn budget(b: &Band, cam: &Camera, c: &Conditions) -> Budget {
         read_ppt,
         scintillation_ppt,
         total_ppt,
-        peak_well_fraction: peak / cam.saturation_e(),
+        peak_well_fraction: counts.peak_well_fraction(cam),
     }
 }
 
@@ -299,8 +338,9 @@ pub fn suggested_exposure(
     (min_s, max_s): (f64, f64),
     well_fraction: f64,
 ) -> (f64, bool) {
+    // Only the counts: the rest of the budget (scintillation, the noise terms) does not change the peak.
     let peak = |t: f64| {
-        budget(
+        Counts::of(
             b,
             cam,
             &Conditions {
@@ -308,7 +348,7 @@ pub fn suggested_exposure(
                 ..*c
             },
         )
-        .peak_well_fraction
+        .peak_well_fraction(cam)
     };
     // The peak grows linearly with time (star, sky and dark counts all do): from its rate, whether even the
     // shortest exposure saturates, else the longest that does not, rounded down to whole seconds.
