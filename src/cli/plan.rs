@@ -135,18 +135,34 @@ fn pipe_events(
             // Owned here, so the channel closes when planning ends.
             let tx = tx;
             let mut lost = std::collections::BTreeMap::new();
-            for k in 0..planner.station_count() {
-                for &(a, b) in chunks {
-                    let (sp, chunk_lost) = planner.station_plan(k, a, b);
+            let format_plan = |sp: dipwatch::engine::plan::SitePlan| -> Vec<Vec<u8>> {
+                sp.events
+                    .par_chunks(2048)
+                    .map(|c| format_events(c, sites, targets, format, take_buffer()))
+                    .filter(|p| !p.is_empty())
+                    .collect()
+            };
+            // Each telescope-chunk is formatted while the next one is planned (both on rayon's pool), so the
+            // cores do not wait at the end of every planning or formatting pass for the last piece of work.
+            let jobs: Vec<(usize, NaiveDate, NaiveDate)> = (0..planner.station_count())
+                .flat_map(|k| chunks.iter().map(move |&(a, b)| (k, a, b)))
+                .collect();
+            let mut pending: Option<dipwatch::engine::plan::SitePlan> = None;
+            for step in 0..=jobs.len() {
+                let (planned, parts) = rayon::join(
+                    || {
+                        jobs.get(step)
+                            .map(|&(k, a, b)| planner.station_plan(k, a, b))
+                    },
+                    || pending.take().map(format_plan),
+                );
+                if let Some((sp, chunk_lost)) = planned {
                     for (ti, sigma) in chunk_lost {
                         lost.entry(ti).or_insert(sigma);
                     }
-                    let parts: Vec<Vec<u8>> = sp
-                        .events
-                        .par_chunks(2048)
-                        .map(|c| format_events(c, sites, targets, format, take_buffer()))
-                        .filter(|p| !p.is_empty())
-                        .collect();
+                    pending = Some(sp);
+                }
+                if let Some(parts) = parts {
                     if let Some(b) = bar {
                         b.inc(1);
                     }
