@@ -47,14 +47,16 @@ pub fn push_rfc3339_utc(jd_utc: f64, out: &mut Vec<u8>) {
     let mut rem = ms % 86_400_000;
     let mut buf = [0u8; 24];
     // A night's times fall on two dates, one even and one odd: the text of the last of each is kept per thread.
-    buf[0..10].copy_from_slice(&LAST_DATES.with(|c| {
-        let mut slots = c.get();
-        let k = (days & 1) as usize;
-        if slots[k].0 != days {
-            slots[k] = (days, date_text(days));
-            c.set(slots);
+    buf[0..10].copy_from_slice(&LAST_DATES.with(|slots| {
+        let slot = &slots[(days & 1) as usize];
+        let (day, text) = slot.get();
+        if day == days {
+            text
+        } else {
+            let text = date_text(days);
+            slot.set((days, text));
+            text
         }
-        slots[k].1
     }));
     let h = rem / 3_600_000;
     rem %= 3_600_000;
@@ -69,15 +71,20 @@ pub fn push_rfc3339_utc(jd_utc: f64, out: &mut Vec<u8>) {
     buf[16] = b':';
     put_two(&mut buf[17..19], sec);
     buf[19] = b'.';
-    put_digits(&mut buf[20..23], milli);
+    buf[20] = b'0' + (milli / 100) as u8;
+    put_two(&mut buf[21..23], milli % 100);
     buf[23] = b'Z';
     out.extend_from_slice(&buf);
 }
 
 thread_local! {
     /// (days since 1970-01-01, its YYYY-MM-DD text) of the last even and odd days [`push_rfc3339_utc`] printed.
-    static LAST_DATES: std::cell::Cell<[(i64, [u8; 10]); 2]> =
-        const { std::cell::Cell::new([(i64::MIN, [0; 10]); 2]) };
+    static LAST_DATES: [std::cell::Cell<(i64, [u8; 10])>; 2] = const {
+        [
+            std::cell::Cell::new((i64::MIN, [0; 10])),
+            std::cell::Cell::new((i64::MIN, [0; 10])),
+        ]
+    };
 }
 
 /// YYYY-MM-DD of a day counted from 1970-01-01 (days >= 0): the proleptic Gregorian "civil from days"
@@ -109,11 +116,18 @@ fn put_digits(buf: &mut [u8], mut v: i64) {
     }
 }
 
-/// Two decimal digits of `v` (0..100) into `buf`.
+/// Two decimal digits of `v` (0..100) into `buf`, from [`DIGIT_PAIRS`].
 fn put_two(buf: &mut [u8], v: i64) {
-    buf[0] = b'0' + (v / 10) as u8;
-    buf[1] = b'0' + (v % 10) as u8;
+    let p = v as usize * 2;
+    buf[..2].copy_from_slice(&DIGIT_PAIRS[p..p + 2]);
 }
+
+/// The two-digit texts of 00 to 99, one after another: number formatting two digits per step.
+pub(crate) const DIGIT_PAIRS: &[u8; 200] = b"0001020304050607080910111213141516171819\
+2021222324252627282930313233343536373839\
+4041424344454647484950515253545556575859\
+6061626364656667686970717273747576777879\
+8081828384858687888990919293949596979899";
 
 /// UTC Julian Date of local noon on `date` in `tz`.
 pub fn local_noon_jd(date: NaiveDate, tz: Tz) -> f64 {

@@ -198,35 +198,46 @@ pub struct Observer {
     pub lon_rad: f64,
     /// Height above the WGS84 ellipsoid, m.
     pub elevation_m: f64,
+    /// (sin, cos) of the latitude, computed once: every altitude at the site needs them.
+    sc_lat: (f64, f64),
+    /// [`Observer::axis_and_plane_distances_m`], computed once.
+    axis_plane_m: (f64, f64),
 }
 
 impl Observer {
     /// Observer at geodetic latitude/longitude in degrees (north +, east +) and height in metres.
     pub fn from_deg(lat_deg: f64, lon_deg: f64, elevation_m: f64) -> Observer {
+        let lat_rad = lat_deg.to_radians();
         Observer {
-            lat_rad: lat_deg.to_radians(),
+            lat_rad,
             lon_rad: lon_deg.to_radians(),
             elevation_m,
+            sc_lat: (lat_rad.sin(), lat_rad.cos()),
+            axis_plane_m: axis_and_plane_distances_m(lat_rad, elevation_m),
         }
+    }
+
+    /// (sin, cos) of the geodetic latitude.
+    pub fn sin_cos_lat(&self) -> (f64, f64) {
+        self.sc_lat
     }
 
     /// Distance from the Earth's axis and from the equatorial plane, m: (rho cos phi', rho sin phi') * a.
     /// Source: WGS84 ellipsoid, standard geodetic-to-geocentric conversion (Explanatory Supplement 4.22).
     pub fn axis_and_plane_distances_m(&self) -> (f64, f64) {
-        let e2 = WGS84_F * (2.0 - WGS84_F);
-        let (s, c) = self.lat_rad.sin_cos();
-        let n = WGS84_A_M / (1.0 - e2 * s * s).sqrt();
-        (
-            (n + self.elevation_m) * c,
-            (n * (1.0 - e2) + self.elevation_m) * s,
-        )
+        self.axis_plane_m
     }
 
     /// Geocentric position in the true equator-and-equinox frame of date, m, given the local apparent sidereal
     /// time `last_rad`. (Polar motion, <= 15 m, is ignored.)
     pub fn geocentric_m(&self, last_rad: f64) -> Vec3 {
-        let (r_axis, z) = self.axis_and_plane_distances_m();
-        [r_axis * last_rad.cos(), r_axis * last_rad.sin(), z]
+        self.geocentric_m_sc(last_rad.sin_cos())
+    }
+
+    /// [`Observer::geocentric_m`] with the (sin, cos) of the local apparent sidereal time given.
+    pub fn geocentric_m_sc(&self, (sin_last, cos_last): (f64, f64)) -> Vec3 {
+        let (r_axis, z) = self.axis_plane_m;
+        [r_axis * cos_last, r_axis * sin_last, z]
     }
 
     /// Geocentric position in units of the Earth's equatorial radius (the unit of Meeus ch. 40 parallax),
@@ -236,6 +247,15 @@ impl Observer {
         let k = 1.0 / (EARTH_EQUATORIAL_RADIUS_KM * 1000.0);
         [p[0] * k, p[1] * k, p[2] * k]
     }
+}
+
+/// Distance from the Earth's axis and from the equatorial plane of a site at geodetic latitude `lat_rad` and
+/// height `elevation_m` above the WGS84 ellipsoid, m (see [`Observer::axis_and_plane_distances_m`]).
+fn axis_and_plane_distances_m(lat_rad: f64, elevation_m: f64) -> (f64, f64) {
+    let e2 = WGS84_F * (2.0 - WGS84_F);
+    let (s, c) = lat_rad.sin_cos();
+    let n = WGS84_A_M / (1.0 - e2 * s * s).sqrt();
+    ((n + elevation_m) * c, (n * (1.0 - e2) + elevation_m) * s)
 }
 
 /// Altitude and azimuth of a direction from its hour angle and declination.

@@ -239,7 +239,7 @@ impl SkyTables {
         // (as `topocentric`); the elongation for the illuminated fraction comes from the cross and dot products
         // of the geocentric directions (Meeus eq. 48.2-48.3, 48.1, as `moon_illuminated_fraction`).
         let last = self.last_rad(t, obs.lon_rad);
-        let (sl, cl) = (obs.lat_rad.sin(), obs.lat_rad.cos());
+        let (sl, cl) = obs.sin_cos_lat();
         let (sa, ca) = last.sin_cos();
         let zenith = [cl * ca, cl * sa, sl];
         let sin_alt = |v: &Vec3, len: f64| (dot(v, &zenith) / len).clamp(-1.0, 1.0).asin();
@@ -248,7 +248,7 @@ impl SkyTables {
         let sun = self.apparent_vec(&[-h[0] / sun_au, -h[1] / sun_au, -h[2] / sun_au], t);
         let sun_alt = sin_alt(&sun, norm(&sun));
         let geo = self.moon_geocentric_km(t);
-        let o = obs.geocentric_m(last);
+        let o = obs.geocentric_m_sc((sa, ca));
         let topo = [
             geo[0] - o[0] / 1000.0,
             geo[1] - o[1] / 1000.0,

@@ -451,14 +451,13 @@ pub(crate) struct Track {
 
 impl Track {
     fn from_place(ra_rad: f64, dec_rad: f64, eqeq_rad: f64, site: &Site) -> Track {
-        let lat_rad = site.observer.lat_rad;
         Track {
             ra_rad,
             dec_rad,
             eqeq_rad,
             lon_rad: site.observer.lon_rad,
             sc_dec: (dec_rad.sin(), dec_rad.cos()),
-            sc_lat: (lat_rad.sin(), lat_rad.cos()),
+            sc_lat: site.observer.sin_cos_lat(),
         }
     }
 
