@@ -100,8 +100,15 @@ pub fn wrap_to(x: f64, m: f64) -> f64 {
 /// Vincenty's formula on the sphere (atan2 of cross and dot products): accurate at all angles, unlike
 /// the arccos form near 0 and pi.
 pub fn separation_rad(ra1_rad: f64, dec1_rad: f64, ra2_rad: f64, dec2_rad: f64) -> f64 {
-    let a = unit_from_radec(ra1_rad, dec1_rad);
-    let b = unit_from_radec(ra2_rad, dec2_rad);
+    angle_between_rad(
+        &unit_from_radec(ra1_rad, dec1_rad),
+        &unit_from_radec(ra2_rad, dec2_rad),
+    )
+}
+
+/// The angle between two directions given as vectors of any length (not zero), rad 0..pi: atan2(|a x b|, a . b),
+/// accurate at every angle (acos of the dot product loses precision near 0 and pi).
+pub fn angle_between_rad(a: &Vec3, b: &Vec3) -> f64 {
     let cross = [
         a[1] * b[2] - a[2] * b[1],
         a[2] * b[0] - a[0] * b[2],

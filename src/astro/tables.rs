@@ -44,12 +44,25 @@ pub struct MoonAt {
 pub struct SunMoonSky {
     /// Sun altitude, deg.
     pub sun_alt_deg: f64,
-    /// Topocentric apparent place of the Moon.
-    pub moon: ApparentPlace,
+    /// Topocentric apparent position of the Moon, true equator and equinox of date, km (see
+    /// [`SunMoonSky::moon_place`] for its right ascension and declination).
+    pub moon_topo_km: Vec3,
     /// Moon geometric altitude, deg.
     pub moon_alt_deg: f64,
     /// Moon illuminated fraction, 0-1.
     pub moon_illum: f64,
+}
+
+impl SunMoonSky {
+    /// The Moon's topocentric apparent place (right ascension, declination, distance).
+    pub fn moon_place(&self) -> ApparentPlace {
+        let (ra_rad, dec_rad) = radec_from_vec(&self.moon_topo_km);
+        ApparentPlace {
+            ra_rad,
+            dec_rad,
+            dist_km: norm(&self.moon_topo_km),
+        }
+    }
 }
 
 /// Tables covering a span of UTC Julian Dates.
@@ -254,19 +267,13 @@ impl SkyTables {
             geo[1] - o[1] / 1000.0,
             geo[2] - o[2] / 1000.0,
         ];
-        let topo_km = norm(&topo);
-        let (ra_rad, dec_rad) = radec_from_vec(&topo);
-        let moon_alt = sin_alt(&topo, topo_km);
+        let moon_alt = sin_alt(&topo, norm(&topo));
         let psi = norm(&cross(&sun, &geo)).atan2(dot(&sun, &geo));
         let (sun_km, moon_km) = (sun_au * AU_M / 1000.0, norm(&geo));
         let i = (sun_km * psi.sin()).atan2(moon_km - sun_km * psi.cos());
         SunMoonSky {
             sun_alt_deg: sun_alt.to_degrees(),
-            moon: ApparentPlace {
-                ra_rad,
-                dec_rad,
-                dist_km: topo_km,
-            },
+            moon_topo_km: topo,
             moon_alt_deg: moon_alt.to_degrees(),
             moon_illum: (1.0 + i.cos()) / 2.0,
         }
@@ -331,15 +338,16 @@ mod tests {
                 (both.moon_illum - direct.moon_illum).abs() < 5e-4,
                 "illumination at {t}"
             );
+            let moon = both.moon_place();
             let sep = crate::astro::frames::separation_rad(
-                both.moon.ra_rad,
-                both.moon.dec_rad,
+                moon.ra_rad,
+                moon.dec_rad,
                 m.place.ra_rad,
                 m.place.dec_rad,
             );
             assert!(sep.to_degrees() < 1e-6, "Moon place at {t}");
             assert!(
-                (both.moon.dist_km - m.place.dist_km).abs() < 1e-6,
+                (moon.dist_km - m.place.dist_km).abs() < 1e-6,
                 "Moon distance at {t}"
             );
             let (alt, _) = target_alt_az_deg(&icrs, JdUtc(t), &obs, &tables.earth);

@@ -440,6 +440,8 @@ pub fn nights_with(
 /// A target's apparent place of date frozen over one block (precession, nutation and aberration change by
 /// < 0.1" in a day), turned into altitude and azimuth at any instant from the sidereal time.
 pub(crate) struct Track {
+    /// The direction as a vector (length within 1e-4 of one), in the frame of `ra_rad` and `dec_rad`.
+    dir: Vec3,
     ra_rad: f64,
     dec_rad: f64,
     eqeq_rad: f64,
@@ -450,8 +452,10 @@ pub(crate) struct Track {
 }
 
 impl Track {
-    fn from_place(ra_rad: f64, dec_rad: f64, eqeq_rad: f64, site: &Site) -> Track {
+    fn from_vec(dir: Vec3, eqeq_rad: f64, site: &Site) -> Track {
+        let (ra_rad, dec_rad) = crate::astro::frames::radec_from_vec(&dir);
         Track {
+            dir,
             ra_rad,
             dec_rad,
             eqeq_rad,
@@ -462,16 +466,15 @@ impl Track {
     }
 
     pub(crate) fn new(icrs: &Vec3, t_ref: f64, site: &Site, tables: &SkyTables) -> Track {
-        let (ra_rad, dec_rad) = tables.apparent_radec(icrs, t_ref);
+        let dir = tables.apparent_vec(icrs, t_ref);
         let eqeq_rad = wrap_pi(tables.gast_rad(t_ref) - gmst_rad(t_ref));
-        Track::from_place(ra_rad, dec_rad, eqeq_rad, site)
+        Track::from_vec(dir, eqeq_rad, site)
     }
 
     /// The catalogue (ICRS) place as if it were the apparent one: within [`mean_place_error_deg`] of the
     /// apparent place, so it can reject a transit before the apparent place is computed.
     fn mean(icrs: &Vec3, site: &Site) -> Track {
-        let (ra_rad, dec_rad) = crate::astro::frames::radec_from_vec(icrs);
-        Track::from_place(ra_rad, dec_rad, 0.0, site)
+        Track::from_vec(*icrs, 0.0, site)
     }
 
     /// Hour angle, rad -pi..pi (west +).
@@ -777,6 +780,9 @@ struct Pairing<'a> {
     site: &'a Site,
     opts: &'a PlanOptions,
     tables: &'a SkyTables,
+    /// The target's catalogue direction when it has no proper motion (the same at every instant, so computed
+    /// once); `None` when it moves.
+    icrs_fixed: Option<Vec3>,
 }
 
 /// One predicted transit: epoch, mid-transit at the site (UTC JD) and its timing sigma (days).
@@ -959,7 +965,8 @@ fn evaluate(p: &Pairing<'_>, t: Predicted, night: &Night) -> Option<Event> {
     let (ingress, egress) = (t.mid_utc - half, t.mid_utc + half);
     let margin = opts.sigma_k * t.sigma_days;
     let block = planned_block(p, ingress, egress, margin);
-    let track = Track::new(&p.target.icrs_at(t.mid_utc), t.mid_utc, site, tables);
+    let icrs = p.icrs_fixed.unwrap_or_else(|| p.target.icrs_at(t.mid_utc));
+    let track = Track::new(&icrs, t.mid_utc, site, tables);
     if cannot_be_listed(p, (&track, site.min_alt_deg), night, ingress, egress) {
         return None;
     }
@@ -973,13 +980,8 @@ fn evaluate(p: &Pairing<'_>, t: Predicted, night: &Night) -> Option<Event> {
         return None;
     }
     let sky = tables.sun_moon(t.mid_utc, &site.observer);
-    let moon_sep = separation_rad(
-        track.ra_rad,
-        track.dec_rad,
-        sky.moon.ra_rad,
-        sky.moon.dec_rad,
-    )
-    .to_degrees();
+    let moon_sep =
+        crate::astro::frames::angle_between_rad(&track.dir, &sky.moon_topo_km).to_degrees();
     // The expected noise, with the Moon's light at mid-transit (only for events that can be listed).
     let moon_sky = crate::engine::noise::MoonSky {
         illum: sky.moon_illum,
@@ -1196,6 +1198,7 @@ impl<'a> Planner<'a> {
                     site,
                     opts: self.opts,
                     tables,
+                    icrs_fixed: target.icrs_fixed(),
                 };
                 events_of_target(&pairing, &self.mids[ti], &nights, &range)
             })
@@ -1515,6 +1518,7 @@ mod index_tests {
             len in 0.0f64..3.0,
         ) {
             let track = Track {
+                dir: crate::astro::frames::unit_from_radec(ra, dec),
                 ra_rad: ra,
                 dec_rad: dec,
                 eqeq_rad: 0.0,

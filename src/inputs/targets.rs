@@ -65,6 +65,13 @@ impl Target {
         }
     }
 
+    /// The catalogue direction when the target has no proper motion (then [`Target::icrs_at`] is the same at
+    /// every instant); `None` when it moves.
+    pub fn icrs_fixed(&self) -> Option<crate::astro::frames::Vec3> {
+        (self.pm_ra_cosdec_mas_per_yr == 0.0 && self.pm_dec_mas_per_yr == 0.0)
+            .then(|| self.icrs_at(0.0))
+    }
+
     /// ICRS unit vector of the target at `jd` (any time scale: a day changes nothing), with its proper motion
     /// applied from the coordinate epoch ([`crate::astro::frames::apply_proper_motion`]).
     pub fn icrs_at(&self, jd: f64) -> crate::astro::frames::Vec3 {
