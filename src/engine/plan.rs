@@ -654,7 +654,8 @@ fn alt_intervals(track: &Track, min_alt_deg: f64, block: &Interval) -> Vec<Inter
     let omega = TAU * GMST_RATE_PER_UT1_DAY;
     let ha_a = track.ha_rad(block.start);
     let ha_b = ha_a + omega * (block.end - block.start);
-    let mut out = Vec::new();
+    // A block shorter than a sidereal day meets at most two runs.
+    let mut out = Vec::with_capacity(2);
     limit.runs(ha_a, ha_b, |a, b| {
         out.push(Interval {
             start: block.start + (a - ha_a) / omega,
@@ -666,7 +667,8 @@ fn alt_intervals(track: &Track, min_alt_deg: f64, block: &Interval) -> Vec<Inter
 
 /// Intersect two sorted lists of disjoint intervals.
 fn intersect_lists(a: &[Interval], b: &[Interval]) -> Vec<Interval> {
-    let mut out = Vec::new();
+    // At most one piece per step of the merge: sized once, no regrowth.
+    let mut out = Vec::with_capacity((a.len() + b.len()).saturating_sub(1));
     let (mut i, mut j) = (0, 0);
     while i < a.len() && j < b.len() {
         if let Some(x) = a[i].intersect(&b[j]) {
@@ -714,19 +716,20 @@ fn usable_intervals_on_track(
     let block = *block;
     let step = DEFAULT_STEP_DAYS;
     let mut reasons = ReasonSet::new();
-    let mut usable = vec![block];
+    // The dark part of the block is the first usable list: the block cut to it, which is itself.
+    let mut usable = match night.dark.and_then(|d| d.intersect(&block)) {
+        Some(d) => vec![d],
+        None => Vec::new(),
+    };
+    if !covers(&usable, &block) {
+        reasons.insert(Reason::Daylight);
+    }
     let mut apply = |list: Vec<Interval>, reason: Reason, usable: &mut Vec<Interval>| {
         if !covers(&list, &block) {
             reasons.insert(reason);
         }
         *usable = intersect_lists(usable, &list);
     };
-    let dark = night
-        .dark
-        .and_then(|d| d.intersect(&block))
-        .map(|d| vec![d])
-        .unwrap_or_default();
-    apply(dark, Reason::Daylight, &mut usable);
     let alt_ok = alt_intervals(track, site.min_alt_deg, &block);
     apply(alt_ok, Reason::BelowAltitudeLimit, &mut usable);
     if let Some(max_alt) = site.max_alt_deg {
