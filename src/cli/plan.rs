@@ -66,7 +66,7 @@ pub(super) fn stream_plan(
         None
     };
     let write_all = |w: &mut dyn Write| -> Result<()> {
-        w.write_all(stream_head(sites, opts, format)?.as_bytes())?;
+        w.write_all(stream_head(&planner, sites, opts, format)?.as_bytes())?;
         let lost = pipe_events(&planner, &chunks, (sites, targets), format, bar.as_ref(), w)?;
         if format == Format::Json {
             let lost: Vec<dipwatch::engine::plan::LostEphemeris> = lost
@@ -207,17 +207,19 @@ fn pipe_events(
 }
 
 /// What comes before the events: the CSV or ECSV header, or the JSON document up to its `events` array.
-fn stream_head(sites: &[Site], opts: &PlanOptions, format: Format) -> Result<String> {
+fn stream_head(
+    planner: &dipwatch::engine::plan::Planner<'_>,
+    sites: &[Site],
+    opts: &PlanOptions,
+    format: Format,
+) -> Result<String> {
     Ok(match format {
         Format::Ecsv => dipwatch::outputs::columns::ecsv_event_header(),
         Format::Json => {
             let site_info: Vec<serde_json::Value> = sites
                 .iter()
-                .map(|s| {
-                    let nights =
-                        dipwatch::engine::plan::nights_at(s, opts.first_night, opts.last_night);
-                    report::site_json(s, &nights)
-                })
+                .enumerate()
+                .map(|(si, s)| report::site_json(s, planner.site_nights(si)))
                 .collect();
             format!(
                 "{{\n  \"options\": {},\n  \"sites\": {},\n  \"events\": [\n",

@@ -1100,6 +1100,9 @@ pub struct Planner<'a> {
     tables: Option<SkyTables>,
     /// Per target: (epoch, geocentric UTC JD of mid-transit) over the whole range, computed once for all sites.
     mids: Vec<Vec<(i64, f64)>>,
+    /// Per site: its nights over the whole range with their dark intervals, computed once for all its telescopes
+    /// and chunks (and for the JSON head's nights without darkness).
+    nights: Vec<Vec<Night>>,
 }
 
 impl<'a> Planner<'a> {
@@ -1137,6 +1140,17 @@ impl<'a> Planner<'a> {
                 .collect(),
             _ => Vec::new(),
         };
+        let nights = sites
+            .iter()
+            .map(|s| match &tables {
+                Some(tables) => nights_with(
+                    s,
+                    &night_windows(s, opts.first_night, opts.last_night),
+                    tables,
+                ),
+                None => Vec::new(),
+            })
+            .collect();
         let stations = sites
             .iter()
             .enumerate()
@@ -1153,7 +1167,14 @@ impl<'a> Planner<'a> {
             opts,
             tables,
             mids,
+            nights,
         }
+    }
+
+    /// The nights of site `site_index` over the run's whole range, with their dark intervals (the nights every
+    /// telescope-chunk of that site is planned on).
+    pub fn site_nights(&self, site_index: usize) -> &[Night] {
+        self.nights.get(site_index).map_or(&[], Vec::as_slice)
     }
 
     /// How many (site, telescope) pairs the run plans for: every telescope of every site.
@@ -1171,8 +1192,23 @@ impl<'a> Planner<'a> {
         last: NaiveDate,
     ) -> (SitePlan, Vec<(usize, f64)>) {
         let (si, tel, site) = (self.stations[k].0, self.stations[k].1, &self.stations[k].2);
-        let windows = night_windows(site, first, last);
-        let (Some(tables), false) = (&self.tables, windows.is_empty()) else {
+        // The run's nights of the site when the dates are inside the run (the usual case), else computed.
+        let in_run = self.opts.first_night <= first && last <= self.opts.last_night;
+        let nights = match &self.tables {
+            Some(_) if in_run => {
+                let skip = (first - self.opts.first_night).num_days() as usize;
+                let take = ((last - first).num_days() + 1).max(0) as usize;
+                self.site_nights(si)
+                    .iter()
+                    .skip(skip)
+                    .take(take)
+                    .cloned()
+                    .collect()
+            }
+            Some(tables) => nights_with(site, &night_windows(site, first, last), tables),
+            None => Vec::new(),
+        };
+        let (Some(tables), false) = (&self.tables, nights.is_empty()) else {
             return (
                 SitePlan {
                     site_index: si,
@@ -1183,10 +1219,9 @@ impl<'a> Planner<'a> {
                 Vec::new(),
             );
         };
-        let nights = nights_with(site, &windows, tables);
         let range = Interval {
-            start: windows[0].1.start,
-            end: windows[windows.len() - 1].1.end,
+            start: nights[0].window.start,
+            end: nights[nights.len() - 1].window.end,
         };
         let per_target: Vec<(Vec<Event>, Option<f64>)> = self
             .targets
