@@ -163,9 +163,7 @@ impl Reason {
             Reason::EphemerisLost => "ephemeris-lost",
         }
     }
-}
 
-impl Reason {
     /// Every reason, in the order outputs list them.
     pub const ALL: [Reason; 10] = [
         Reason::Daylight,
