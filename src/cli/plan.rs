@@ -107,9 +107,10 @@ pub(super) fn stream_plan(
 }
 
 /// Plan and format every telescope-chunk of nights of the run and write it to `w`, computing overlapped with
-/// writing: a producer thread plans and formats each chunk (in parallel, on rayon's pool) and hands the text over a
-/// bounded channel while this thread writes it. Two chunks in flight bound the memory. Returns the lost
-/// ephemerides (target index to sigma in minutes).
+/// writing: a producer thread plans each chunk while it formats the one before (both in parallel, on rayon's
+/// pool) and hands the text over a bounded channel while this thread writes it. A chunk being planned, one being
+/// formatted and two in the channel bound the memory. Returns the lost ephemerides (target index to sigma in
+/// minutes).
 fn pipe_events(
     planner: &dipwatch::engine::plan::Planner<'_>,
     chunks: &[(NaiveDate, NaiveDate)],
