@@ -243,6 +243,7 @@ struct Counts {
 }
 
 impl Counts {
+    /// The counts of an exposure of `c.exposure_s` seconds of the star in `c` through `cam` in band `b`.
     fn of(b: &Band, cam: &Camera, c: &Conditions) -> Counts {
         let t = c.exposure_s;
         let collected = cam.area_m2() * cam.throughput * t;
