@@ -135,6 +135,11 @@ impl SkyTables {
         crate::astro::frames::wrap_to(gmst_rad(t) + self.frame(t).eqeq_rad, TAU)
     }
 
+    /// The equation of the equinoxes (apparent minus mean sidereal time) on the day nearest `t`, rad.
+    pub fn eqeq_rad(&self, t: f64) -> f64 {
+        self.frame(t).eqeq_rad
+    }
+
     /// Local apparent sidereal time at east longitude `lon_rad`, rad 0..2pi.
     pub fn last_rad(&self, t: f64, lon_rad: f64) -> f64 {
         crate::astro::frames::wrap_to(self.gast_rad(t) + lon_rad, TAU)
@@ -268,14 +273,18 @@ impl SkyTables {
             geo[2] - o[2] / 1000.0,
         ];
         let moon_alt = sin_alt(&topo, norm(&topo));
-        let psi = norm(&cross(&sun, &geo)).atan2(dot(&sun, &geo));
+        // The elongation psi has sin psi = |sun x moon| / n and cos psi = sun . moon / n (n = |sun| |moon|), and the
+        // phase angle i = atan2(y, x) with y = R sin psi, x = r - R cos psi (R, r: Sun and Moon distances), so
+        // cos i = x / sqrt(x^2 + y^2): the same fraction as the angles give, without inverse trigonometry.
+        let (c, d) = (norm(&cross(&sun, &geo)), dot(&sun, &geo));
+        let n = (c * c + d * d).sqrt();
         let (sun_km, moon_km) = (sun_au * AU_M / 1000.0, norm(&geo));
-        let i = (sun_km * psi.sin()).atan2(moon_km - sun_km * psi.cos());
+        let (y, x) = (sun_km * c / n, moon_km - sun_km * d / n);
         SunMoonSky {
             sun_alt_deg: sun_alt.to_degrees(),
             moon_topo_km: topo,
             moon_alt_deg: moon_alt.to_degrees(),
-            moon_illum: (1.0 + i.cos()) / 2.0,
+            moon_illum: (1.0 + x / (x * x + y * y).sqrt()) / 2.0,
         }
     }
 }

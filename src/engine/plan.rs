@@ -11,7 +11,7 @@ use crate::astro::barycentric::EarthTable;
 use crate::astro::crossings::{intervals_where_nonnegative, Interval, DEFAULT_STEP_DAYS};
 use crate::astro::frames::GMST_RATE_PER_UT1_DAY;
 use crate::astro::frames::{
-    alt_az_from_hadec_sc, floor_fast, gmst_rad, separation_rad, wrap_pi, Vec3,
+    alt_az_from_hadec_sc, floor_fast, gmst_rad, wrap_pi, Vec3,
 };
 use crate::astro::tables::SkyTables;
 use crate::astro::time::JdUtc;
@@ -438,10 +438,9 @@ pub fn nights_with(
 /// A target's apparent place of date frozen over one block (precession, nutation and aberration change by
 /// < 0.1" in a day), turned into altitude and azimuth at any instant from the sidereal time.
 pub(crate) struct Track {
-    /// The direction as a vector (length within 1e-4 of one), in the frame of `ra_rad` and `dec_rad`.
+    /// The direction as a vector (length within 1e-4 of one), in the frame of `ra_rad`.
     dir: Vec3,
     ra_rad: f64,
-    dec_rad: f64,
     eqeq_rad: f64,
     lon_rad: f64,
     /// (sin, cos) of the declination and of the latitude, computed once for every instant asked.
@@ -451,22 +450,23 @@ pub(crate) struct Track {
 
 impl Track {
     fn from_vec(dir: Vec3, eqeq_rad: f64, site: &Site) -> Track {
-        let (ra_rad, dec_rad) = crate::astro::frames::radec_from_vec(&dir);
+        // The declination's sine and cosine straight from the vector (z / r and hypot(x, y) / r): what
+        // sin and cos of its arctangent give, to rounding, without three library calls.
+        let rho = (dir[0] * dir[0] + dir[1] * dir[1]).sqrt();
+        let r = (rho * rho + dir[2] * dir[2]).sqrt();
         Track {
             dir,
-            ra_rad,
-            dec_rad,
+            ra_rad: crate::astro::frames::wrap_to(dir[1].atan2(dir[0]), TAU),
             eqeq_rad,
             lon_rad: site.observer.lon_rad,
-            sc_dec: (dec_rad.sin(), dec_rad.cos()),
+            sc_dec: (dir[2] / r, rho / r),
             sc_lat: site.observer.sin_cos_lat(),
         }
     }
 
     pub(crate) fn new(icrs: &Vec3, t_ref: f64, site: &Site, tables: &SkyTables) -> Track {
         let dir = tables.apparent_vec(icrs, t_ref);
-        let eqeq_rad = wrap_pi(tables.gast_rad(t_ref) - gmst_rad(t_ref));
-        Track::from_vec(dir, eqeq_rad, site)
+        Track::from_vec(dir, tables.eqeq_rad(t_ref), site)
     }
 
     /// The catalogue (ICRS) place as if it were the apparent one: within [`mean_place_error_deg`] of the
@@ -580,9 +580,13 @@ struct AltLimit {
 
 impl AltLimit {
     fn new(track: &Track, min_alt_deg: f64) -> AltLimit {
+        AltLimit::from_sin(track, min_alt_deg.to_radians().sin())
+    }
+
+    /// [`AltLimit::new`] with the sine of the altitude limit given (the same for every transit at a site).
+    fn from_sin(track: &Track, sh: f64) -> AltLimit {
         let (sl, cl) = track.sc_lat;
         let (sd, cd) = track.sc_dec;
-        let sh = min_alt_deg.to_radians().sin();
         let denom = cl * cd;
         let cos_h0 = if denom.abs() < 1e-12 {
             // At a pole, or a target at a celestial pole: the altitude does not change.
@@ -641,8 +645,7 @@ impl AltLimit {
 
 /// The sub-intervals of `block` where the target is at or above `min_alt_deg`, solved exactly for the frozen
 /// apparent place (see [`AltLimit`]).
-fn alt_intervals(track: &Track, min_alt_deg: f64, block: &Interval) -> Vec<Interval> {
-    let limit = AltLimit::new(track, min_alt_deg);
+fn alt_intervals(track: &Track, limit: AltLimit, block: &Interval) -> Vec<Interval> {
     if limit.cos_h0 <= -1.0 {
         return vec![*block];
     }
@@ -701,12 +704,14 @@ pub fn usable_intervals(
     let mid = 0.5 * (block.start + block.end);
     let tables = SkyTables::new(block.start - 1.0, block.end + 1.0);
     let track = Track::new(&target.icrs_at(mid), mid, site, &tables);
-    usable_intervals_on_track(&track, site, night, block, &tables)
+    let limit = AltLimit::new(&track, site.min_alt_deg);
+    usable_intervals_on_track(&track, (site, limit), night, block, &tables)
 }
 
+/// [`usable_intervals`] for a frozen track, with `limit` the site's lowest altitude as seen along it.
 fn usable_intervals_on_track(
     track: &Track,
-    site: &Site,
+    (site, limit): (&Site, AltLimit),
     night: &Night,
     block: &Interval,
     tables: &SkyTables,
@@ -728,10 +733,10 @@ fn usable_intervals_on_track(
         }
         *usable = intersect_lists(usable, &list);
     };
-    let alt_ok = alt_intervals(track, site.min_alt_deg, &block);
+    let alt_ok = alt_intervals(track, limit, &block);
     apply(alt_ok, Reason::BelowAltitudeLimit, &mut usable);
     if let Some(max_alt) = site.max_alt_deg {
-        let too_high = alt_intervals(track, max_alt, &block);
+        let too_high = alt_intervals(track, AltLimit::new(track, max_alt), &block);
         apply(
             complement_within(&too_high, &block),
             Reason::AboveAltitudeLimit,
@@ -761,8 +766,8 @@ fn usable_intervals_on_track(
     if let Some(min_sep) = site.min_moon_sep_deg {
         let f = |t: f64| {
             let m = tables.moon_topo(t, &site.observer).place;
-            let (mra, mdec) = (m.ra_rad, m.dec_rad);
-            separation_rad(track.ra_rad, track.dec_rad, mra, mdec).to_degrees() - min_sep
+            let moon = crate::astro::frames::unit_from_radec(m.ra_rad, m.dec_rad);
+            crate::astro::frames::angle_between_rad(&track.dir, &moon).to_degrees() - min_sep
         };
         let ok = intervals_where_nonnegative(&f, block.start, block.end, step * 3.0, &[]);
         apply(ok, Reason::MoonTooClose, &mut usable);
@@ -784,6 +789,8 @@ struct Pairing<'a> {
     /// The target's catalogue direction when it has no proper motion (the same at every instant, so computed
     /// once); `None` when it moves.
     icrs_fixed: Option<Vec3>,
+    /// The sine of the site's lowest usable altitude (for [`AltLimit::from_sin`]).
+    sin_min_alt: f64,
 }
 
 /// One predicted transit: epoch, mid-transit at the site (UTC JD) and its timing sigma (days).
@@ -880,7 +887,7 @@ fn meets_criteria(
 /// altitude limit means no event to list, whatever the other constraints say.
 fn cannot_be_listed(
     p: &Pairing<'_>,
-    (track, min_alt_deg): (&Track, f64),
+    (track, limit): (&Track, AltLimit),
     night: &Night,
     ingress: f64,
     egress: f64,
@@ -894,7 +901,7 @@ fn cannot_be_listed(
             end: egress,
         })
     });
-    !matches!(transit_dark, Some(w) if AltLimit::new(track, min_alt_deg).met_within(track, &w))
+    !matches!(transit_dark, Some(w) if limit.met_within(track, &w))
 }
 
 /// The expected noise of an event (None without a photometric set-up at the site or a magnitude for the target):
@@ -968,10 +975,12 @@ fn evaluate(p: &Pairing<'_>, t: Predicted, night: &Night) -> Option<Event> {
     let block = planned_block(p, ingress, egress, margin);
     let icrs = p.icrs_fixed.unwrap_or_else(|| p.target.icrs_at(t.mid_utc));
     let track = Track::new(&icrs, t.mid_utc, site, tables);
-    if cannot_be_listed(p, (&track, site.min_alt_deg), night, ingress, egress) {
+    let limit = AltLimit::from_sin(&track, p.sin_min_alt);
+    if cannot_be_listed(p, (&track, limit), night, ingress, egress) {
         return None;
     }
-    let (usable, mut reasons) = usable_intervals_on_track(&track, site, night, &block, tables);
+    let (usable, mut reasons) =
+        usable_intervals_on_track(&track, (site, limit), night, &block, tables);
     let lost = t.sigma_days > LOST_SIGMA_FRACTION_OF_PERIOD * p.target.ephemeris.period_days;
     let (coverage, run) = best_run(&usable, ingress, egress);
     let (verdict, before_min, after_min) =
@@ -1235,6 +1244,7 @@ impl<'a> Planner<'a> {
                     opts: self.opts,
                     tables,
                     icrs_fixed: target.icrs_fixed(),
+                    sin_min_alt: site.min_alt_deg.to_radians().sin(),
                 };
                 events_of_target(&pairing, &self.mids[ti], &nights, &range)
             })
@@ -1496,6 +1506,7 @@ pub(crate) mod tests_support {
 #[cfg(test)]
 mod mean_place_tests {
     use super::*;
+    use crate::astro::frames::separation_rad;
 
     /// The quick rejection is safe only if the catalogue place is never farther from the apparent place than
     /// the bound: checked against the apparent place (itself checked against ERFA in tests/reference.rs) for
@@ -1556,7 +1567,6 @@ mod index_tests {
             let track = Track {
                 dir: crate::astro::frames::unit_from_radec(ra, dec),
                 ra_rad: ra,
-                dec_rad: dec,
                 eqeq_rad: 0.0,
                 lon_rad: lon,
                 sc_dec: (dec.sin(), dec.cos()),
