@@ -652,7 +652,7 @@ pub fn write_atomically_with(
     let tmp = dir.join(format!(".{name}.{}.tmp", std::process::id()));
     let result = (|| -> Result<()> {
         let f = std::fs::File::create(&tmp)?;
-        let mut w = std::io::BufWriter::with_capacity(1 << 20, f);
+        let mut w = std::io::BufWriter::with_capacity(plan::OUTPUT_BUFFER_BYTES, f);
         fill(&mut w)?;
         let f = w.into_inner().map_err(|e| e.into_error())?;
         f.sync_all()?;

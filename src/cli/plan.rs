@@ -29,6 +29,11 @@ pub(super) fn run_plan(args: PlanArgs) -> Result<()> {
 /// instead of 88 (CSV; JSON 150).
 pub(super) const STREAM_CHUNK_NIGHTS: i64 = 64;
 
+/// The output buffer of a streamed plan. Smaller than the formatted pieces (about 1 MB each), which
+/// `BufWriter` then hands to the file or pipe whole instead of copying them through its buffer: 2% of the
+/// catalogue job's instructions were that copy with a 1 MiB buffer.
+pub(super) const OUTPUT_BUFFER_BYTES: usize = 64 * 1024;
+
 /// Plan and write CSV, ECSV or JSON site by site and [`STREAM_CHUNK_NIGHTS`] nights at a time, formatting the
 /// events in parallel and never holding the whole plan: the output is that of `report::plan_csv` (or the ECSV, or the same JSON document as
 /// `report::plan_json`, one event per line) of the whole plan. A progress bar shows on a terminal for long runs.
@@ -87,7 +92,7 @@ pub(super) fn stream_plan(
     let result = match out {
         None => {
             let stdout = std::io::stdout();
-            let mut w = std::io::BufWriter::with_capacity(1 << 20, stdout.lock());
+            let mut w = std::io::BufWriter::with_capacity(OUTPUT_BUFFER_BYTES, stdout.lock());
             match write_all(&mut w) {
                 Err(e)
                     if e.downcast_ref::<std::io::Error>()
