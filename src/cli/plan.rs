@@ -250,19 +250,13 @@ fn format_events(
     s.reserve(events.len() * per_event);
     match format {
         Format::Json => {
-            let keys = dipwatch::outputs::columns::json_keys(report::EVENT_COLUMNS);
             for (i, e) in events.iter().enumerate() {
                 if i > 0 {
                     s.extend_from_slice(b",\n");
                 }
                 s.extend_from_slice(b"    ");
                 let row = report::EventRow::of(e, sites, targets);
-                dipwatch::outputs::columns::push_json_object(
-                    report::EVENT_COLUMNS,
-                    &keys,
-                    |f| f(&row),
-                    &mut s,
-                );
+                dipwatch::outputs::columns::push_event_json_row(&row, &mut s);
             }
         }
         Format::Ecsv => {
