@@ -10,9 +10,7 @@ use crate::astro::atmosphere::airmass_kasten_young;
 use crate::astro::barycentric::EarthTable;
 use crate::astro::crossings::{intervals_where_nonnegative, Interval, DEFAULT_STEP_DAYS};
 use crate::astro::frames::GMST_RATE_PER_UT1_DAY;
-use crate::astro::frames::{
-    alt_az_from_hadec_sc, floor_fast, gmst_rad, wrap_pi, Vec3,
-};
+use crate::astro::frames::{alt_az_from_hadec_sc, floor_fast, gmst_rad, wrap_pi, Vec3};
 use crate::astro::tables::SkyTables;
 use crate::astro::time::JdUtc;
 use crate::engine::almanac::{dark_interval, night_window};

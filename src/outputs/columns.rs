@@ -872,7 +872,9 @@ mod tests {
         let mut odd = crate::engine::plan::tests_support::sample_event();
         odd.airmass_ingress = f64::INFINITY;
         odd.meridian_utc = Some(2_461_000.61);
-        odd.reasons = [Reason::Daylight, Reason::MoonTooClose].into_iter().collect();
+        odd.reasons = [Reason::Daylight, Reason::MoonTooClose]
+            .into_iter()
+            .collect();
         odd.noise = Some(crate::engine::noise::EventNoise {
             exposure_s: 45.0,
             noise_per_exposure_ppt: 1.234_5,
