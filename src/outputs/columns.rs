@@ -736,6 +736,7 @@ pub fn push_csv_text(s: &str, out: &mut Vec<u8>) {
 /// Append `x` with exactly `decimals` decimals (0-9) without the general float formatter: scale, round half
 /// away from zero, print the digits. Equal to `format!("{x:.decimals$}")` except that a negative value which
 /// rounds to zero prints as `0.00`, not `-0.00`.
+#[inline(always)]
 pub fn push_fixed(x: f64, decimals: u32, out: &mut Vec<u8>) {
     const SCALES: [f64; 10] = [1.0, 10.0, 100.0, 1e3, 1e4, 1e5, 1e6, 1e7, 1e8, 1e9];
     let decimals = decimals as usize;
