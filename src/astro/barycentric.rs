@@ -286,9 +286,8 @@ fn observer_icrs_au(jd_utc: JdUtc, observer: Option<&Observer>) -> Vec3 {
     // Rotated with the mean sidereal time only: leaving out precession since J2000 (50.3"/yr, so 0.5 deg in 2036
     // and 0.7 deg in 2050) and nutation (< 20") turns this <= 21 ms term by at most 0.7 deg through 2050, which
     // moves it by < 0.3 ms, and keeps the conversion cheap in loops.
-    let p = obs.geocentric_m(
-        (crate::astro::frames::gmst_rad(jd_utc.0) + obs.lon_rad).rem_euclid(std::f64::consts::TAU),
-    );
+    // The angle is not reduced: sine and cosine take any angle (`rem_euclid` was a library call per transit).
+    let p = obs.geocentric_m(crate::astro::frames::gmst_rad(jd_utc.0) + obs.lon_rad);
     [p[0] / AU_M, p[1] / AU_M, p[2] / AU_M]
 }
 

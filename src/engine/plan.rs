@@ -635,9 +635,13 @@ impl AltLimit {
         if self.cos_h0 >= 1.0 {
             return false;
         }
-        let mut met = false;
-        self.runs(ha_a, ha_b, |_, _| met = true);
-        met
+        // The runs are centred on multiples of 2 pi. Shifted so that the span starts in [-pi, pi), it can meet
+        // the run at 0 or, only past it, the run at 2 pi (the one at -2 pi ends before -pi): what `runs` finds,
+        // without its loop (this is asked of every transit in the first look).
+        let shift = TAU * floor_fast((ha_a + std::f64::consts::PI) / TAU);
+        let (a, b) = (ha_a - shift, ha_b - shift);
+        let h0 = self.h0_rad;
+        a < b && ((a < h0 && b > -h0) || b > TAU - h0)
     }
 }
 
@@ -1572,6 +1576,25 @@ mod index_tests {
             };
             let (upper, _) = track.culminations(start, start + len);
             prop_assert_eq!(track.first_upper_culmination(start, start + len), upper.first().copied());
+        }
+
+        /// The closed-form test of an hour-angle span against the altitude limit agrees with the runs found
+        /// by the loop, for spans up to two days long starting anywhere in ten turns.
+        #[test]
+        fn met_between_agrees_with_the_runs(
+            cos_h0 in -1.2f64..1.2,
+            ha_a in -60.0f64..60.0,
+            len in 0.0f64..13.0,
+        ) {
+            let limit = AltLimit {
+                cos_h0,
+                h0_rad: if cos_h0.abs() < 1.0 { cos_h0.acos() } else { 0.0 },
+            };
+            let mut by_runs = cos_h0 <= -1.0;
+            if cos_h0.abs() < 1.0 {
+                limit.runs(ha_a, ha_a + len, |_, _| by_runs = true);
+            }
+            prop_assert_eq!(limit.met_between(ha_a, ha_a + len), by_runs);
         }
 
         /// The night of an instant by its index guess, for windows a day apart starting at any time of day.
