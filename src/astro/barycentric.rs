@@ -113,14 +113,13 @@ impl EarthTable {
         lagrange4(jd_tdb - self.first_jd_tdb, self.bary_au.len())
     }
 
+    /// The weighted sum of rows i..i+4, each coordinate summed in node order (written out and inlined: it is
+    /// asked twice for each of the run's mid-times).
+    #[inline]
     fn combine(rows: &[Vec3], i: usize, w: &[f64; 4]) -> Vec3 {
-        let mut out = [0.0; 3];
-        for (k, wk) in w.iter().enumerate() {
-            for (o, r) in out.iter_mut().zip(rows[i + k].iter()) {
-                *o += wk * r;
-            }
-        }
-        out
+        let r = &rows[i..i + 4];
+        let sum = |j: usize| w[0] * r[0][j] + w[1] * r[1][j] + w[2] * r[2][j] + w[3] * r[3][j];
+        [sum(0), sum(1), sum(2)]
     }
 
     /// Barycentric position of the Earth, au, equatorial J2000. Falls back to VSOP87E outside the table.
