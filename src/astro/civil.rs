@@ -89,7 +89,7 @@ thread_local! {
 
 /// YYYY-MM-DD of a day counted from 1970-01-01 (days >= 0): the proleptic Gregorian "civil from days"
 /// algorithm of H. Hinnant, chrono-Compatible Low-Level Date Algorithms (2013).
-fn date_text(days: i64) -> [u8; 10] {
+pub(crate) fn date_text(days: i64) -> [u8; 10] {
     let z = days + 719_468;
     let era = z.div_euclid(146_097);
     let doe = z - era * 146_097;

@@ -478,15 +478,20 @@ impl Track {
         wrap_pi(gmst_rad(t) + self.eqeq_rad + self.lon_rad - self.ra_rad)
     }
 
+    /// Hour angle, rad, not wrapped (within -2 pi..4 pi): for its sine and cosine, which need no reduction.
+    fn ha_unwrapped_rad(&self, t: f64) -> f64 {
+        gmst_rad(t) + self.eqeq_rad + self.lon_rad - self.ra_rad
+    }
+
     /// Altitude, deg.
     pub(crate) fn alt_deg(&self, t: f64) -> f64 {
-        crate::astro::frames::alt_from_hadec_sc(self.ha_rad(t), self.sc_dec, self.sc_lat)
+        crate::astro::frames::alt_from_hadec_sc(self.ha_unwrapped_rad(t), self.sc_dec, self.sc_lat)
             .to_degrees()
     }
 
     /// (altitude deg, azimuth deg).
     pub(crate) fn alt_az_deg(&self, t: f64) -> (f64, f64) {
-        let (alt, az) = alt_az_from_hadec_sc(self.ha_rad(t), self.sc_dec, self.sc_lat);
+        let (alt, az) = alt_az_from_hadec_sc(self.ha_unwrapped_rad(t), self.sc_dec, self.sc_lat);
         (alt.to_degrees(), az.to_degrees())
     }
 

@@ -560,6 +560,12 @@ fn push_csv_value_as<const ECSV: bool>(v: &Value<'_>, out: &mut Vec<u8>) {
         }
         Value::Date(d) => {
             use chrono::Datelike;
+            // 1970-01-01 is day 719,163 of the common era; 9999-12-31 is day 2,932,896 after it.
+            let days = i64::from(d.num_days_from_ce()) - 719_163;
+            if (0..=2_932_896).contains(&days) {
+                out.extend_from_slice(&crate::astro::civil::date_text(days));
+                return;
+            }
             push_digits(d.year().max(0) as u64, 4, out);
             out.push(b'-');
             push_digits(u64::from(d.month()), 2, out);
@@ -928,6 +934,24 @@ mod tests {
             let s = into_text(s);
             let back: String = serde_json::from_str(&s).unwrap();
             assert_eq!(back, t);
+        }
+    }
+
+    #[test]
+    fn dates_match_chrono() {
+        let day = |y, m, d| chrono::NaiveDate::from_ymd_opt(y, m, d).unwrap();
+        let spans = [
+            (day(1, 1, 1), day(9999, 12, 31), 97),
+            (day(1968, 1, 1), day(1972, 12, 31), 1),
+            (day(9998, 1, 1), day(9999, 12, 31), 1),
+        ];
+        for (mut d, last, step) in spans {
+            while d <= last {
+                let mut s = Vec::new();
+                push_csv_value(&Value::Date(d), &mut s);
+                assert_eq!(into_text(s), d.format("%Y-%m-%d").to_string());
+                d += chrono::Duration::days(step);
+            }
         }
     }
 
