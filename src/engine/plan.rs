@@ -712,11 +712,118 @@ pub fn usable_intervals(
     let tables = SkyTables::new(block.start - 1.0, block.end + 1.0);
     let track = Track::new(&target.icrs_at(mid), mid, site, &tables);
     let limit = AltLimit::new(&track, site.min_alt_deg);
-    usable_intervals_on_track(&track, (site, limit), night, block, &tables)
+    let (usable, reasons) = usable_intervals_on_track(&track, (site, limit), night, block, &tables);
+    (usable.as_slice().to_vec(), reasons)
+}
+
+/// Usable intervals: up to two held in place (what a site with only darkness and an altitude limit gives a
+/// block shorter than a day), more in a list.
+enum Usable {
+    /// The first `.1` intervals of the array.
+    Inline([Interval; 2], usize),
+    /// Any number.
+    Listed(Vec<Interval>),
+}
+
+impl Usable {
+    fn as_slice(&self) -> &[Interval] {
+        match self {
+            Usable::Inline(a, n) => &a[..*n],
+            Usable::Listed(v) => v,
+        }
+    }
+}
+
+/// [`usable_intervals_on_track`] for a site whose only limits are darkness and its lowest altitude, and a block
+/// shorter than 0.9 day (so its hour angles meet at most two altitude runs): the same intervals, intersections
+/// and reasons, without building lists. `None` for any other site or block.
+fn usable_intervals_simple(
+    track: &Track,
+    (site, limit): (&Site, AltLimit),
+    night: &Night,
+    block: &Interval,
+) -> Option<(Usable, ReasonSet)> {
+    let simple = site.max_alt_deg.is_none()
+        && site.horizon.is_empty()
+        && site.hour_angle_limits_h.is_none()
+        && site.min_moon_sep_deg.is_none()
+        && block.end - block.start < 0.9;
+    if !simple {
+        return None;
+    }
+    let block = *block;
+    let empty = Interval {
+        start: 0.0,
+        end: 0.0,
+    };
+    let mut reasons = ReasonSet::new();
+    let dark = night.dark.and_then(|d| d.intersect(&block));
+    if !covers(dark.as_slice(), &block) {
+        reasons.insert(Reason::Daylight);
+    }
+    // The altitude runs, as `alt_intervals` finds them.
+    let mut alt = [empty; 2];
+    let mut n_alt = 0;
+    if limit.cos_h0 <= -1.0 {
+        alt[0] = block;
+        n_alt = 1;
+    } else if limit.cos_h0 < 1.0 {
+        let omega = TAU * GMST_RATE_PER_UT1_DAY;
+        let ha_a = track.ha_rad(block.start);
+        let ha_b = ha_a + omega * (block.end - block.start);
+        limit.runs(ha_a, ha_b, |a, b| {
+            if n_alt < 2 {
+                alt[n_alt] = Interval {
+                    start: block.start + (a - ha_a) / omega,
+                    end: block.start + (b - ha_a) / omega,
+                };
+            }
+            n_alt += 1;
+        });
+        if n_alt > 2 {
+            return None;
+        }
+    }
+    if !covers(&alt[..n_alt], &block) {
+        reasons.insert(Reason::BelowAltitudeLimit);
+    }
+    // The dark part (at most one interval) cut by the runs, as `intersect_lists` does it.
+    let mut usable = [empty; 2];
+    let mut n = 0;
+    if let Some(d) = dark {
+        for a in &alt[..n_alt] {
+            if let Some(x) = d.intersect(a) {
+                usable[n] = x;
+                n += 1;
+            }
+            if d.end < a.end {
+                break;
+            }
+        }
+    }
+    Some((Usable::Inline(usable, n), reasons))
 }
 
 /// [`usable_intervals`] for a frozen track, with `limit` the site's lowest altitude as seen along it.
 fn usable_intervals_on_track(
+    track: &Track,
+    (site, limit): (&Site, AltLimit),
+    night: &Night,
+    block: &Interval,
+    tables: &SkyTables,
+) -> (Usable, ReasonSet) {
+    match usable_intervals_simple(track, (site, limit), night, block) {
+        Some(simple) => simple,
+        None => {
+            let (list, reasons) =
+                usable_intervals_listed(track, (site, limit), night, block, tables);
+            (Usable::Listed(list), reasons)
+        }
+    }
+}
+
+/// [`usable_intervals_on_track`] for any site and block, building a list per constraint.
+fn usable_intervals_listed(
     track: &Track,
     (site, limit): (&Site, AltLimit),
     night: &Night,
@@ -989,7 +1096,7 @@ fn evaluate(p: &Pairing<'_>, t: Predicted, night: &Night) -> Option<Event> {
     let (usable, mut reasons) =
         usable_intervals_on_track(&track, (site, limit), night, &block, tables);
     let lost = t.sigma_days > LOST_SIGMA_FRACTION_OF_PERIOD * p.target.ephemeris.period_days;
-    let (coverage, run) = best_run(&usable, ingress, egress);
+    let (coverage, run) = best_run(usable.as_slice(), ingress, egress);
     let (verdict, before_min, after_min) =
         for_kind(p, judge_run(run, ingress, egress, margin, opts));
     let mut observable = meets_criteria(p, verdict, coverage, lost, &mut reasons);
@@ -1600,6 +1707,41 @@ mod index_tests {
                 limit.runs(ha_a, ha_a + len, |_, _| by_runs = true);
             }
             prop_assert_eq!(limit.met_between(ha_a, ha_a + len), by_runs);
+        }
+
+        /// The in-place path for simple sites gives the intervals and reasons of the general one, for any
+        /// direction, site latitude, dark interval and block.
+        #[test]
+        fn simple_usable_intervals_match_the_lists(
+            ra in 0.0f64..std::f64::consts::TAU,
+            dec in -1.5f64..1.5,
+            lat in -1.4f64..1.4,
+            min_alt in -5.0f64..80.0,
+            start in 2_461_000.0f64..2_461_001.0,
+            len in 0.01f64..0.89,
+            dark_from in -0.5f64..0.5,
+            dark_len in 0.0f64..0.8,
+            has_dark in proptest::bool::ANY,
+        ) {
+            let tables = SkyTables::new(2_460_998.0, 2_461_003.0);
+            let text = format!(
+                "[[site]]\nname = \"P\"\nlatitude_deg = {}\nlongitude_deg = 10.0\nelevation_m = 0\ntimezone = \"UTC\"\nmin_alt_deg = {min_alt}\n",
+                lat.to_degrees()
+            );
+            let site = &crate::inputs::sites::parse_sites("p.toml", &text).expect("site")[0];
+            let icrs = crate::astro::frames::unit_from_radec(ra, dec);
+            let track = Track::new(&icrs, start + len / 2.0, site, &tables);
+            let limit = AltLimit::new(&track, site.min_alt_deg);
+            let block = Interval { start, end: start + len };
+            let night = Night {
+                night_of: NaiveDate::from_ymd_opt(2026, 1, 1).expect("date"),
+                window: Interval { start: start - 0.5, end: start + 0.5 },
+                dark: has_dark.then_some(Interval { start: start + dark_from, end: start + dark_from + dark_len }),
+            };
+            let (simple, r1) = usable_intervals_simple(&track, (site, limit), &night, &block).expect("simple site");
+            let (listed, r2) = usable_intervals_listed(&track, (site, limit), &night, &block, &tables);
+            prop_assert_eq!(simple.as_slice(), listed.as_slice());
+            prop_assert_eq!(r1, r2);
         }
 
         /// The night of an instant by its index guess, for windows a day apart starting at any time of day.
