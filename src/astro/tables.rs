@@ -117,11 +117,10 @@ impl SkyTables {
     }
 
     fn frame(&self, t: f64) -> &Frame {
-        // The nearest day: rounding half up by truncation (no library call; negative offsets clamp to 0 either way).
-        let x = t - self.first_day_utc;
-        let f = crate::astro::frames::floor_fast(x);
-        let nearest = if x - f >= 0.5 { f + 1.0 } else { f };
-        let i = (nearest.max(0.0) as usize).min(self.frames.len() - 1);
+        // The nearest day: rounding half up by truncation (no library call; negative offsets, which truncate
+        // towards zero, clamp to 0 either way), clamped in integers.
+        let nearest = (t - self.first_day_utc + 0.5) as i64;
+        let i = nearest.clamp(0, self.frames.len() as i64 - 1) as usize;
         &self.frames[i]
     }
 
