@@ -128,7 +128,8 @@ pub fn scintillation_rel(
     airmass: f64,
     altitude_m: f64,
 ) -> f64 {
-    (1e-5 * cy * cy * aperture_m.powf(-4.0 / 3.0) / exposure_s
+    // D^-4/3 as 1 / (D cbrt D): a cube root instead of a general power.
+    (1e-5 * cy * cy / (aperture_m * aperture_m.cbrt()) / exposure_s
         * airmass.powi(3)
         * (-2.0 * altitude_m / 8000.0).exp())
     .sqrt()
@@ -162,7 +163,8 @@ pub struct MoonSky {
 /// Krisciunas & Schaefer (1991) X(Z) = (1 - 0.96 sin^2 Z)^(-1/2): the airmass of their eqs. 2 and 3, kept
 /// finite at the horizon (Z in deg).
 fn ks_airmass(zenith_deg: f64) -> f64 {
-    (1.0 - 0.96 * zenith_deg.to_radians().sin().powi(2)).powf(-0.5)
+    // x^-1/2 as 1 / sqrt(x): a square root instead of a general power (three per event).
+    1.0 / (1.0 - 0.96 * zenith_deg.to_radians().sin().powi(2)).sqrt()
 }
 
 /// Surface brightness in nanolamberts from V mag/arcsec^2, and back: Krisciunas & Schaefer (1991) eqs. 1 and
@@ -182,6 +184,11 @@ fn v_from_nanolamberts(b: f64) -> f64 {
 /// extinction coefficient. None when the Moon is below the horizon. Their stated accuracy is 8-23% against
 /// measurements; the model is for V only (see [`sky_mag_arcsec2`] for other bands).
 pub fn moonlight_v_mag(moon: &MoonSky, target_alt_deg: f64, k_v: f64) -> Option<f64> {
+    moonlight_v_nanolamberts(moon, target_alt_deg, k_v).map(v_from_nanolamberts)
+}
+
+/// [`moonlight_v_mag`] in nanolamberts (the unit its sum with the dark sky takes).
+fn moonlight_v_nanolamberts(moon: &MoonSky, target_alt_deg: f64, k_v: f64) -> Option<f64> {
     if moon.alt_deg <= 0.0 {
         return None;
     }
@@ -197,7 +204,7 @@ pub fn moonlight_v_mag(moon: &MoonSky, target_alt_deg: f64, k_v: f64) -> Option<
         * i_moon
         * pow10(-0.4 * k_v * ks_airmass(z_moon))
         * (1.0 - pow10(-0.4 * k_v * ks_airmass(z)));
-    Some(v_from_nanolamberts(b))
+    Some(b)
 }
 
 /// The sky at a target: the dark sky's zenith brightness `dark_zenith_mag` brightened towards the horizon
@@ -216,9 +223,11 @@ pub fn sky_mag_arcsec2(
 ) -> f64 {
     let x = ks_airmass((90.0 - target_alt_deg).clamp(0.0, 90.0));
     let dark_nl = nanolamberts_from_v(dark_zenith_mag) * pow10(-0.4 * k * (x - 1.0)) * x;
+    // V - (V - band) in mag is V's nanolamberts times exp(0.92104 (V - band)) (eq. 27's slope), without the
+    // round trip through magnitudes.
     let moon_nl = moon
-        .and_then(|m| moonlight_v_mag(m, target_alt_deg, k_v))
-        .map_or(0.0, |v| nanolamberts_from_v(v - band.sun_v_minus_band));
+        .and_then(|m| moonlight_v_nanolamberts(m, target_alt_deg, k_v))
+        .map_or(0.0, |nl| nl * (0.92104 * band.sun_v_minus_band).exp());
     v_from_nanolamberts(dark_nl + moon_nl)
 }
 
