@@ -905,6 +905,18 @@ struct Pairing<'a> {
     icrs_fixed: Option<Vec3>,
     /// The sine of the site's lowest usable altitude (for [`AltLimit::from_sin`]).
     sin_min_alt: f64,
+    /// Whether the noise can be computed: the site has a photometric set-up and the target a magnitude in its
+    /// band (V when the targets file does not say).
+    noise_band_ok: bool,
+}
+
+/// See [`Pairing::noise_band_ok`].
+fn noise_band_ok(site: &Site, target: &Target) -> bool {
+    let named = |b: &str| crate::engine::noise::band(b).map(|b| b.name);
+    match (&site.photometry, target.mag) {
+        (Some(ph), Some(_)) => named(target.mag_band.as_deref().unwrap_or("V")) == named(&ph.band),
+        _ => false,
+    }
 }
 
 /// One predicted transit: epoch, mid-transit at the site (UTC JD) and its timing sigma (days).
@@ -1020,22 +1032,23 @@ fn cannot_be_listed(
 
 /// The expected noise of an event (None without a photometric set-up at the site or a magnitude for the target):
 /// at the airmass of mid-transit, with the usable in-transit time (coverage x T14) and baselines (minutes).
+/// `at` is the instant and, when already known there, the target's altitude (deg) and airmass.
 fn expected_noise(
     p: &Pairing<'_>,
     track: &Track,
-    (mid_utc, moon): (f64, crate::engine::noise::MoonSky),
+    ((jd_utc, known), moon): ((f64, Option<(f64, f64)>), crate::engine::noise::MoonSky),
     coverage: f64,
     baseline_min: f64,
 ) -> Option<crate::engine::noise::EventNoise> {
-    let ph = p.site.photometry.as_ref()?;
-    let mag = p.target.mag?;
-    // The magnitude must be in the set-up's band (V when the targets file does not say).
-    let named = |b: &str| crate::engine::noise::band(b).map(|b| b.name);
-    if named(p.target.mag_band.as_deref().unwrap_or("V")) != named(&ph.band) {
+    if !p.noise_band_ok {
         return None;
     }
-    let alt_deg = track.alt_deg(mid_utc);
-    let airmass = airmass_kasten_young(alt_deg);
+    let ph = p.site.photometry.as_ref()?;
+    let mag = p.target.mag?;
+    let (alt_deg, airmass) = known.unwrap_or_else(|| {
+        let alt_deg = track.alt_deg(jd_utc);
+        (alt_deg, airmass_kasten_young(alt_deg))
+    });
     if !airmass.is_finite() {
         return None;
     }
@@ -1114,14 +1127,17 @@ fn evaluate(p: &Pairing<'_>, t: Predicted, night: &Night) -> Option<Event> {
     };
     // A window's star is judged where it is observed: the middle of the usable run (a long window's centre may
     // be in daylight or below the horizon).
-    let noise_jd = match run {
-        Some(r) if p.target.kind.is_window() => 0.5 * (r.start + r.end),
-        _ => t.mid_utc,
+    // The mid-transit altitude and airmass, listed with the event, serve the noise too.
+    let (alt_mid, az_mid) = track.alt_az_deg(t.mid_utc);
+    let airmass_mid = airmass_kasten_young(alt_mid);
+    let noise_at = match run {
+        Some(r) if p.target.kind.is_window() => (0.5 * (r.start + r.end), None),
+        _ => (t.mid_utc, Some((alt_mid, airmass_mid))),
     };
     let noise = expected_noise(
         p,
         &track,
-        (noise_jd, moon_sky),
+        (noise_at, moon_sky),
         coverage,
         before_min + after_min,
     );
@@ -1141,7 +1157,6 @@ fn evaluate(p: &Pairing<'_>, t: Predicted, night: &Night) -> Option<Event> {
     // that no printed start or end (HH:MM, calendar seconds, countdown) lies outside what is possible.
     let acted = inward_to_minutes(run.unwrap_or(block));
     let alt_in = track.alt_deg(ingress);
-    let (alt_mid, az_mid) = track.alt_az_deg(t.mid_utc);
     let alt_eg = track.alt_deg(egress);
     let (sun_alt, moon_alt, moon_illum) = (sky.sun_alt_deg, sky.moon_alt_deg, sky.moon_illum);
     Some(Event {
@@ -1171,7 +1186,7 @@ fn evaluate(p: &Pairing<'_>, t: Predicted, night: &Night) -> Option<Event> {
         alt_block_start_deg: track.alt_deg(acted.start),
         alt_block_end_deg: track.alt_deg(acted.end),
         airmass_ingress: airmass_kasten_young(alt_in),
-        airmass_mid: airmass_kasten_young(alt_mid),
+        airmass_mid,
         airmass_egress: airmass_kasten_young(alt_eg),
         az_mid_deg: az_mid,
         sun_alt_mid_deg: sun_alt,
@@ -1359,6 +1374,7 @@ impl<'a> Planner<'a> {
                     tables,
                     icrs_fixed: target.icrs_fixed(),
                     sin_min_alt: site.min_alt_deg.to_radians().sin(),
+                    noise_band_ok: noise_band_ok(site, target),
                 };
                 events_of_target(&pairing, &self.mids[ti], &nights, &range)
             })
