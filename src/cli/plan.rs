@@ -114,8 +114,9 @@ pub(super) fn stream_plan(
 /// Plan and format every telescope-chunk of nights of the run and write it to `w`, computing overlapped with
 /// writing: a producer thread plans each chunk while it formats the one before (both in parallel, on rayon's
 /// pool) and hands the text over a bounded channel while this thread writes it. A chunk being planned, one being
-/// formatted and two in the channel bound the memory. Returns the lost ephemerides (target index to sigma in
-/// minutes).
+/// formatted, one in the channel and the one being written bound the memory: with a slow disk, a channel of two
+/// took the JSON job to 297 MiB (one: see the README's figures), and a deeper queue cannot write faster.
+/// Returns the lost ephemerides (target index to sigma in minutes).
 fn pipe_events(
     planner: &dipwatch::engine::plan::Planner<'_>,
     chunks: &[(NaiveDate, NaiveDate)],
@@ -125,7 +126,7 @@ fn pipe_events(
     w: &mut dyn Write,
 ) -> Result<std::collections::BTreeMap<usize, f64>> {
     use rayon::prelude::*;
-    let (tx, rx) = std::sync::mpsc::sync_channel::<Vec<Vec<u8>>>(2);
+    let (tx, rx) = std::sync::mpsc::sync_channel::<Vec<Vec<u8>>>(1);
     // Written text buffers come back here for the next chunks: fresh ones would be new pages from the
     // system, zeroed by the kernel, for every megabyte of output.
     let spare: std::sync::Mutex<Vec<Vec<u8>>> = std::sync::Mutex::new(Vec::new());
