@@ -475,7 +475,7 @@ impl Track {
 
     /// Hour angle, rad -pi..pi (west +).
     fn ha_rad(&self, t: f64) -> f64 {
-        wrap_pi(gmst_rad(t) + self.eqeq_rad + self.lon_rad - self.ra_rad)
+        wrap_pi(self.ha_unwrapped_rad(t))
     }
 
     /// Hour angle, rad, not wrapped (within -2 pi..4 pi): for its sine and cosine, which need no reduction.
@@ -653,24 +653,31 @@ impl AltLimit {
 /// The sub-intervals of `block` where the target is at or above `min_alt_deg`, solved exactly for the frozen
 /// apparent place (see [`AltLimit`]).
 fn alt_intervals(track: &Track, limit: AltLimit, block: &Interval) -> Vec<Interval> {
+    // A block shorter than a sidereal day meets at most two runs.
+    let mut out = Vec::with_capacity(2);
+    alt_runs(track, limit, block, |iv| out.push(iv));
+    out
+}
+
+/// Each sub-interval of `block` where the target is at or above the limit, in time order (what
+/// [`alt_intervals`] lists).
+fn alt_runs(track: &Track, limit: AltLimit, block: &Interval, mut each: impl FnMut(Interval)) {
     if limit.cos_h0 <= -1.0 {
-        return vec![*block];
+        each(*block);
+        return;
     }
     if limit.cos_h0 >= 1.0 {
-        return Vec::new();
+        return;
     }
     let omega = TAU * GMST_RATE_PER_UT1_DAY;
     let ha_a = track.ha_rad(block.start);
     let ha_b = ha_a + omega * (block.end - block.start);
-    // A block shorter than a sidereal day meets at most two runs.
-    let mut out = Vec::with_capacity(2);
     limit.runs(ha_a, ha_b, |a, b| {
-        out.push(Interval {
+        each(Interval {
             start: block.start + (a - ha_a) / omega,
             end: block.start + (b - ha_a) / omega,
         });
     });
-    out
 }
 
 /// Intersect two sorted lists of disjoint intervals.
@@ -761,28 +768,16 @@ fn usable_intervals_simple(
     if !covers(dark.as_slice(), &block) {
         reasons.insert(Reason::Daylight);
     }
-    // The altitude runs, as `alt_intervals` finds them.
     let mut alt = [empty; 2];
     let mut n_alt = 0;
-    if limit.cos_h0 <= -1.0 {
-        alt[0] = block;
-        n_alt = 1;
-    } else if limit.cos_h0 < 1.0 {
-        let omega = TAU * GMST_RATE_PER_UT1_DAY;
-        let ha_a = track.ha_rad(block.start);
-        let ha_b = ha_a + omega * (block.end - block.start);
-        limit.runs(ha_a, ha_b, |a, b| {
-            if n_alt < 2 {
-                alt[n_alt] = Interval {
-                    start: block.start + (a - ha_a) / omega,
-                    end: block.start + (b - ha_a) / omega,
-                };
-            }
-            n_alt += 1;
-        });
-        if n_alt > 2 {
-            return None;
+    alt_runs(track, limit, &block, |iv| {
+        if n_alt < 2 {
+            alt[n_alt] = iv;
         }
+        n_alt += 1;
+    });
+    if n_alt > 2 {
+        return None;
     }
     if !covers(&alt[..n_alt], &block) {
         reasons.insert(Reason::BelowAltitudeLimit);
