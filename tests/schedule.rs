@@ -336,7 +336,7 @@ fn plan_and_schedule_print_the_shared_columns_byte_for_byte() {
     let chosen = schedule(&tels, &targets, &ScoreWeights::default(), 10.0, false);
     assert!(chosen.len() >= 3);
     let mut plan_out = Vec::new();
-    dipwatch::outputs::push_event_csv_rows(&events, &sites, &targets, &mut plan_out);
+    dipwatch::outputs::push_event_csv_rows(&events, (&sites, &targets), None, &mut plan_out);
     let plan_out = String::from_utf8(plan_out).unwrap();
     let plan_lines: Vec<&str> = plan_out.lines().collect();
     let sched = dipwatch::outputs::schedule_csv(&chosen, &tels, &sites, &targets);

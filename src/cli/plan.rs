@@ -137,6 +137,8 @@ fn pipe_events(
             .and_then(|mut v| v.pop())
             .unwrap_or_default()
     };
+    // The per-target and per-station fields, written once for the whole run.
+    let text = report::RowText::new(sites, targets);
     std::thread::scope(|scope| -> Result<_> {
         let producer = scope.spawn(|| {
             // Owned here, so the channel closes when planning ends.
@@ -145,7 +147,7 @@ fn pipe_events(
             let format_plan = |sp: dipwatch::engine::plan::SitePlan| -> Vec<Vec<u8>> {
                 sp.events
                     .par_chunks(2048)
-                    .map(|c| format_events(c, sites, targets, format, take_buffer()))
+                    .map(|c| format_events(c, (sites, targets), &text, format, take_buffer()))
                     .filter(|p| !p.is_empty())
                     .collect()
             };
@@ -242,8 +244,8 @@ fn stream_head(
 /// appended to `s` (an empty buffer, perhaps with room from earlier chunks).
 fn format_events(
     events: &[dipwatch::engine::plan::Event],
-    sites: &[Site],
-    targets: &[Target],
+    inputs: (&[Site], &[Target]),
+    text: &report::RowText,
     format: Format,
     mut s: Vec<u8>,
 ) -> Vec<u8> {
@@ -256,14 +258,14 @@ fn format_events(
                     s.extend_from_slice(b",\n");
                 }
                 s.extend_from_slice(b"    ");
-                let row = report::EventRow::of(e, sites, targets);
+                let row = report::EventRow::with_text(e, inputs, text);
                 dipwatch::outputs::columns::push_event_json_row(&row, &mut s);
             }
         }
         Format::Ecsv => {
-            dipwatch::outputs::columns::push_event_ecsv_rows(events, sites, targets, &mut s)
+            dipwatch::outputs::columns::push_event_ecsv_rows(events, inputs, Some(text), &mut s)
         }
-        _ => report::push_event_csv_rows(events, sites, targets, &mut s),
+        _ => report::push_event_csv_rows(events, inputs, Some(text), &mut s),
     }
     s
 }

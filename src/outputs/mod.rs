@@ -12,7 +12,7 @@ mod tonight;
 
 pub use columns::{
     csv_header, event_field_names, event_json, events_ecsv, push_event_csv_rows, Column, EventRow,
-    Meta, Value, EVENT_COLUMNS,
+    Meta, RowText, Value, EVENT_COLUMNS,
 };
 pub use nights::{nights_csv, nights_json, nights_table, NightRecord, NIGHT_FIELDS};
 pub use plan::{lost_json, plan_csv, plan_json, plan_table, site_json};

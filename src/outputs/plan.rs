@@ -20,7 +20,7 @@ fn event_objects(plan: &Plan, sites: &[Site], targets: &[Target]) -> Vec<serde_j
 pub fn plan_csv(plan: &Plan, sites: &[Site], targets: &[Target]) -> String {
     let mut out = csv_header().into_bytes();
     for sp in &plan.sites {
-        push_event_csv_rows(&sp.events, sites, targets, &mut out);
+        push_event_csv_rows(&sp.events, (sites, targets), None, &mut out);
     }
     into_text(out)
 }
