@@ -29,7 +29,7 @@ pub fn airmass_kasten_young(true_alt_deg: f64) -> f64 {
     if h + 6.079_95 <= 0.0 {
         return f64::INFINITY;
     }
-    let denom = h.to_radians().sin() + 0.505_72 * (h + 6.079_95).powf(-1.636_4);
+    let denom = h.to_radians().sin() + 0.505_72 * (-1.636_4 * (h + 6.079_95).ln()).exp();
     if denom <= 0.0 {
         f64::INFINITY
     } else {
