@@ -4,6 +4,8 @@
 //! - `subset/engine` vs `subset/brute_force`: the same job (20 targets, 1 site, 30 nights) through the engine
 //!   and through the brute-force 1-minute sampler `dipwatch::testing::oracle::brute_force_site`; the ratio of the two
 //!   medians is the speed-up the README reports.
+//! - `rows/csv` and `rows/json`: the streamed writers' rows (with the run's per-target text) of every event of
+//!   `plan/1000x3x30`, on one thread: the formatting half of the catalogue job without its planning half.
 
 use chrono::NaiveDate;
 use criterion::{criterion_group, criterion_main, Criterion};
@@ -45,6 +47,40 @@ fn engine(c: &mut Criterion) {
     g.sample_size(10);
     g.bench_function("1000x3x30", |b| {
         b.iter(|| black_box(plan(&sites, &targets, &opts)))
+    });
+    g.finish();
+
+    let events: Vec<_> = plan(&sites, &targets, &opts)
+        .sites
+        .into_iter()
+        .flat_map(|sp| sp.events)
+        .collect();
+    let text = dipwatch::outputs::RowText::new(&sites, &targets);
+    let mut g = c.benchmark_group("rows");
+    g.sample_size(20);
+    g.throughput(criterion::Throughput::Elements(events.len() as u64));
+    let mut out = Vec::with_capacity(events.len() * 1536);
+    g.bench_function("csv", |b| {
+        b.iter(|| {
+            out.clear();
+            dipwatch::outputs::push_event_csv_rows(
+                &events,
+                (&sites, &targets),
+                Some(&text),
+                &mut out,
+            );
+            black_box(out.len())
+        })
+    });
+    g.bench_function("json", |b| {
+        b.iter(|| {
+            out.clear();
+            for e in &events {
+                let row = dipwatch::outputs::EventRow::with_text(e, (&sites, &targets), &text);
+                dipwatch::outputs::columns::push_event_json_row(&row, &mut out);
+            }
+            black_box(out.len())
+        })
     });
     g.finish();
 
