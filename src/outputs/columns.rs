@@ -46,59 +46,43 @@ impl<'a> EventRow<'a> {
         }
     }
 
-    /// The written field `pick` of this row's target, when the row has [`RowText`].
+    /// Field `k` of this row's target's text ([`TARGET_NAME`] ...), when the row has [`RowText`].
     #[inline(always)]
-    fn target_text(&self, pick: impl Fn(&TargetText) -> &Written) -> Option<Value<'a>> {
-        let t = self.text?.targets.get(self.event.target_index)?;
-        Some(Value::Written(pick(t)))
+    fn target_text(&self, k: usize) -> Option<Value<'a>> {
+        let text = self.text?;
+        let at = text.targets.get(self.event.target_index)?;
+        text.field(at, k)
     }
 
-    /// The written field `pick` of this row's station, when the row has [`RowText`].
+    /// Field `k` of this row's station's text ([`STATION_SITE`] or [`STATION_TELESCOPE`]), when the row has
+    /// [`RowText`].
     #[inline(always)]
-    fn station_text(&self, pick: impl Fn(&StationText) -> &Written) -> Option<Value<'a>> {
-        let s = self
-            .text?
+    fn station_text(&self, k: usize) -> Option<Value<'a>> {
+        let text = self.text?;
+        let at = text
             .stations
             .get(self.event.site_index)?
             .get(self.event.telescope_index)?;
-        Some(Value::Written(pick(s)))
+        text.field(at, k)
     }
 }
 
-/// A value already written as a CSV field and as a JSON value (the same in ECSV as in CSV: text and numbers
-/// only).
-#[derive(Debug, Clone, PartialEq)]
-pub struct Written {
-    csv: Box<[u8]>,
-    json: Box<[u8]>,
-}
+/// The fields of a target in [`RowText`], in this order.
+const TARGET_NAME: usize = 0;
+const TARGET_KIND: usize = 1;
+const TARGET_DEPTH: usize = 2;
+const TARGET_PRIORITY: usize = 3;
+/// The fields of a station in [`RowText`].
+const STATION_SITE: usize = 0;
+const STATION_TELESCOPE: usize = 1;
 
-impl Written {
-    fn of(v: &Value<'_>) -> Written {
-        let (mut csv, mut json) = (Vec::new(), Vec::new());
-        push_csv_value(v, &mut csv);
-        push_json_value(v, &mut json);
-        Written {
-            csv: csv.into(),
-            json: json.into(),
-        }
-    }
-}
-
-/// The fields of a target, written once for all its rows.
-#[derive(Debug)]
-pub struct TargetText {
-    name: Written,
-    kind: Written,
-    depth: Written,
-    priority: Written,
-}
-
-/// The fields of a station (a site's telescope), written once for all its rows.
-#[derive(Debug)]
-pub struct StationText {
-    site: Written,
-    telescope: Written,
+/// Where one target's (or station's) fields are in [`RowText`]'s text: field k is `csv[csv_at[k]..csv_at[k +
+/// 1]]`, and the same in `json`. A target's fields are next to each other, so a row reads them from one or two
+/// cache lines (separate allocations per field cost a cache miss each: rows take targets in no order).
+#[derive(Debug, Clone, Copy)]
+struct Spans {
+    csv_at: [usize; 5],
+    json_at: [usize; 5],
 }
 
 /// The fields of a run's rows that depend only on the target (name, kind, depth, priority) or the station (site,
@@ -107,36 +91,66 @@ pub struct StationText {
 /// the same functions the columns use, so a row with it is written exactly as one without.
 #[derive(Debug)]
 pub struct RowText {
-    targets: Vec<TargetText>,
+    /// Every field as CSV (the same in ECSV: text and numbers only), target after target.
+    csv: Vec<u8>,
+    /// Every field as a JSON value.
+    json: Vec<u8>,
+    targets: Vec<Spans>,
     /// Per site, per telescope.
-    stations: Vec<Vec<StationText>>,
+    stations: Vec<Vec<Spans>>,
 }
 
 impl RowText {
     /// The written fields of every target and station of the inputs.
     pub fn new(sites: &[Site], targets: &[Target]) -> RowText {
-        RowText {
-            targets: targets
-                .iter()
-                .map(|t| TargetText {
-                    name: Written::of(&target_name(t)),
-                    kind: Written::of(&target_kind(t)),
-                    depth: Written::of(&target_depth(t)),
-                    priority: Written::of(&target_priority(t)),
-                })
-                .collect(),
-            stations: sites
-                .iter()
-                .map(|s| {
-                    (0..s.telescopes.len().max(1))
-                        .map(|k| StationText {
-                            site: Written::of(&site_name(s)),
-                            telescope: Written::of(&telescope_name(s, k)),
-                        })
-                        .collect()
-                })
-                .collect(),
+        let mut text = RowText {
+            csv: Vec::new(),
+            json: Vec::new(),
+            targets: Vec::with_capacity(targets.len()),
+            stations: Vec::with_capacity(sites.len()),
+        };
+        for t in targets {
+            let spans = text.push(&[
+                target_name(t),
+                target_kind(t),
+                target_depth(t),
+                target_priority(t),
+            ]);
+            text.targets.push(spans);
         }
+        for s in sites {
+            let per_telescope = (0..s.telescopes.len().max(1))
+                .map(|k| text.push(&[site_name(s), telescope_name(s, k)]))
+                .collect();
+            text.stations.push(per_telescope);
+        }
+        text
+    }
+
+    /// Write `values` (at most four) one after another, and say where they are.
+    fn push(&mut self, values: &[Value<'_>]) -> Spans {
+        let mut spans = Spans {
+            csv_at: [self.csv.len(); 5],
+            json_at: [self.json.len(); 5],
+        };
+        for (k, v) in values.iter().enumerate().take(4) {
+            push_csv_value(v, &mut self.csv);
+            push_json_value(v, &mut self.json);
+            spans.csv_at[k + 1] = self.csv.len();
+            spans.json_at[k + 1] = self.json.len();
+        }
+        spans
+    }
+
+    /// Field `k` of `at` as a value.
+    #[inline(always)]
+    fn field(&self, at: &Spans, k: usize) -> Option<Value<'_>> {
+        let range =
+            |a: &[usize; 5]| a.get(k).copied().unwrap_or(0)..a.get(k + 1).copied().unwrap_or(0);
+        Some(Value::Written {
+            csv: self.csv.get(range(&at.csv_at))?,
+            json: self.json.get(range(&at.json_at))?,
+        })
     }
 }
 
@@ -196,8 +210,13 @@ pub enum Value<'a> {
     Reasons(ReasonSet),
     /// Missing: empty in CSV, null in JSON.
     Null,
-    /// Written already (see [`RowText`]).
-    Written(&'a Written),
+    /// Written already (see [`RowText`]): as a CSV field and as a JSON value.
+    Written {
+        /// The CSV (and ECSV) field.
+        csv: &'a [u8],
+        /// The JSON value.
+        json: &'a [u8],
+    },
 }
 
 /// What a column holds, for self-describing formats (ECSV): its datatype, unit and a short description.
@@ -271,24 +290,24 @@ event_columns! {
     Column {
         name: "target",
         meta: Meta { datatype: "string", unit: None, description: "target name" },
-        value: |r| r.target_text(|t| &t.name).unwrap_or_else(|| target_name(r.target)),
+        value: |r| r.target_text(TARGET_NAME).unwrap_or_else(|| target_name(r.target)),
     },
     Column {
         name: "site",
         meta: Meta { datatype: "string", unit: None, description: "site name" },
-        value: |r| r.station_text(|s| &s.site).unwrap_or_else(|| site_name(r.site)),
+        value: |r| r.station_text(STATION_SITE).unwrap_or_else(|| site_name(r.site)),
     },
     Column {
         name: "telescope",
         meta: Meta { datatype: "string", unit: None, description: "telescope at the site (each gets its own row)" },
         value: |r| r
-            .station_text(|s| &s.telescope)
+            .station_text(STATION_TELESCOPE)
             .unwrap_or_else(|| telescope_name(r.site, r.event.telescope_index)),
     },
     Column {
         name: "kind",
         meta: Meta { datatype: "string", unit: None, description: "transit, occultation, rv-max, rv-min or phase:A-B" },
-        value: |r| r.target_text(|t| &t.kind).unwrap_or_else(|| target_kind(r.target)),
+        value: |r| r.target_text(TARGET_KIND).unwrap_or_else(|| target_kind(r.target)),
     },
     Column {
         name: "epoch",
@@ -496,12 +515,12 @@ event_columns! {
     Column {
         name: "depth_ppt",
         meta: Meta { datatype: "float64", unit: None, description: "transit depth, parts per thousand" },
-        value: |r| r.target_text(|t| &t.depth).unwrap_or_else(|| target_depth(r.target)),
+        value: |r| r.target_text(TARGET_DEPTH).unwrap_or_else(|| target_depth(r.target)),
     },
     Column {
         name: "priority",
         meta: Meta { datatype: "float64", unit: None, description: "priority from the targets file" },
-        value: |r| r.target_text(|t| &t.priority).unwrap_or_else(|| target_priority(r.target)),
+        value: |r| r.target_text(TARGET_PRIORITY).unwrap_or_else(|| target_priority(r.target)),
     },
     Column {
         name: "reasons",
@@ -733,7 +752,7 @@ fn push_csv_value_as<const ECSV: bool>(v: &Value<'_>, out: &mut Vec<u8>) {
             }
         }
         Value::Null => {}
-        Value::Written(w) => out.extend_from_slice(&w.csv),
+        Value::Written { csv, .. } => out.extend_from_slice(csv),
     }
 }
 
@@ -832,7 +851,7 @@ fn push_json_value(v: &Value<'_>, out: &mut Vec<u8>) {
             }
             out.push(b']');
         }
-        Value::Written(w) => out.extend_from_slice(&w.json),
+        Value::Written { json, .. } => out.extend_from_slice(json),
         _ => out.extend_from_slice("null".as_bytes()),
     }
 }
@@ -874,7 +893,7 @@ fn json_value(v: &Value<'_>) -> serde_json::Value {
         Value::Input(x) => x.map_or(J::Null, J::from),
         Value::Reasons(rs) => J::from(rs.iter().map(|r| r.label()).collect::<Vec<_>>()),
         Value::Null => J::Null,
-        Value::Written(w) => serde_json::from_slice(&w.json).unwrap_or(J::Null),
+        Value::Written { json, .. } => serde_json::from_slice(json).unwrap_or(J::Null),
     }
 }
 
