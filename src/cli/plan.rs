@@ -145,11 +145,15 @@ fn pipe_events(
             let tx = tx;
             let mut lost = std::collections::BTreeMap::new();
             let format_plan = |sp: dipwatch::engine::plan::SitePlan| -> Vec<Vec<u8>> {
-                sp.events
+                let parts = sp
+                    .events
                     .par_chunks(2048)
                     .map(|c| format_events(c, (sites, targets), &text, format, take_buffer()))
                     .filter(|p| !p.is_empty())
-                    .collect()
+                    .collect();
+                // The events' memory serves a later chunk.
+                planner.recycle(sp.events);
+                parts
             };
             // Each telescope-chunk is formatted while the next one is planned (both on rayon's pool), so the
             // cores do not wait at the end of every planning or formatting pass for the last piece of work.
