@@ -25,11 +25,17 @@ pub fn refraction_deg(true_alt_deg: f64, pressure_hpa: f64, temperature_c: f64) 
 /// passes the geometric altitude. Relative error < 0.5% against their ray-traced table above 0 deg; about 38
 /// at the horizon. Returns `f64::INFINITY` for h <= -6.07995 deg where the formula breaks down.
 pub fn airmass_kasten_young(true_alt_deg: f64) -> f64 {
+    airmass_kasten_young_sin(true_alt_deg.to_radians().sin(), true_alt_deg)
+}
+
+/// [`airmass_kasten_young`] with the sine of the altitude given (from the direction's zenith component, where
+/// it is at hand): the same formula without computing the sine again.
+pub fn airmass_kasten_young_sin(sin_alt: f64, true_alt_deg: f64) -> f64 {
     let h = true_alt_deg;
     if h + 6.079_95 <= 0.0 {
         return f64::INFINITY;
     }
-    let denom = h.to_radians().sin() + 0.505_72 * (-1.636_4 * (h + 6.079_95).ln()).exp();
+    let denom = sin_alt + 0.505_72 * (-1.636_4 * (h + 6.079_95).ln()).exp();
     if denom <= 0.0 {
         f64::INFINITY
     } else {

@@ -275,14 +275,25 @@ pub fn alt_az_from_hadec(ha_rad: f64, dec_rad: f64, lat_rad: f64) -> (f64, f64) 
 
 /// [`alt_az_from_hadec`] with the sines and cosines of declination and latitude given, as (sin, cos): for
 /// loops over many instants of one direction at one site.
-pub fn alt_az_from_hadec_sc(ha_rad: f64, (sd, cd): (f64, f64), (sl, cl): (f64, f64)) -> (f64, f64) {
+pub fn alt_az_from_hadec_sc(ha_rad: f64, sc_dec: (f64, f64), sc_lat: (f64, f64)) -> (f64, f64) {
+    let (alt, az, _) = alt_az_sin_from_hadec_sc(ha_rad, sc_dec, sc_lat);
+    (alt, az)
+}
+
+/// [`alt_az_from_hadec_sc`] and the sine of the altitude (the zenith component of the unit direction, to
+/// rounding), for what needs both (the airmass).
+pub fn alt_az_sin_from_hadec_sc(
+    ha_rad: f64,
+    (sd, cd): (f64, f64),
+    (sl, cl): (f64, f64),
+) -> (f64, f64, f64) {
     let (sh, ch) = ha_rad.sin_cos();
     let x = -ch * cd * sl + sd * cl;
     let y = -sh * cd;
     let z = ch * cd * cl + sd * sl;
     let alt = z.atan2((x * x + y * y).sqrt());
     let az = wrap_to(y.atan2(x), TAU);
-    (alt, az)
+    (alt, az, z.clamp(-1.0, 1.0))
 }
 
 /// Geometric altitude only (rad) from hour angle, declination and latitude: sin h = sin phi sin dec +
@@ -296,8 +307,18 @@ pub fn alt_from_hadec(ha_rad: f64, dec_rad: f64, lat_rad: f64) -> f64 {
 }
 
 /// [`alt_from_hadec`] with the sines and cosines of declination and latitude given, as (sin, cos).
-pub fn alt_from_hadec_sc(ha_rad: f64, (sd, cd): (f64, f64), (sl, cl): (f64, f64)) -> f64 {
-    (sl * sd + cl * cd * ha_rad.cos()).clamp(-1.0, 1.0).asin()
+pub fn alt_from_hadec_sc(ha_rad: f64, sc_dec: (f64, f64), sc_lat: (f64, f64)) -> f64 {
+    alt_sin_from_hadec_sc(ha_rad, sc_dec, sc_lat).0
+}
+
+/// [`alt_from_hadec_sc`] and the sine of the altitude it is the arcsine of.
+pub fn alt_sin_from_hadec_sc(
+    ha_rad: f64,
+    (sd, cd): (f64, f64),
+    (sl, cl): (f64, f64),
+) -> (f64, f64) {
+    let s = (sl * sd + cl * cd * ha_rad.cos()).clamp(-1.0, 1.0);
+    (s.asin(), s)
 }
 
 /// Hour angle wrapped to -pi..pi (west +).
@@ -412,6 +433,22 @@ mod tests {
             for v in [x, small, small.trunc(), -small.trunc()] {
                 proptest::prop_assert_eq!(floor_fast(v), v.floor(), "{}", v);
             }
+        }
+    }
+
+    /// The sines handed out with the altitudes (for the airmass) are the sines of those altitudes.
+    #[test]
+    fn altitude_sines_are_the_sines_of_the_altitudes() {
+        for k in 0..2000 {
+            let ha = f64::from(k) * 0.0137 - 10.0;
+            let dec = (f64::from(k) * 0.71).sin() * 1.5;
+            let lat = (f64::from(k) * 0.39).cos() * 1.4;
+            let (sc_dec, sc_lat) = (dec.sin_cos(), lat.sin_cos());
+            let (alt, az, s) = alt_az_sin_from_hadec_sc(ha, sc_dec, sc_lat);
+            assert!((s - alt.sin()).abs() < 1e-15, "{ha} {dec} {lat}");
+            assert_eq!((alt, az), alt_az_from_hadec_sc(ha, sc_dec, sc_lat));
+            let (alt, s) = alt_sin_from_hadec_sc(ha, sc_dec, sc_lat);
+            assert!((s - alt.sin()).abs() < 1e-15, "{ha} {dec} {lat}");
         }
     }
 

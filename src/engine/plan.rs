@@ -6,7 +6,7 @@
 //! the sub-intervals where it holds, found by root finding ([`crate::astro::crossings`]); their intersection is
 //! the usable time. The verdict comes from the usable run that overlaps the transit most.
 
-use crate::astro::atmosphere::airmass_kasten_young;
+use crate::astro::atmosphere::{airmass_kasten_young, airmass_kasten_young_sin};
 use crate::astro::barycentric::EarthTable;
 use crate::astro::crossings::{intervals_where_nonnegative, Interval, DEFAULT_STEP_DAYS};
 use crate::astro::frames::GMST_RATE_PER_UT1_DAY;
@@ -487,6 +487,26 @@ impl Track {
     pub(crate) fn alt_deg(&self, t: f64) -> f64 {
         crate::astro::frames::alt_from_hadec_sc(self.ha_unwrapped_rad(t), self.sc_dec, self.sc_lat)
             .to_degrees()
+    }
+
+    /// (altitude deg, its sine).
+    fn alt_sin_deg(&self, t: f64) -> (f64, f64) {
+        let (alt, sin_alt) = crate::astro::frames::alt_sin_from_hadec_sc(
+            self.ha_unwrapped_rad(t),
+            self.sc_dec,
+            self.sc_lat,
+        );
+        (alt.to_degrees(), sin_alt)
+    }
+
+    /// (altitude deg, azimuth deg, sine of the altitude).
+    fn alt_az_sin_deg(&self, t: f64) -> (f64, f64, f64) {
+        let (alt, az, sin_alt) = crate::astro::frames::alt_az_sin_from_hadec_sc(
+            self.ha_unwrapped_rad(t),
+            self.sc_dec,
+            self.sc_lat,
+        );
+        (alt.to_degrees(), az.to_degrees(), sin_alt)
     }
 
     /// (altitude deg, azimuth deg).
@@ -1123,8 +1143,8 @@ fn evaluate(p: &Pairing<'_>, t: Predicted, night: &Night) -> Option<Event> {
     // A window's star is judged where it is observed: the middle of the usable run (a long window's centre may
     // be in daylight or below the horizon).
     // The mid-transit altitude and airmass, listed with the event, serve the noise too.
-    let (alt_mid, az_mid) = track.alt_az_deg(t.mid_utc);
-    let airmass_mid = airmass_kasten_young(alt_mid);
+    let (alt_mid, az_mid, sin_alt_mid) = track.alt_az_sin_deg(t.mid_utc);
+    let airmass_mid = airmass_kasten_young_sin(sin_alt_mid, alt_mid);
     let noise_at = match run {
         Some(r) if p.target.kind.is_window() => (0.5 * (r.start + r.end), None),
         _ => (t.mid_utc, Some((alt_mid, airmass_mid))),
@@ -1151,8 +1171,8 @@ fn evaluate(p: &Pairing<'_>, t: Predicted, night: &Night) -> Option<Event> {
     // What can be acted on: the block clipped to the usable run, its edges moved inward to whole minutes so
     // that no printed start or end (HH:MM, calendar seconds, countdown) lies outside what is possible.
     let acted = inward_to_minutes(run.unwrap_or(block));
-    let alt_in = track.alt_deg(ingress);
-    let alt_eg = track.alt_deg(egress);
+    let (alt_in, sin_alt_in) = track.alt_sin_deg(ingress);
+    let (alt_eg, sin_alt_eg) = track.alt_sin_deg(egress);
     let (sun_alt, moon_alt, moon_illum) = (sky.sun_alt_deg, sky.moon_alt_deg, sky.moon_illum);
     Some(Event {
         target_index: p.target_index,
@@ -1180,9 +1200,9 @@ fn evaluate(p: &Pairing<'_>, t: Predicted, night: &Night) -> Option<Event> {
         alt_egress_deg: alt_eg,
         alt_block_start_deg: track.alt_deg(acted.start),
         alt_block_end_deg: track.alt_deg(acted.end),
-        airmass_ingress: airmass_kasten_young(alt_in),
+        airmass_ingress: airmass_kasten_young_sin(sin_alt_in, alt_in),
         airmass_mid,
-        airmass_egress: airmass_kasten_young(alt_eg),
+        airmass_egress: airmass_kasten_young_sin(sin_alt_eg, alt_eg),
         az_mid_deg: az_mid,
         sun_alt_mid_deg: sun_alt,
         moon_alt_mid_deg: moon_alt,
