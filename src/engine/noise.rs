@@ -221,14 +221,44 @@ pub fn sky_mag_arcsec2(
     moon: Option<&MoonSky>,
     k_v: f64,
 ) -> f64 {
-    let x = ks_airmass((90.0 - target_alt_deg).clamp(0.0, 90.0));
-    let dark_nl = nanolamberts_from_v(dark_zenith_mag) * pow10(-0.4 * k * (x - 1.0)) * x;
-    // V - (V - band) in mag is V's nanolamberts times exp(0.92104 (V - band)) (eq. 27's slope), without the
-    // round trip through magnitudes.
-    let moon_nl = moon
-        .and_then(|m| moonlight_v_nanolamberts(m, target_alt_deg, k_v))
-        .map_or(0.0, |nl| nl * (0.92104 * band.sun_v_minus_band).exp());
-    v_from_nanolamberts(dark_nl + moon_nl)
+    SkyBrightness::new(band, dark_zenith_mag, k, k_v).mag_arcsec2(target_alt_deg, moon)
+}
+
+/// The parts of [`sky_mag_arcsec2`] fixed by the set-up (band, dark sky, extinction), computed once for all its
+/// events.
+#[derive(Debug, Clone, Copy)]
+struct SkyBrightness {
+    /// The dark sky at the zenith, nanolamberts.
+    dark_zenith_nl: f64,
+    /// The band's extinction coefficient, mag per airmass.
+    k: f64,
+    /// V's extinction coefficient (the moonlight model's).
+    k_v: f64,
+    /// V moonlight to the band's: exp(0.92104 (V - band)) with the Sun's colour.
+    moon_colour: f64,
+}
+
+impl SkyBrightness {
+    fn new(band: &Band, dark_zenith_mag: f64, k: f64, k_v: f64) -> SkyBrightness {
+        SkyBrightness {
+            dark_zenith_nl: nanolamberts_from_v(dark_zenith_mag),
+            k,
+            k_v,
+            // V - (V - band) in mag is V's nanolamberts times exp(0.92104 (V - band)) (eq. 27's slope), without
+            // the round trip through magnitudes.
+            moon_colour: (0.92104 * band.sun_v_minus_band).exp(),
+        }
+    }
+
+    /// [`sky_mag_arcsec2`] at a target's altitude with the Moon.
+    fn mag_arcsec2(&self, target_alt_deg: f64, moon: Option<&MoonSky>) -> f64 {
+        let x = ks_airmass((90.0 - target_alt_deg).clamp(0.0, 90.0));
+        let dark_nl = self.dark_zenith_nl * pow10(-0.4 * self.k * (x - 1.0)) * x;
+        let moon_nl = moon
+            .and_then(|m| moonlight_v_nanolamberts(m, target_alt_deg, self.k_v))
+            .map_or(0.0, |nl| nl * self.moon_colour);
+        v_from_nanolamberts(dark_nl + moon_nl)
+    }
 }
 
 /// Signal-to-noise by the CCD equation (Merline & Howell 1995): S / sqrt(S + n (sky + dark + read^2)), all in
@@ -251,17 +281,35 @@ struct Counts {
     dark_e: f64,
 }
 
+/// The photon rates of the star and the sky in `c` (per m^2 above the atmosphere, the star's through
+/// `c.airmass`): what the counts of every exposure length scale.
+#[derive(Debug, Clone, Copy)]
+struct Rates {
+    star: f64,
+    sky: f64,
+}
+
+impl Rates {
+    fn of(b: &Band, c: &Conditions) -> Rates {
+        Rates {
+            star: photon_rate_m2(b, c.mag + c.extinction_mag * c.airmass),
+            sky: photon_rate_m2(b, c.sky_mag_arcsec2),
+        }
+    }
+}
+
 impl Counts {
-    /// The counts of an exposure of `c.exposure_s` seconds of the star in `c` through `cam` in band `b`.
-    fn of(b: &Band, cam: &Camera, c: &Conditions) -> Counts {
+    /// The counts of an exposure of `c.exposure_s` seconds of the star in `c` through `cam`, from the photon
+    /// rates.
+    fn from_rates(rates: Rates, cam: &Camera, c: &Conditions) -> Counts {
         let t = c.exposure_s;
         let collected = cam.area_m2() * cam.throughput * t;
         let pixel_area = cam.pixel_scale_arcsec.powi(2);
         Counts {
-            star_total: photon_rate_m2(b, c.mag + c.extinction_mag * c.airmass) * collected,
+            star_total: rates.star * collected,
             sigma_arcsec: c.seeing_arcsec / (2.0 * (2.0 * 2f64.ln()).sqrt()),
             pixel_area,
-            sky_e: photon_rate_m2(b, c.sky_mag_arcsec2) * collected * pixel_area,
+            sky_e: rates.sky * collected * pixel_area,
             dark_e: cam.dark_e_per_s * t,
         }
     }
@@ -279,31 +327,58 @@ impl Counts {
 
 /// The noise budget of one exposure.
 pub fn budget(b: &Band, cam: &Camera, c: &Conditions) -> Budget {
+    budget_from(Rates::of(b, c), cam, c, &BudgetConstants::of(cam, c))
+}
+
+/// The parts of a budget fixed by the set-up and the site (not by the star, the sky or the exposure): the same
+/// values [`budget`] computes, once for all of a set-up's events.
+#[derive(Debug, Clone, Copy)]
+struct BudgetConstants {
+    /// Fraction of the star's light inside the aperture.
+    enclosed: f64,
+    /// Pixels in the aperture.
+    pixels: f64,
+    /// 1e-5 C_Y^2 D^(-4/3) of [`scintillation_rel`].
+    scintillation_scale: f64,
+    /// exp(-2 h / H) of [`scintillation_rel`].
+    scintillation_height: f64,
+}
+
+impl BudgetConstants {
+    fn of(cam: &Camera, c: &Conditions) -> BudgetConstants {
+        let s = c.seeing_arcsec / (2.0 * (2.0 * 2f64.ln()).sqrt());
+        let pixel_area = cam.pixel_scale_arcsec.powi(2);
+        BudgetConstants {
+            // Fraction of a Gaussian PSF of this FWHM inside the aperture radius r: 1 - exp(-r^2 / (2 s^2)).
+            enclosed: 1.0 - (-(c.aperture_radius_arcsec.powi(2)) / (2.0 * s * s)).exp(),
+            pixels: std::f64::consts::PI * c.aperture_radius_arcsec.powi(2) / pixel_area,
+            scintillation_scale: 1e-5 * c.scintillation_cy * c.scintillation_cy
+                / (cam.aperture_m * cam.aperture_m.cbrt()),
+            scintillation_height: (-2.0 * c.site_altitude_m / 8000.0).exp(),
+        }
+    }
+}
+
+/// [`budget`] with the photon rates and the set-up's constants given.
+fn budget_from(rates: Rates, cam: &Camera, c: &Conditions, k: &BudgetConstants) -> Budget {
     let t = c.exposure_s;
-    let counts = Counts::of(b, cam, c);
+    let counts = Counts::from_rates(rates, cam, c);
     let Counts {
         star_total,
-        sigma_arcsec: s,
-        pixel_area,
         sky_e,
         dark_e,
+        ..
     } = counts;
-    // Fraction of a Gaussian PSF of this FWHM inside the aperture radius r: 1 - exp(-r^2 / (2 s^2)).
-    let enclosed = 1.0 - (-(c.aperture_radius_arcsec.powi(2)) / (2.0 * s * s)).exp();
+    let (enclosed, pixels) = (k.enclosed, k.pixels);
     let star_e = star_total * enclosed;
-    let pixels = std::f64::consts::PI * c.aperture_radius_arcsec.powi(2) / pixel_area;
     let rel = |v: f64| v.sqrt() / star_e * 1000.0;
     let source_ppt = rel(star_e);
     let sky_ppt = rel(pixels * sky_e);
     let dark_ppt = rel(pixels * dark_e);
     let read_ppt = rel(pixels * cam.read_noise_e.powi(2));
-    let scintillation_ppt = scintillation_rel(
-        c.scintillation_cy,
-        cam.aperture_m,
-        t,
-        c.airmass,
-        c.site_altitude_m,
-    ) * 1000.0;
+    // As `scintillation_rel`, with its set-up's factors computed once (the same operations in the same order).
+    let scintillation_ppt =
+        (k.scintillation_scale / t * c.airmass.powi(3) * k.scintillation_height).sqrt() * 1000.0;
     let total_ppt = (source_ppt.powi(2)
         + sky_ppt.powi(2)
         + dark_ppt.powi(2)
@@ -345,13 +420,24 @@ pub fn suggested_exposure(
     b: &Band,
     cam: &Camera,
     c: &Conditions,
+    range_s: (f64, f64),
+    well_fraction: f64,
+) -> (f64, bool) {
+    suggested_exposure_from(Rates::of(b, c), cam, c, range_s, well_fraction)
+}
+
+/// [`suggested_exposure`] with the photon rates given.
+fn suggested_exposure_from(
+    rates: Rates,
+    cam: &Camera,
+    c: &Conditions,
     (min_s, max_s): (f64, f64),
     well_fraction: f64,
 ) -> (f64, bool) {
     // Only the counts: the rest of the budget (scintillation, the noise terms) does not change the peak.
     let peak = |t: f64| {
-        Counts::of(
-            b,
+        Counts::from_rates(
+            rates,
             cam,
             &Conditions {
                 exposure_s: t,
@@ -405,74 +491,126 @@ pub struct EventSky {
 pub fn event_noise(
     p: &crate::inputs::sites::Photometry,
     site_altitude_m: f64,
-    (mag, depth_ppt): (f64, Option<f64>),
+    star: (f64, Option<f64>),
     sky: &EventSky,
-    (in_transit_s, out_of_transit_s): (f64, f64),
+    usable_s: (f64, f64),
 ) -> Option<EventNoise> {
-    let b = band(&p.band)?;
-    let cam = Camera {
-        aperture_m: p.aperture_m,
-        obstruction: p.obstruction,
-        throughput: p.throughput,
-        read_noise_e: p.read_noise_e,
-        dark_e_per_s: p.dark_e_per_s,
-        full_well_e: p.full_well_e,
-        pixel_scale_arcsec: p.pixel_scale_arcsec,
-        gain_e_per_adu: p.gain_e_per_adu,
-    };
-    let k = p.extinction.unwrap_or(b.extinction_mag);
-    // Krisciunas & Schaefer need the V extinction: the set-up's own when it is a V set-up.
-    let k_v = if b.name == "V" {
-        k
-    } else {
-        band("V").map_or(k, |v| v.extinction_mag)
-    };
-    let mut c = Conditions {
-        mag,
-        airmass: sky.airmass.clamp(1.0, 40.0),
-        exposure_s: 1.0,
-        sky_mag_arcsec2: sky_mag_arcsec2(
-            b,
-            p.sky_mag.unwrap_or(b.dark_sky_mag_arcsec2),
-            k,
-            sky.target_alt_deg,
-            sky.moon.as_ref(),
-            k_v,
-        ),
-        extinction_mag: k,
-        seeing_arcsec: p.seeing_arcsec,
-        aperture_radius_arcsec: p.aperture_radius_arcsec.unwrap_or(1.5 * p.seeing_arcsec),
-        site_altitude_m,
-        scintillation_cy: p.scintillation_cy,
-    };
-    c.exposure_s = p.exposure_s.unwrap_or_else(|| {
-        suggested_exposure(b, &cam, &c, EXPOSURE_RANGE_S, WELL_FRACTION_LIMIT).0
-    });
-    let one = budget(b, &cam, &c);
-    let cadence = c.exposure_s + p.overhead_s;
-    let n_in = in_transit_s / cadence;
-    let n_out = out_of_transit_s / cadence;
-    let snr = depth_ppt.map(|d| {
-        if n_in < 1.0 || n_out < 1.0 {
-            0.0
+    Some(NoiseSetup::new(p, site_altitude_m)?.event_noise(star, sky, usable_s))
+}
+
+/// A photometric set-up at its site, with everything [`event_noise`] computes from them alone (the band, the
+/// camera, the extinction, the dark sky's brightness, the aperture's share of the seeing disc, the
+/// scintillation's aperture and height factors) done once: for the many events of a planning run. The same
+/// operations as [`event_noise`] in the same order, so the same numbers.
+#[derive(Debug, Clone)]
+pub struct NoiseSetup {
+    p: crate::inputs::sites::Photometry,
+    b: &'static Band,
+    cam: Camera,
+    k: f64,
+    site_altitude_m: f64,
+    sky: SkyBrightness,
+    constants: BudgetConstants,
+}
+
+impl NoiseSetup {
+    /// The set-up `p` at a site `site_altitude_m` above sea level; None when it names an unknown band.
+    pub fn new(p: &crate::inputs::sites::Photometry, site_altitude_m: f64) -> Option<NoiseSetup> {
+        let b = band(&p.band)?;
+        let cam = Camera {
+            aperture_m: p.aperture_m,
+            obstruction: p.obstruction,
+            throughput: p.throughput,
+            read_noise_e: p.read_noise_e,
+            dark_e_per_s: p.dark_e_per_s,
+            full_well_e: p.full_well_e,
+            pixel_scale_arcsec: p.pixel_scale_arcsec,
+            gain_e_per_adu: p.gain_e_per_adu,
+        };
+        let k = p.extinction.unwrap_or(b.extinction_mag);
+        // Krisciunas & Schaefer need the V extinction: the set-up's own when it is a V set-up.
+        let k_v = if b.name == "V" {
+            k
         } else {
-            d / (p.red_noise_beta * one.total_ppt * (1.0 / n_in + 1.0 / n_out).sqrt())
+            band("V").map_or(k, |v| v.extinction_mag)
+        };
+        let setup = NoiseSetup {
+            p: p.clone(),
+            b,
+            cam,
+            k,
+            site_altitude_m,
+            sky: SkyBrightness::new(b, p.sky_mag.unwrap_or(b.dark_sky_mag_arcsec2), k, k_v),
+            // Filled below from the conditions every event shares.
+            constants: BudgetConstants {
+                enclosed: 0.0,
+                pixels: 0.0,
+                scintillation_scale: 0.0,
+                scintillation_height: 0.0,
+            },
+        };
+        let constants = BudgetConstants::of(&setup.cam, &setup.conditions(0.0, 1.0, 0.0));
+        Some(NoiseSetup { constants, ..setup })
+    }
+
+    /// The conditions of an exposure of a star of `mag` at `airmass` under a sky of `sky_mag_arcsec2` (one
+    /// second: the exposure is chosen after).
+    fn conditions(&self, mag: f64, airmass: f64, sky_mag_arcsec2: f64) -> Conditions {
+        let p = &self.p;
+        Conditions {
+            mag,
+            airmass: airmass.clamp(1.0, 40.0),
+            exposure_s: 1.0,
+            sky_mag_arcsec2,
+            extinction_mag: self.k,
+            seeing_arcsec: p.seeing_arcsec,
+            aperture_radius_arcsec: p.aperture_radius_arcsec.unwrap_or(1.5 * p.seeing_arcsec),
+            site_altitude_m: self.site_altitude_m,
+            scintillation_cy: p.scintillation_cy,
         }
-    });
-    Some(EventNoise {
-        exposure_s: c.exposure_s,
-        noise_per_exposure_ppt: one.total_ppt,
-        noise_10min_ppt: binned_ppt(
-            one.total_ppt,
-            c.exposure_s,
-            p.overhead_s,
-            600.0,
-            p.red_noise_beta,
-            p.noise_floor_ppt,
-        ),
-        snr,
-        peak_well_fraction: one.peak_well_fraction,
-    })
+    }
+
+    /// [`event_noise`] of a star of `mag` (and transit depth, ppt) in `sky`, with `in_transit_s` and
+    /// `out_of_transit_s` of usable time.
+    pub fn event_noise(
+        &self,
+        (mag, depth_ppt): (f64, Option<f64>),
+        sky: &EventSky,
+        (in_transit_s, out_of_transit_s): (f64, f64),
+    ) -> EventNoise {
+        let (p, b, cam) = (&self.p, self.b, &self.cam);
+        let sky_mag = self.sky.mag_arcsec2(sky.target_alt_deg, sky.moon.as_ref());
+        let mut c = self.conditions(mag, sky.airmass, sky_mag);
+        let rates = Rates::of(b, &c);
+        c.exposure_s = p.exposure_s.unwrap_or_else(|| {
+            suggested_exposure_from(rates, cam, &c, EXPOSURE_RANGE_S, WELL_FRACTION_LIMIT).0
+        });
+        let one = budget_from(rates, cam, &c, &self.constants);
+        let cadence = c.exposure_s + p.overhead_s;
+        let n_in = in_transit_s / cadence;
+        let n_out = out_of_transit_s / cadence;
+        let snr = depth_ppt.map(|d| {
+            if n_in < 1.0 || n_out < 1.0 {
+                0.0
+            } else {
+                d / (p.red_noise_beta * one.total_ppt * (1.0 / n_in + 1.0 / n_out).sqrt())
+            }
+        });
+        EventNoise {
+            exposure_s: c.exposure_s,
+            noise_per_exposure_ppt: one.total_ppt,
+            noise_10min_ppt: binned_ppt(
+                one.total_ppt,
+                c.exposure_s,
+                p.overhead_s,
+                600.0,
+                p.red_noise_beta,
+                p.noise_floor_ppt,
+            ),
+            snr,
+            peak_well_fraction: one.peak_well_fraction,
+        }
+    }
 }
 
 #[cfg(test)]

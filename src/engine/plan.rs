@@ -923,6 +923,8 @@ struct Pairing<'a> {
     /// Whether the noise can be computed: the site has a photometric set-up and the target a magnitude in its
     /// band (V when the targets file does not say).
     noise_band_ok: bool,
+    /// The station's photometric set-up, prepared once for all its events (None without one).
+    noise: Option<&'a crate::engine::noise::NoiseSetup>,
 }
 
 /// See [`Pairing::noise_band_ok`].
@@ -1058,7 +1060,7 @@ fn expected_noise(
     if !p.noise_band_ok {
         return None;
     }
-    let ph = p.site.photometry.as_ref()?;
+    let setup = p.noise?;
     let mag = p.target.mag?;
     let (alt_deg, airmass) = known.unwrap_or_else(|| {
         let alt_deg = track.alt_deg(jd_utc);
@@ -1067,9 +1069,7 @@ fn expected_noise(
     if !airmass.is_finite() {
         return None;
     }
-    crate::engine::noise::event_noise(
-        ph,
-        p.site.elevation_m,
+    Some(setup.event_noise(
         (mag, p.target.depth_ppt),
         &crate::engine::noise::EventSky {
             airmass,
@@ -1077,7 +1077,7 @@ fn expected_noise(
             moon: Some(moon),
         },
         (coverage * p.target.t14_hours * 3600.0, baseline_min * 60.0),
-    )
+    ))
 }
 
 /// The planned block: [ingress - margin - baseline before, egress + margin + baseline after]; a window (RV
@@ -1418,6 +1418,10 @@ impl<'a> Planner<'a> {
             Err(_) => (Vec::new(), Vec::new()),
         };
         per_target.resize_with(self.targets.len(), Vec::new);
+        let noise = site
+            .photometry
+            .as_ref()
+            .and_then(|ph| crate::engine::noise::NoiseSetup::new(ph, site.elevation_m));
         let lost_per_target: Vec<Option<f64>> = self
             .targets
             .par_iter()
@@ -1435,6 +1439,7 @@ impl<'a> Planner<'a> {
                     icrs_fixed: target.icrs_fixed(),
                     sin_min_alt: site.min_alt_deg.to_radians().sin(),
                     noise_band_ok: noise_band_ok(site, target),
+                    noise: noise.as_ref(),
                 };
                 list.clear();
                 events_of_target(&pairing, &self.mids[ti], &nights, &range, list)
