@@ -54,6 +54,18 @@ impl<'a> EventRow<'a> {
         text.field(at, k)
     }
 
+    /// Whether the target's kind is a window (RV extreme, phase window), from [`RowText`] when the row has it.
+    #[inline(always)]
+    fn is_window(&self) -> bool {
+        match self
+            .text
+            .and_then(|t| t.targets.get(self.event.target_index))
+        {
+            Some(at) => at.window,
+            None => self.target.kind.is_window(),
+        }
+    }
+
     /// Field `k` of this row's station's text ([`STATION_SITE`] or [`STATION_TELESCOPE`]), when the row has
     /// [`RowText`].
     #[inline(always)]
@@ -83,6 +95,10 @@ const STATION_TELESCOPE: usize = 1;
 struct Spans {
     csv_at: [usize; 5],
     json_at: [usize; 5],
+    /// The target's kind is a window (RV extreme, phase window), as `Target::kind` says: kept here so that a
+    /// row with [`RowText`] does not read its target at all (a cache miss a row, rows taking targets in no
+    /// order).
+    window: bool,
 }
 
 /// The fields of a run's rows that depend only on the target (name, kind, depth, priority) or the station (site,
@@ -116,7 +132,10 @@ impl RowText {
                 target_depth(t),
                 target_priority(t),
             ]);
-            text.targets.push(spans);
+            text.targets.push(Spans {
+                window: t.kind.is_window(),
+                ..spans
+            });
         }
         for s in sites {
             let per_telescope = (0..s.telescopes.len().max(1))
@@ -132,6 +151,7 @@ impl RowText {
         let mut spans = Spans {
             csv_at: [self.csv.len(); 5],
             json_at: [self.json.len(); 5],
+            window: false,
         };
         for (k, v) in values.iter().enumerate().take(4) {
             push_csv_value(v, &mut self.csv);
@@ -337,22 +357,22 @@ event_columns! {
     Column {
         name: "window_start_utc",
         meta: Meta { datatype: "string", unit: None, description: "start of the window (RV extreme, phase window), UTC; null for transits and occultations" },
-        value: |r| Value::OptTime(r.target.kind.is_window().then_some(r.event.ingress_utc)),
+        value: |r| Value::OptTime(r.is_window().then_some(r.event.ingress_utc)),
     },
     Column {
         name: "window_end_utc",
         meta: Meta { datatype: "string", unit: None, description: "end of the window, UTC" },
-        value: |r| Value::OptTime(r.target.kind.is_window().then_some(r.event.egress_utc)),
+        value: |r| Value::OptTime(r.is_window().then_some(r.event.egress_utc)),
     },
     Column {
         name: "ingress_utc",
         meta: Meta { datatype: "string", unit: None, description: "predicted first contact, UTC" },
-        value: |r| Value::OptTime((!r.target.kind.is_window()).then_some(r.event.ingress_utc)),
+        value: |r| Value::OptTime((!r.is_window()).then_some(r.event.ingress_utc)),
     },
     Column {
         name: "egress_utc",
         meta: Meta { datatype: "string", unit: None, description: "predicted fourth contact, UTC" },
-        value: |r| Value::OptTime((!r.target.kind.is_window()).then_some(r.event.egress_utc)),
+        value: |r| Value::OptTime((!r.is_window()).then_some(r.event.egress_utc)),
     },
     Column {
         name: "block_start_utc",
