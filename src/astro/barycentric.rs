@@ -155,6 +155,21 @@ impl EarthTable {
         }
     }
 
+    /// [`EarthTable::earth_bary_vel_au_per_day`] and [`EarthTable::earth_helio_au`] of one instant from one
+    /// stencil (the same numbers as the two calls).
+    pub fn bary_vel_and_helio_au(&self, jd_tdb: f64) -> (Vec3, Vec3) {
+        match self.stencil(jd_tdb) {
+            Some((i, w, dw)) => (
+                Self::combine(&self.bary_au, i, &dw),
+                Self::combine(&self.helio_au, i, &w),
+            ),
+            None => (
+                self.earth_bary_vel_au_per_day(jd_tdb),
+                self.earth_helio_au(jd_tdb),
+            ),
+        }
+    }
+
     /// UTC of a TDB instant, as [`jd_utc_from_tdb`] but with TDB - TT interpolated in the table (4-point
     /// Lagrange on daily nodes: within 1e-9 s of the series, whose terms have periods of a year or more) and
     /// TAI - UTC taken once when no leap second falls inside the table.

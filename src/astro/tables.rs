@@ -65,6 +65,24 @@ impl SunMoonSky {
     }
 }
 
+/// What one instant's Sun, Moon and target places share, looked up once (see [`SkyTables::instant`]).
+#[derive(Debug, Clone, Copy)]
+pub struct SkyInstant<'a> {
+    t: f64,
+    frame: &'a Frame,
+    /// The Earth's barycentric velocity over c (annual aberration).
+    beta: Vec3,
+    /// The Earth's heliocentric position, au, equatorial J2000.
+    helio_au: Vec3,
+}
+
+impl SkyInstant<'_> {
+    /// The equation of the equinoxes of the instant's day, rad (as [`SkyTables::eqeq_rad`]).
+    pub fn eqeq_rad(&self) -> f64 {
+        self.frame.eqeq_rad
+    }
+}
+
 /// Tables covering a span of UTC Julian Dates.
 #[derive(Debug, Clone)]
 pub struct SkyTables {
@@ -154,15 +172,28 @@ impl SkyTables {
     /// vector of length within 1e-4 of one (aberration is not renormalised).
     pub fn apparent_vec(&self, icrs: &Vec3, t: f64) -> Vec3 {
         let v = self.earth.earth_bary_vel_au_per_day(self.tdb(t));
-        let k = AU_LIGHT_TIME_S / SECONDS_PER_DAY;
-        let beta = [v[0] * k, v[1] * k, v[2] * k];
-        let pdotv = icrs[0] * beta[0] + icrs[1] * beta[1] + icrs[2] * beta[2];
-        let p = [
-            icrs[0] + beta[0] - icrs[0] * pdotv,
-            icrs[1] + beta[1] - icrs[1] * pdotv,
-            icrs[2] + beta[2] - icrs[2] * pdotv,
-        ];
-        mat_vec(&self.frame(t).pn, &p)
+        apparent_from(icrs, &aberration_beta(&v), &self.frame(t).pn)
+    }
+
+    /// The lookups of instant `t` that its target place ([`SkyTables::apparent_vec_at`]) and Sun and Moon
+    /// ([`SkyTables::sun_moon_at`]) share: the day's frame, the Earth's velocity and heliocentric position
+    /// from one stencil of the Earth table. The same numbers as the separate calls.
+    pub fn instant(&self, t: f64) -> SkyInstant<'_> {
+        let frame = self.frame(t);
+        let (v, helio_au) = self
+            .earth
+            .bary_vel_and_helio_au(t + frame.tt_minus_utc_days);
+        SkyInstant {
+            t,
+            frame,
+            beta: aberration_beta(&v),
+            helio_au,
+        }
+    }
+
+    /// [`SkyTables::apparent_vec`] at an instant already looked up.
+    pub fn apparent_vec_at(&self, icrs: &Vec3, at: &SkyInstant<'_>) -> Vec3 {
+        apparent_from(icrs, &at.beta, &at.frame.pn)
     }
 
     /// Apparent geocentric place of the Sun: minus the tabulated heliocentric Earth, aberrated by the Earth's
@@ -250,19 +281,27 @@ impl SkyTables {
     /// The Sun's altitude, the Moon's topocentric place and altitude and its illuminated fraction at UTC JD `t`,
     /// computing the Sun and the Moon once.
     pub fn sun_moon(&self, t: f64, obs: &Observer) -> SunMoonSky {
+        self.sun_moon_at(&self.instant(t), obs)
+    }
+
+    /// [`SkyTables::sun_moon`] at an instant already looked up.
+    pub fn sun_moon_at(&self, at: &SkyInstant<'_>, obs: &Observer) -> SunMoonSky {
+        let t = at.t;
         // In vectors of the true equator and equinox of date: sin(altitude) is the direction's dot product with
         // the geodetic zenith (cos phi cos LAST, cos phi sin LAST, sin phi), which is Meeus (1998) eq. 13.6
         // written as a dot product; the Moon's topocentric position is its geocentric one minus the site's
         // (as `topocentric`); the elongation for the illuminated fraction comes from the cross and dot products
         // of the geocentric directions (Meeus eq. 48.2-48.3, 48.1, as `moon_illuminated_fraction`).
-        let last = self.last_rad(t, obs.lon_rad);
+        // As `last_rad`, with the instant's frame.
+        let gast = crate::astro::frames::wrap_to(gmst_rad(t) + at.frame.eqeq_rad, TAU);
+        let last = crate::astro::frames::wrap_to(gast + obs.lon_rad, TAU);
         let (sl, cl) = obs.sin_cos_lat();
         let (sa, ca) = last.sin_cos();
         let zenith = [cl * ca, cl * sa, sl];
         let sin_alt = |v: &Vec3, len: f64| (dot(v, &zenith) / len).clamp(-1.0, 1.0).asin();
-        let h = self.earth.earth_helio_au(self.tdb(t));
+        let h = at.helio_au;
         let sun_au = norm(&h);
-        let sun = self.apparent_vec(&[-h[0] / sun_au, -h[1] / sun_au, -h[2] / sun_au], t);
+        let sun = self.apparent_vec_at(&[-h[0] / sun_au, -h[1] / sun_au, -h[2] / sun_au], at);
         let sun_alt = sin_alt(&sun, norm(&sun));
         let geo = self.moon_geocentric_km(t);
         let o = obs.geocentric_m_sc((sa, ca));
@@ -286,6 +325,24 @@ impl SkyTables {
             moon_illum: (1.0 + x / (x * x + y * y).sqrt()) / 2.0,
         }
     }
+}
+
+/// The Earth's velocity (au/day) over the speed of light.
+fn aberration_beta(v: &Vec3) -> Vec3 {
+    let k = AU_LIGHT_TIME_S / SECONDS_PER_DAY;
+    [v[0] * k, v[1] * k, v[2] * k]
+}
+
+/// A catalogue direction with first-order annual aberration (`beta`: the Earth's velocity over c), rotated by
+/// the precession-nutation matrix `pn` to the true equator and equinox of date.
+fn apparent_from(icrs: &Vec3, beta: &Vec3, pn: &Mat3) -> Vec3 {
+    let pdotv = icrs[0] * beta[0] + icrs[1] * beta[1] + icrs[2] * beta[2];
+    let p = [
+        icrs[0] + beta[0] - icrs[0] * pdotv,
+        icrs[1] + beta[1] - icrs[1] * pdotv,
+        icrs[2] + beta[2] - icrs[2] * pdotv,
+    ];
+    mat_vec(pn, &p)
 }
 
 fn dot(a: &Vec3, b: &Vec3) -> f64 {

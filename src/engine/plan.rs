@@ -467,6 +467,17 @@ impl Track {
         Track::from_vec(dir, tables.eqeq_rad(t_ref), site)
     }
 
+    /// [`Track::new`] at an instant already looked up (its frame and the Earth's velocity shared with the
+    /// Sun and Moon of the same instant).
+    fn at(
+        icrs: &Vec3,
+        at: &crate::astro::tables::SkyInstant<'_>,
+        site: &Site,
+        tables: &SkyTables,
+    ) -> Track {
+        Track::from_vec(tables.apparent_vec_at(icrs, at), at.eqeq_rad(), site)
+    }
+
     /// The catalogue (ICRS) place as if it were the apparent one: within [`mean_place_error_deg`] of the
     /// apparent place, so it can reject a transit before the apparent place is computed.
     fn mean(icrs: &Vec3, site: &Site) -> Track {
@@ -1116,7 +1127,9 @@ fn evaluate(p: &Pairing<'_>, t: Predicted, night: &Night) -> Option<Event> {
     let margin = opts.sigma_k * t.sigma_days;
     let block = planned_block(p, ingress, egress, margin);
     let icrs = p.icrs_fixed.unwrap_or_else(|| p.target.icrs_at(t.mid_utc));
-    let track = Track::new(&icrs, t.mid_utc, site, tables);
+    // The mid-time's frame and Earth, shared by the target's place and the Sun and Moon below.
+    let at_mid = tables.instant(t.mid_utc);
+    let track = Track::at(&icrs, &at_mid, site, tables);
     let limit = AltLimit::from_sin(&track, p.sin_min_alt);
     if cannot_be_listed(p, (&track, limit), night, ingress, egress) {
         return None;
@@ -1131,7 +1144,7 @@ fn evaluate(p: &Pairing<'_>, t: Predicted, night: &Night) -> Option<Event> {
     if !observable && !opts.include_unobservable {
         return None;
     }
-    let sky = tables.sun_moon(t.mid_utc, &site.observer);
+    let sky = tables.sun_moon_at(&at_mid, &site.observer);
     let moon_sep =
         crate::astro::frames::angle_between_rad(&track.dir, &sky.moon_topo_km).to_degrees();
     // The expected noise, with the Moon's light at mid-transit (only for events that can be listed).
