@@ -236,6 +236,17 @@ fn ephemeris_lost_is_reported_not_listed() {
     assert!(p.sites[0].events.is_empty());
     assert_eq!(p.lost.len(), 1);
     assert!(p.lost[0].sigma_min > 14_000.0);
+    // A target that never rises to the site's limit (dec -70 at latitude 35) is skipped before any transit is
+    // looked at, and its lost ephemeris is still reported, with the same sigma as when every transit is listed.
+    t.dec_deg = -70.0;
+    let p = plan(std::slice::from_ref(&s), std::slice::from_ref(&t), &o);
+    assert!(p.sites[0].events.is_empty());
+    assert_eq!(p.lost.len(), 1);
+    o.include_unobservable = true;
+    let all = plan(std::slice::from_ref(&s), std::slice::from_ref(&t), &o);
+    assert!(!all.sites[0].events.is_empty());
+    assert_eq!(all.lost.len(), 1);
+    assert_eq!(p.lost[0].sigma_min, all.lost[0].sigma_min);
 }
 
 #[test]

@@ -1544,6 +1544,19 @@ fn events_of_target(
         }
         _ => false,
     };
+    if !opts.include_unobservable && loose.cos_h0 >= 1.0 {
+        // The target never reaches even the loosened limit at this site (a third of the catalogue's
+        // target-site pairs, for a limit of 30 deg): the first look below would reject every transit. Only
+        // the lost ephemeris is still to say.
+        if may_be_lost {
+            lost_sigma = in_range
+                .iter()
+                .map(|&(n, _)| eph.sigma_days(n))
+                .find(|&sigma| sigma > lost_limit_days)
+                .map(|sigma| sigma * 1440.0);
+        }
+        return lost_sigma;
+    }
     for &(n, geo) in in_range {
         // Lost or not is said of the first transit in the range, whether or not it falls in the dark.
         if may_be_lost && lost_sigma.is_none() {
