@@ -1640,10 +1640,16 @@ fn partition_point_near<T>(s: &[T], guess: usize, pred: impl Fn(&T) -> bool) -> 
 /// The index of the first night whose window starts after `t` (UTC JD): the windows run from one local mean
 /// solar noon to the next, a day apart, so the index is guessed from the first window's start.
 fn night_after(nights: &[Night], t: f64) -> usize {
-    let guess = nights
-        .first()
-        .map_or(0.0, |n| floor_fast(t - n.window.start).max(-1.0) + 1.0);
-    partition_point_near(nights, guess as usize, |nt| nt.window.start <= t)
+    // floor(d) + 1 for d > 0, else 0: one truncating conversion (asked of every site-transit).
+    let guess = nights.first().map_or(0, |n| {
+        let d = t - n.window.start;
+        if d > 0.0 {
+            d as usize + 1
+        } else {
+            0
+        }
+    });
+    partition_point_near(nights, guess, |nt| nt.window.start <= t)
 }
 
 /// The first predicted mid-transit of `target` after `jd_utc` as seen from `site`, UTC JD.
