@@ -500,23 +500,25 @@ impl Track {
             .to_degrees()
     }
 
-    /// (altitude deg, its sine).
-    fn alt_sin_deg(&self, t: f64) -> (f64, f64) {
-        let (alt, sin_alt) = crate::astro::frames::alt_sin_from_hadec_sc(
-            self.ha_unwrapped_rad(t),
-            self.sc_dec,
-            self.sc_lat,
-        );
+    /// The hour angle (unwrapped) at `t` from the one at `t_ref` by the sidereal rate: within a block, GMST's
+    /// quadratic term and the day's equation of the equinoxes change it by < 1e-12 rad, below the rounding of
+    /// the sidereal time itself (5e-10 deg at 3.5e6 deg since J2000). For altitudes that are printed, not for
+    /// the edges of usable runs (which take [`Track::ha_rad`]).
+    fn ha_from(&self, (t_ref, ha_ref): (f64, f64), t: f64) -> f64 {
+        ha_ref + TAU * GMST_RATE_PER_UT1_DAY * (t - t_ref)
+    }
+
+    /// (altitude deg, its sine) at hour angle `ha_rad`.
+    fn alt_sin_deg_ha(&self, ha_rad: f64) -> (f64, f64) {
+        let (alt, sin_alt) =
+            crate::astro::frames::alt_sin_from_hadec_sc(ha_rad, self.sc_dec, self.sc_lat);
         (alt.to_degrees(), sin_alt)
     }
 
-    /// (altitude deg, azimuth deg, sine of the altitude).
-    fn alt_az_sin_deg(&self, t: f64) -> (f64, f64, f64) {
-        let (alt, az, sin_alt) = crate::astro::frames::alt_az_sin_from_hadec_sc(
-            self.ha_unwrapped_rad(t),
-            self.sc_dec,
-            self.sc_lat,
-        );
+    /// (altitude deg, azimuth deg, sine of the altitude) at hour angle `ha_rad`.
+    fn alt_az_sin_deg_ha(&self, ha_rad: f64) -> (f64, f64, f64) {
+        let (alt, az, sin_alt) =
+            crate::astro::frames::alt_az_sin_from_hadec_sc(ha_rad, self.sc_dec, self.sc_lat);
         (alt.to_degrees(), az.to_degrees(), sin_alt)
     }
 
@@ -1156,7 +1158,9 @@ fn evaluate(p: &Pairing<'_>, t: Predicted, night: &Night) -> Option<Event> {
     // A window's star is judged where it is observed: the middle of the usable run (a long window's centre may
     // be in daylight or below the horizon).
     // The mid-transit altitude and airmass, listed with the event, serve the noise too.
-    let (alt_mid, az_mid, sin_alt_mid) = track.alt_az_sin_deg(t.mid_utc);
+    // The printed altitudes from the mid-time's hour angle (one sidereal time for the five instants).
+    let mid_ha = (t.mid_utc, track.ha_unwrapped_rad(t.mid_utc));
+    let (alt_mid, az_mid, sin_alt_mid) = track.alt_az_sin_deg_ha(mid_ha.1);
     let airmass_mid = airmass_kasten_young_sin(sin_alt_mid, alt_mid);
     let noise_at = match run {
         Some(r) if p.target.kind.is_window() => (0.5 * (r.start + r.end), None),
@@ -1184,8 +1188,8 @@ fn evaluate(p: &Pairing<'_>, t: Predicted, night: &Night) -> Option<Event> {
     // What can be acted on: the block clipped to the usable run, its edges moved inward to whole minutes so
     // that no printed start or end (HH:MM, calendar seconds, countdown) lies outside what is possible.
     let acted = inward_to_minutes(run.unwrap_or(block));
-    let (alt_in, sin_alt_in) = track.alt_sin_deg(ingress);
-    let (alt_eg, sin_alt_eg) = track.alt_sin_deg(egress);
+    let (alt_in, sin_alt_in) = track.alt_sin_deg_ha(track.ha_from(mid_ha, ingress));
+    let (alt_eg, sin_alt_eg) = track.alt_sin_deg_ha(track.ha_from(mid_ha, egress));
     let (sun_alt, moon_alt, moon_illum) = (sky.sun_alt_deg, sky.moon_alt_deg, sky.moon_illum);
     Some(Event {
         target_index: p.target_index,
@@ -1211,8 +1215,8 @@ fn evaluate(p: &Pairing<'_>, t: Predicted, night: &Night) -> Option<Event> {
         alt_ingress_deg: alt_in,
         alt_mid_deg: alt_mid,
         alt_egress_deg: alt_eg,
-        alt_block_start_deg: track.alt_deg(acted.start),
-        alt_block_end_deg: track.alt_deg(acted.end),
+        alt_block_start_deg: track.alt_sin_deg_ha(track.ha_from(mid_ha, acted.start)).0,
+        alt_block_end_deg: track.alt_sin_deg_ha(track.ha_from(mid_ha, acted.end)).0,
         airmass_ingress: airmass_kasten_young_sin(sin_alt_in, alt_in),
         airmass_mid,
         airmass_egress: airmass_kasten_young_sin(sin_alt_eg, alt_eg),
