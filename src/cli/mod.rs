@@ -280,6 +280,41 @@ impl Selection {
         let targets = opts.views(&targets);
         Ok((sites, targets, opts))
     }
+
+    /// [`Selection::load`], and the run's sky tables built while the targets file is read (they depend on the
+    /// sites and the dates only): the tables of a year take about as long as reading 10,000 targets.
+    fn load_with_tables(&self, include_unobservable: bool) -> Result<Loaded> {
+        let (first_night, last_night) = resolve_range(&self.range)?;
+        let opts = self
+            .block
+            .options(first_night, last_night, include_unobservable)?;
+        let sites = load_sites(&self.input.files.sites, &self.input.site_names)?;
+        let (targets, tables) = rayon::join(
+            || {
+                load_targets(
+                    &self.input.files.targets,
+                    &self.input.files.columns,
+                    &self.input.target_names,
+                )
+            },
+            || dipwatch::engine::plan::Planner::sky_tables(&sites, &opts),
+        );
+        let targets = opts.views(&targets?);
+        Ok(Loaded {
+            sites,
+            targets,
+            opts,
+            tables,
+        })
+    }
+}
+
+/// What [`Selection::load_with_tables`] gives: the inputs, the options and the sky tables of a run.
+struct Loaded {
+    sites: Vec<Site>,
+    targets: Vec<Target>,
+    opts: PlanOptions,
+    tables: Option<dipwatch::astro::tables::SkyTables>,
 }
 
 /// Targets as the planned kinds' entries (one per kind and target, see `dipwatch::orbit::kind_views`).

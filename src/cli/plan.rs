@@ -14,11 +14,23 @@ pub(super) struct PlanArgs {
 }
 
 pub(super) fn run_plan(args: PlanArgs) -> Result<()> {
-    let (sites, targets, opts) = args.selection.load(args.include_unobservable)?;
     let format = args.output.format();
     if format != Format::Table {
-        return stream_plan(&sites, &targets, &opts, args.output.out.as_deref(), format);
+        let Loaded {
+            sites,
+            targets,
+            opts,
+            tables,
+        } = args.selection.load_with_tables(args.include_unobservable)?;
+        let planner = dipwatch::engine::plan::Planner::with_tables(&sites, &targets, &opts, tables);
+        return stream_plan(
+            &planner,
+            (&sites, &targets, &opts),
+            args.output.out.as_deref(),
+            format,
+        );
     }
+    let (sites, targets, opts) = args.selection.load(args.include_unobservable)?;
     let result = plan(&sites, &targets, &opts);
     let text = report::plan_table(&result, &sites, &targets, &opts, args.output.utc);
     emit(&text, args.output.out.as_deref())
@@ -38,13 +50,11 @@ pub(super) const OUTPUT_BUFFER_BYTES: usize = 64 * 1024;
 /// events in parallel and never holding the whole plan: the output is that of `report::plan_csv` (or the ECSV, or the same JSON document as
 /// `report::plan_json`, one event per line) of the whole plan. A progress bar shows on a terminal for long runs.
 pub(super) fn stream_plan(
-    sites: &[Site],
-    targets: &[Target],
-    opts: &PlanOptions,
+    planner: &dipwatch::engine::plan::Planner<'_>,
+    (sites, targets, opts): (&[Site], &[Target], &PlanOptions),
     out: Option<&Path>,
     format: Format,
 ) -> Result<()> {
-    let planner = dipwatch::engine::plan::Planner::new(sites, targets, opts);
     let n_nights = (opts.last_night - opts.first_night).num_days() + 1;
     let chunks: Vec<(NaiveDate, NaiveDate)> = (0..n_nights)
         .step_by(STREAM_CHUNK_NIGHTS as usize)
@@ -71,8 +81,8 @@ pub(super) fn stream_plan(
         None
     };
     let write_all = |w: &mut dyn Write| -> Result<()> {
-        w.write_all(stream_head(&planner, sites, opts, format)?.as_bytes())?;
-        let lost = pipe_events(&planner, &chunks, (sites, targets), format, bar.as_ref(), w)?;
+        w.write_all(stream_head(planner, sites, opts, format)?.as_bytes())?;
+        let lost = pipe_events(planner, &chunks, (sites, targets), format, bar.as_ref(), w)?;
         if format == Format::Json {
             let lost: Vec<dipwatch::engine::plan::LostEphemeris> = lost
                 .into_iter()

@@ -1288,7 +1288,13 @@ struct Spare {
 impl<'a> Planner<'a> {
     /// Prepare a run: computes the tables for the whole range of `opts`.
     pub fn new(sites: &'a [Site], targets: &'a [Target], opts: &'a PlanOptions) -> Planner<'a> {
-        let span = sites
+        Planner::with_tables(sites, targets, opts, Planner::sky_tables(sites, opts))
+    }
+
+    /// The nights' span of a run: from the first night window's start to the last one's end over all sites
+    /// (None without sites or nights).
+    fn span(sites: &[Site], opts: &PlanOptions) -> Option<(f64, f64)> {
+        sites
             .iter()
             .filter_map(|s| {
                 let w = night_windows(s, opts.first_night, opts.last_night);
@@ -1296,8 +1302,23 @@ impl<'a> Planner<'a> {
             })
             .fold(None, |acc: Option<(f64, f64)>, (a, b)| {
                 Some(acc.map_or((a, b), |(x, y)| (x.min(a), y.max(b))))
-            });
-        let tables = span.map(|(a, b)| SkyTables::new(a - 1.0, b + 1.0));
+            })
+    }
+
+    /// The sky tables a run of `sites` and `opts` plans with: they need no targets, so a caller can build them
+    /// while the targets are read (then [`Planner::with_tables`]).
+    pub fn sky_tables(sites: &[Site], opts: &PlanOptions) -> Option<SkyTables> {
+        Planner::span(sites, opts).map(|(a, b)| SkyTables::new(a - 1.0, b + 1.0))
+    }
+
+    /// [`Planner::new`] with the run's [`Planner::sky_tables`] already built.
+    pub fn with_tables(
+        sites: &'a [Site],
+        targets: &'a [Target],
+        opts: &'a PlanOptions,
+        tables: Option<SkyTables>,
+    ) -> Planner<'a> {
+        let span = Planner::span(sites, opts);
         let mids = match (&tables, span) {
             (Some(tables), Some((a, b))) => targets
                 .par_iter()
