@@ -270,12 +270,16 @@ struct Selection {
 }
 
 impl Selection {
+    /// The plan options of the run: its nights and how blocks are built and judged.
+    fn options(&self, include_unobservable: bool) -> Result<PlanOptions> {
+        let (first_night, last_night) = resolve_range(&self.range)?;
+        self.block
+            .options(first_night, last_night, include_unobservable)
+    }
+
     /// The sites, the targets and the plan options of the run (unobservable events listed or not).
     fn load(&self, include_unobservable: bool) -> Result<(Vec<Site>, Vec<Target>, PlanOptions)> {
-        let (first_night, last_night) = resolve_range(&self.range)?;
-        let opts = self
-            .block
-            .options(first_night, last_night, include_unobservable)?;
+        let opts = self.options(include_unobservable)?;
         let (sites, targets) = load(&self.input)?;
         let targets = opts.views(&targets);
         Ok((sites, targets, opts))
@@ -284,10 +288,7 @@ impl Selection {
     /// [`Selection::load`], and the run's sky tables built while the targets file is read (they depend on the
     /// sites and the dates only): the tables of a year take about as long as reading 10,000 targets.
     fn load_with_tables(&self, include_unobservable: bool) -> Result<Loaded> {
-        let (first_night, last_night) = resolve_range(&self.range)?;
-        let opts = self
-            .block
-            .options(first_night, last_night, include_unobservable)?;
+        let opts = self.options(include_unobservable)?;
         let sites = load_sites(&self.input.files.sites, &self.input.site_names)?;
         let (targets, tables) = rayon::join(
             || {
