@@ -315,6 +315,17 @@ fn horner(c: &[f64; 4], u: f64) -> f64 {
 }
 
 impl LightTimeCurve<'_> {
+    /// The geocentric UTC of an event quoted as `value` in `system`: [`LightTimeCurve::geocentric_utc`] for
+    /// BJD_TDB, the table's general conversion for the others.
+    pub fn geocentric_utc_of(&self, system: TimeSystem, value: f64) -> JdUtc {
+        match system {
+            TimeSystem::BjdTdb => self.geocentric_utc(value),
+            _ => self
+                .table
+                .utc_from_system(system, value, &self.target, None),
+        }
+    }
+
     /// The geocentric UTC of `bjd_tdb`: [`EarthTable::utc_from_system`] with [`TimeSystem::BjdTdb`] and no
     /// observer, step for step (the same instants are rounded the same way), with the light time and TDB - TT
     /// from one cell's cubics. The cubics are the table's to rounding (1e-18 d, against 4.7e-10 d between

@@ -1326,27 +1326,12 @@ impl<'a> Planner<'a> {
                     let icrs = t.icrs_at(0.5 * (a + b));
                     let eph = &t.ephemeris;
                     // Light time and TT-UTC are < 0.01 d: widen the range by 0.02 d in the target's system.
-                    let epochs = eph.epochs_between(a - 0.02, b + 0.02);
-                    if eph.system == crate::astro::barycentric::TimeSystem::BjdTdb {
-                        // The same conversion from the target's light-time curve (a fifth of the work).
-                        let curve = tables.earth.light_time_curve(&icrs);
-                        epochs
-                            .map(|n| (n, curve.geocentric_utc(eph.mid_time(n)).0))
-                            .collect()
-                    } else {
-                        epochs
-                            .map(|n| {
-                                let system = eph.system;
-                                let utc = tables.earth.utc_from_system(
-                                    system,
-                                    eph.mid_time(n),
-                                    &icrs,
-                                    None,
-                                );
-                                (n, utc.0)
-                            })
-                            .collect()
-                    }
+                    // One light-time curve per target converts all its mid-times (a fifth of the work of
+                    // the general conversion for BJD_TDB).
+                    let curve = tables.earth.light_time_curve(&icrs);
+                    eph.epochs_between(a - 0.02, b + 0.02)
+                        .map(|n| (n, curve.geocentric_utc_of(eph.system, eph.mid_time(n)).0))
+                        .collect()
                 })
                 .collect(),
             _ => Vec::new(),
