@@ -1268,6 +1268,8 @@ pub struct Planner<'a> {
     tables: Option<SkyTables>,
     /// Per target: (epoch, geocentric UTC JD of mid-transit) over the whole range, computed once for all sites.
     mids: Vec<Vec<(i64, f64)>>,
+    /// Per target: [`Target::icrs_fixed`], computed once for every chunk and site.
+    fixed_places: Vec<Option<Vec3>>,
     /// Per site: its nights over the whole range with their dark intervals, computed once for all its telescopes
     /// and chunks (and for the JSON head's nights without darkness).
     nights: Vec<Vec<Night>>,
@@ -1363,6 +1365,7 @@ impl<'a> Planner<'a> {
             opts,
             tables,
             mids,
+            fixed_places: targets.iter().map(Target::icrs_fixed).collect(),
             nights,
             spare: std::sync::Mutex::new(Spare::default()),
         }
@@ -1445,6 +1448,7 @@ impl<'a> Planner<'a> {
             .photometry
             .as_ref()
             .and_then(|ph| crate::engine::noise::NoiseSetup::new(ph, site.elevation_m));
+        let sin_min_alt = site.min_alt_deg.to_radians().sin();
         let lost_per_target: Vec<Option<f64>> = self
             .targets
             .par_iter()
@@ -1459,8 +1463,8 @@ impl<'a> Planner<'a> {
                     site,
                     opts: self.opts,
                     tables,
-                    icrs_fixed: target.icrs_fixed(),
-                    sin_min_alt: site.min_alt_deg.to_radians().sin(),
+                    icrs_fixed: self.fixed_places[ti],
+                    sin_min_alt,
                     noise_band_ok: noise_band_ok(site, target),
                     noise: noise.as_ref(),
                 };
@@ -1518,7 +1522,7 @@ fn events_of_target(
     events: &mut Vec<Event>,
 ) -> Option<f64> {
     let (target, site, opts) = (p.target, p.site, p.opts);
-    let icrs = target.icrs_at(range.start);
+    let icrs = p.icrs_fixed.unwrap_or_else(|| target.icrs_at(range.start));
     // The first look: the catalogue place, with the altitude limit loosened by the bound on its error, rejects
     // transits that stay low without the apparent place (see `mean_place_error_deg`).
     let mean = Track::mean(&icrs, site);
