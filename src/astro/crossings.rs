@@ -74,6 +74,21 @@ pub fn intervals_where_nonnegative<F: Fn(f64) -> f64>(
     step_days: f64,
     extra: &[f64],
 ) -> Vec<Interval> {
+    intervals_where_nonnegative_bounded(f, start, end, step_days, extra, (f64::INFINITY, 0.0))
+}
+
+/// [`intervals_where_nonnegative`] for an `f` that changes by at most `max_rate_per_day` per day, give or take
+/// `slack` (jumps between tabulated values): a sample is not evaluated when the last value evaluated is too
+/// far from zero for `f` to have reached zero since, so its sign is known. Only the signs of the samples
+/// decide the brackets and [`bisect`] uses only signs, so the result is the same as evaluating every sample.
+pub fn intervals_where_nonnegative_bounded<F: Fn(f64) -> f64>(
+    f: &F,
+    start: f64,
+    end: f64,
+    step_days: f64,
+    extra: &[f64],
+    (max_rate_per_day, slack): (f64, f64),
+) -> Vec<Interval> {
     if end <= start {
         return Vec::new();
     }
@@ -87,8 +102,17 @@ pub fn intervals_where_nonnegative<F: Fn(f64) -> f64>(
     let mut prev_t = ts[0];
     let mut prev_f = f(prev_t);
     let mut open = (prev_f >= 0.0).then_some(prev_t);
+    // The last sample evaluated: its value bounds the ones after it.
+    let mut known = (prev_t, prev_f);
     for &t in &ts[1..] {
-        let ft = f(t);
+        let ft = if known.1.abs() > max_rate_per_day * (t - known.0) + slack {
+            // The same sign as the last value evaluated (only the sign of a sample is used).
+            known.1
+        } else {
+            let ft = f(t);
+            known = (t, ft);
+            ft
+        };
         if (ft >= 0.0) != (prev_f >= 0.0) {
             let root = bisect(f, prev_t, prev_f, t);
             match open.take() {
@@ -149,6 +173,16 @@ pub fn sun_crossings(observer: &Observer, alt_deg: f64, start: f64, end: f64) ->
     )
 }
 
+/// A bound on how fast the Sun's geometric altitude changes, deg/day: cos(lat) cos(dec) times the hour angle's
+/// rate (360.99 deg/day less the Sun's right-ascension motion, 0.9-1.1 deg/day), plus its declination's (at most
+/// 0.4 deg/day), is below 362 deg/day anywhere; 400 leaves a tenth of room.
+const SUN_ALT_RATE_BOUND_DEG_PER_DAY: f64 = 400.0;
+
+/// What the Sun's tabulated altitude can jump by between neighbouring instants, deg: the tables take a day's
+/// frame (precession-nutation, equation of the equinoxes) for the instants nearest to it, and the frames of
+/// consecutive days differ by about 2e-5 deg. 1e-3 deg (3.6") is fifty times that.
+const SUN_ALT_SLACK_DEG: f64 = 1e-3;
+
 /// [`sun_crossings`] for any model of the Sun: `sun_alt_deg(t)` its altitude and `sun_ha_rad(t)` its hour
 /// angle (-pi..pi) at UTC JD `t`. Samples every 20 minutes plus the instants of local apparent midnight and
 /// noon (the altitude extrema), found from the hour angle, so a grazing Sun near the poles is not missed.
@@ -161,7 +195,14 @@ pub fn sun_crossings_with(
 ) -> SunCrossing {
     let f = |t: f64| alt_deg - sun_alt_deg(t);
     let extrema = transit_instants(sun_ha_rad, start, end);
-    let below = intervals_where_nonnegative(&f, start, end, 20.0 / 1440.0, &extrema);
+    let below = intervals_where_nonnegative_bounded(
+        &f,
+        start,
+        end,
+        20.0 / 1440.0,
+        &extrema,
+        (SUN_ALT_RATE_BOUND_DEG_PER_DAY, SUN_ALT_SLACK_DEG),
+    );
     if below.is_empty() {
         return SunCrossing::AlwaysAbove;
     }
@@ -224,6 +265,62 @@ pub fn transit_instants(ha: &dyn Fn(f64) -> f64, start: f64, end: f64) -> Vec<f6
 #[cfg(test)]
 mod tests {
     use super::*;
+    use proptest::prelude::*;
+
+    proptest! {
+        #![proptest_config(ProptestConfig::with_cases(48))]
+        /// Skipping the samples whose sign the Sun's altitude rate bound decides gives the crossings that
+        /// evaluating every sample gives, to the bit: any latitude (the poles' grazing Sun included), any level,
+        /// over several years of the planner's tables.
+        #[test]
+        fn bounded_sampling_finds_the_crossings_of_full_sampling(
+            lat in -89.9f64..89.9,
+            lon in -180.0f64..180.0,
+            day in 0.0f64..3650.0,
+            level in prop_oneof![Just(-18.0), Just(-12.0), Just(-6.0), Just(-0.833), -25.0f64..10.0],
+        ) {
+            let observer = Observer::from_deg(lat, lon, 0.0);
+            let start = 2_460_000.5 + day.floor() - lon / 360.0;
+            let tables = crate::astro::tables::SkyTables::new(start - 1.0, start + 9.0);
+            for night in 0..7 {
+                let (a, b) = (start + night as f64, start + night as f64 + 1.0);
+                let f = |t: f64| level - tables.sun_alt_deg(t, &observer);
+                let extrema = transit_instants(&|t| tables.sun_hour_angle_rad(t, &observer), a, b);
+                let every = intervals_where_nonnegative(&f, a, b, 20.0 / 1440.0, &extrema);
+                let bounded = intervals_where_nonnegative_bounded(
+                    &f,
+                    a,
+                    b,
+                    20.0 / 1440.0,
+                    &extrema,
+                    (SUN_ALT_RATE_BOUND_DEG_PER_DAY, SUN_ALT_SLACK_DEG),
+                );
+                prop_assert_eq!(bounded, every);
+            }
+        }
+    }
+
+    /// The tables' Sun altitude never changes faster than the bound the sampling relies on: sampled every
+    /// minute at the equator (where it changes fastest) and at mid latitudes over a year.
+    #[test]
+    fn sun_altitude_rate_stays_under_the_bound() {
+        let tables = crate::astro::tables::SkyTables::new(2_461_000.0, 2_461_370.0);
+        let mut fastest = 0.0f64;
+        for lat in [0.0, 23.4, -23.4, 45.0] {
+            let observer = Observer::from_deg(lat, 10.0, 0.0);
+            let mut prev = tables.sun_alt_deg(2_461_001.0, &observer);
+            for i in 1..(365 * 1440 / 7) {
+                let t = 2_461_001.0 + i as f64 * 7.0 / 1440.0;
+                let alt = tables.sun_alt_deg(t, &observer);
+                fastest = fastest.max((alt - prev).abs() / (7.0 / 1440.0));
+                prev = alt;
+            }
+        }
+        // 15.04 deg/h at most (common practice, no source): 361 deg/day.
+        assert!(fastest < 362.0, "{fastest}");
+        assert!(fastest > 350.0, "{fastest}");
+        assert!(fastest < SUN_ALT_RATE_BOUND_DEG_PER_DAY);
+    }
 
     #[test]
     fn intervals_of_a_sine() {

@@ -1645,13 +1645,22 @@ fn events_of_target(
 /// a tuple, and compared without a floating-point comparison.
 fn order_key(block_start_utc: f64, target: usize, pos: usize) -> u128 {
     let bits = block_start_utc.to_bits();
-    let ordered = if bits >> 63 == 1 { !bits } else { bits | 1 << 63 };
-    (u128::from(ordered) << 64) | ((target as u128 & 0xFFFF_FFFF) << 32) | (pos as u128 & 0xFFFF_FFFF)
+    let ordered = if bits >> 63 == 1 {
+        !bits
+    } else {
+        bits | 1 << 63
+    };
+    (u128::from(ordered) << 64)
+        | ((target as u128 & 0xFFFF_FFFF) << 32)
+        | (pos as u128 & 0xFFFF_FFFF)
 }
 
 /// The (target, place in its list) of an [`order_key`].
 fn key_place(key: u128) -> (usize, usize) {
-    (((key >> 32) & 0xFFFF_FFFF) as usize, (key & 0xFFFF_FFFF) as usize)
+    (
+        ((key >> 32) & 0xFFFF_FFFF) as usize,
+        (key & 0xFFFF_FFFF) as usize,
+    )
 }
 
 /// `s.partition_point(pred)` for a predicate true then false along `s`, found by stepping from `guess`: a few
