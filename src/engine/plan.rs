@@ -1499,6 +1499,14 @@ impl<'a> Planner<'a> {
             let (ti, pos) = key_place(key);
             per_target[ti][pos]
         }));
+        // A list left empty gives its memory back (to the allocator, for the lists that grow): otherwise every
+        // target keeps the room of its busiest chunk at any site.
+        for list in per_target
+            .iter_mut()
+            .filter(|l| l.is_empty() && l.capacity() > 0)
+        {
+            *list = Vec::new();
+        }
         if let Ok(mut spare) = self.spare.lock() {
             spare.per_target = per_target;
         }
