@@ -101,6 +101,9 @@ pub struct EarthTable {
     helio_au: Vec<Vec3>,
     /// TDB - TT at the same nodes, s ([`tdb_minus_tt_s`]).
     tdb_minus_tt_s: Vec<f64>,
+    /// For each day from node 1 on, the cubic through TDB - TT at its four nodes (k-1 .. k+2) in power form
+    /// ([`cubic_through`]), made once for every mid-time converted by a [`LightTimeCurve`].
+    tdb_minus_tt_cubics: Vec<[f64; 4]>,
     /// TAI - UTC, s, when it is the same over the whole table (no leap second inside it).
     tai_minus_utc_s: Option<f64>,
 }
@@ -132,7 +135,8 @@ impl EarthTable {
             nodes[i] = (midpoint_6(six.map(|p| p.0)), midpoint_6(six.map(|p| p.1)));
         }
         let (bary_au, helio_au): (Vec<Vec3>, Vec<Vec3>) = nodes.into_iter().unzip();
-        let tdb_minus_tt_s = (0..n).map(|i| tdb_minus_tt_s(first + i as f64)).collect();
+        let tdb_minus_tt_s: Vec<f64> = (0..n).map(|i| tdb_minus_tt_s(first + i as f64)).collect();
+        let tdb_minus_tt_cubics = tdb_minus_tt_s.windows(4).map(cubic_through).collect();
         // TAI - UTC only steps up: equal at both ends (a day beyond each, for the TDB - UTC offset) means
         // constant throughout.
         let (a, b) = (
@@ -144,6 +148,7 @@ impl EarthTable {
             bary_au,
             helio_au,
             tdb_minus_tt_s,
+            tdb_minus_tt_cubics,
             tai_minus_utc_s: (a == b).then_some(a),
         }
     }
@@ -385,7 +390,7 @@ impl LightTimeCurve<'_> {
                 .and_then(|i| self.delay_days.get(i..i + 4)),
             usize::try_from(i)
                 .ok()
-                .and_then(|i| table.tdb_minus_tt_s.get(i..i + 4)),
+                .and_then(|i| table.tdb_minus_tt_cubics.get(i)),
         ) else {
             return general();
         };
@@ -402,7 +407,7 @@ impl LightTimeCurve<'_> {
         if crate::astro::frames::floor_fast(x2) != fl {
             return general();
         }
-        let dt_s = horner(&cubic_through(tdb_tt), x2 - fl);
+        let dt_s = horner(tdb_tt, x2 - fl);
         table.utc_from_tt(tdb_geo - dt_s / SECONDS_PER_DAY)
     }
 }
