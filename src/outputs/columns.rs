@@ -947,11 +947,12 @@ pub fn push_fixed(x: f64, decimals: u32, out: &mut Vec<u8>) {
     // i64 (|y| < 2^63): one conversion instruction, where a conversion to u64 takes a branchy sequence.
     let v = (y.abs() + 0.5) as i64 as u64;
     // Sign, the point and up to 17 digits, built back to front from the digits of the scaled value two at a time
-    // (a table of the hundred pairs; division by 100 compiles to a multiplication) and copied once.
-    let mut buf = [b'0'; 24];
-    let mut i = buf.len();
+    // (a table of the hundred pairs; division by 100 compiles to a multiplication) into the first 24 bytes, and
+    // copied once.
+    let mut buf = [b'0'; 48];
+    let mut i = 24;
     let mut rest = v;
-    let put_pair = |buf: &mut [u8; 24], i: &mut usize, rest: &mut u64| {
+    let put_pair = |buf: &mut [u8; 48], i: &mut usize, rest: &mut u64| {
         let p = (*rest % 100) as usize * 2;
         *rest /= 100;
         *i -= 2;
@@ -983,7 +984,11 @@ pub fn push_fixed(x: f64, decimals: u32, out: &mut Vec<u8>) {
         i -= 1;
         buf[i] = b'-';
     }
-    out.extend_from_slice(&buf[i..]);
+    // The text is buf[i..24]: 24 bytes from i are copied (a copy of constant length, inlined, where the text's
+    // own length would call `memcpy`: 2% of the catalogue job's time), and the bytes past the text cut off.
+    let end = out.len() + (24 - i);
+    out.extend_from_slice(&buf[i..i + 24]);
+    out.truncate(end);
 }
 
 /// Append the decimal digits of `v`, zero-padded to at least `width` (at most 20), in one copy.
