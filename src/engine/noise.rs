@@ -187,6 +187,10 @@ pub fn moonlight_v_mag(moon: &MoonSky, target_alt_deg: f64, k_v: f64) -> Option<
     moonlight_v_nanolamberts(moon, target_alt_deg, k_v).map(v_from_nanolamberts)
 }
 
+/// 10^5.36, the Rayleigh term's scale in Krisciunas & Schaefer's eq. 21: computed once, as [`pow10`] gives it
+/// (one exponential less per event of a photometric run).
+static RAYLEIGH_SCALE: std::sync::LazyLock<f64> = std::sync::LazyLock::new(|| pow10(5.36));
+
 /// [`moonlight_v_mag`] in nanolamberts (the unit its sum with the dark sky takes).
 fn moonlight_v_nanolamberts(moon: &MoonSky, target_alt_deg: f64, k_v: f64) -> Option<f64> {
     if moon.alt_deg <= 0.0 {
@@ -195,7 +199,7 @@ fn moonlight_v_nanolamberts(moon: &MoonSky, target_alt_deg: f64, k_v: f64) -> Op
     let alpha = (2.0 * moon.illum.clamp(0.0, 1.0) - 1.0).acos().to_degrees();
     let i_moon = pow10(-0.4 * (3.84 + 0.026 * alpha + 4e-9 * alpha.powi(4)));
     let rho = moon.sep_deg.clamp(0.0, 180.0);
-    let f = pow10(5.36) * (1.06 + rho.to_radians().cos().powi(2)) + pow10(6.15 - rho / 40.0);
+    let f = *RAYLEIGH_SCALE * (1.06 + rho.to_radians().cos().powi(2)) + pow10(6.15 - rho / 40.0);
     let (z_moon, z) = (
         90.0 - moon.alt_deg,
         (90.0 - target_alt_deg).clamp(0.0, 90.0),
@@ -452,7 +456,8 @@ fn suggested_exposure_from(
     if per_s * min_s > well_fraction {
         return (min_s, true);
     }
-    let t = (well_fraction / per_s).floor().clamp(min_s, max_s);
+    // `floor` by truncation (the same value; portable builds have no floor instruction).
+    let t = crate::astro::frames::floor_fast(well_fraction / per_s).clamp(min_s, max_s);
     (t, false)
 }
 
