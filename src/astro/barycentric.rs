@@ -77,8 +77,29 @@ const MIDPOINT_6: [f64; 6] = [
     3.0 / 256.0,
 ];
 
+/// The values of a table's nodes 0..n: `eval` (in parallel) at the even nodes and at the five nearest each
+/// end; each other odd node from its six even neighbours by `mix` (given the six in order: [`midpoint_6`] of
+/// each position). Half the evaluations, for a smooth series sampled finely enough for the midpoint formula.
+pub(crate) fn half_evaluated_nodes<T: Copy + Default + Send>(
+    n: usize,
+    eval: impl Fn(usize) -> T + Sync + Send,
+    mix: impl Fn([T; 6]) -> T,
+) -> Vec<T> {
+    use rayon::prelude::*;
+    let direct = |i: usize| i % 2 == 0 || i < 5 || i + 5 >= n;
+    let mut nodes: Vec<T> = (0..n)
+        .into_par_iter()
+        .map(|i| if direct(i) { eval(i) } else { T::default() })
+        .collect();
+    for i in (0..n).filter(|&i| !direct(i)) {
+        // Six even nodes, already evaluated: i - 5 >= 0 and i + 5 < n for every node not evaluated.
+        nodes[i] = mix(std::array::from_fn(|k| nodes[i + 2 * k - 5]));
+    }
+    nodes
+}
+
 /// A position at the midpoint of six equally spaced ones ([`MIDPOINT_6`]), each coordinate summed in node order.
-fn midpoint_6(p: [Vec3; 6]) -> Vec3 {
+pub(crate) fn midpoint_6(p: [Vec3; 6]) -> Vec3 {
     std::array::from_fn(|c| {
         MIDPOINT_6
             .iter()
@@ -113,28 +134,14 @@ impl EarthTable {
     pub fn new(from_jd_tdb: f64, to_jd_tdb: f64) -> EarthTable {
         let first = from_jd_tdb.floor() - 3.0;
         let n = ((to_jd_tdb.max(from_jd_tdb) - first).ceil() as usize) + 4;
-        // VSOP87E at the even nodes and at the five nearest each end (half the cost of the run's fixed start);
-        // the other odd nodes from their six even neighbours (see [`MIDPOINT_6`]).
-        let direct = |i: usize| i % 2 == 0 || i < 5 || i + 5 >= n;
-        let mut nodes: Vec<(Vec3, Vec3)> = {
-            use rayon::prelude::*;
-            (0..n)
-                .into_par_iter()
-                .map(|i| {
-                    if direct(i) {
-                        earth_positions_au(first + i as f64)
-                    } else {
-                        ([0.0; 3], [0.0; 3])
-                    }
-                })
-                .collect()
-        };
-        for i in (0..n).filter(|&i| !direct(i)) {
-            // Six even nodes, already evaluated: i - 5 >= 0 and i + 5 < n for every node not evaluated.
-            let six: [(Vec3, Vec3); 6] = std::array::from_fn(|k| nodes[i + 2 * k - 5]);
-            nodes[i] = (midpoint_6(six.map(|p| p.0)), midpoint_6(six.map(|p| p.1)));
-        }
-        let (bary_au, helio_au): (Vec<Vec3>, Vec<Vec3>) = nodes.into_iter().unzip();
+        // VSOP87E at half the nodes (half the cost of the run's fixed start), the rest interpolated.
+        let (bary_au, helio_au): (Vec<Vec3>, Vec<Vec3>) = half_evaluated_nodes(
+            n,
+            |i| earth_positions_au(first + i as f64),
+            |six| (midpoint_6(six.map(|p| p.0)), midpoint_6(six.map(|p| p.1))),
+        )
+        .into_iter()
+        .unzip();
         let tdb_minus_tt_s: Vec<f64> = (0..n).map(|i| tdb_minus_tt_s(first + i as f64)).collect();
         let tdb_minus_tt_cubics = tdb_minus_tt_s.windows(4).map(cubic_through).collect();
         // TAI - UTC only steps up: equal at both ends (a day beyond each, for the TDB - UTC offset) means
