@@ -122,8 +122,8 @@ impl SkyTables {
             .collect();
         let moon_first_utc = first_day_utc;
         let n_moon = ((end_utc + 2.0 - moon_first_utc) / MOON_STEP_DAYS).ceil() as usize + 4;
-        // The lunar series at every other node (6 h apart), the nodes between from their six neighbours: within
-        // 5 m of the series (tested), against the table's own 4-point interpolation between nodes.
+        // The lunar series at every other node (6 h apart), the nodes between from their six neighbours, within
+        // 5 m of the series (tested); lookups between nodes then interpolate as before (4 points).
         let moon_km = half_evaluated_nodes(
             n_moon,
             |i| moon_node_km(moon_first_utc + i as f64 * MOON_STEP_DAYS),
