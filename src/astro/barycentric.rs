@@ -491,8 +491,7 @@ mod tests {
         for i in (5..table.bary_au.len() - 5).filter(|i| i % 2 == 1) {
             let (bary, helio) = earth_positions_au(table.first_jd_tdb + i as f64);
             for (a, b) in [(table.bary_au[i], bary), (table.helio_au[i], helio)] {
-                let d =
-                    ((a[0] - b[0]).powi(2) + (a[1] - b[1]).powi(2) + (a[2] - b[2]).powi(2)).sqrt();
+                let d = crate::astro::frames::distance(&a, &b);
                 worst = worst.max(d);
             }
         }
@@ -503,7 +502,7 @@ mod tests {
         for k in 0..3000 {
             let jd = 2_461_002.0 + k as f64 * 0.1213;
             let (a, b) = (table.earth_bary_au(jd), earth_positions_au(jd).0);
-            let d = ((a[0] - b[0]).powi(2) + (a[1] - b[1]).powi(2) + (a[2] - b[2]).powi(2)).sqrt();
+            let d = crate::astro::frames::distance(&a, &b);
             between = between.max(d);
         }
         assert!(between < 1e-8, "table off by {between} au between nodes");
@@ -518,7 +517,7 @@ mod tests {
             let jd = 2_461_000.0 + k as f64 * 0.987_3;
             let a = table.earth_bary_au(jd);
             let b = earth_positions_au(jd).0;
-            let d = ((a[0] - b[0]).powi(2) + (a[1] - b[1]).powi(2) + (a[2] - b[2]).powi(2)).sqrt();
+            let d = crate::astro::frames::distance(&a, &b);
             assert!(d < TOL_AU, "jd {jd}: table off by {d} au");
         }
     }

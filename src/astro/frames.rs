@@ -66,6 +66,12 @@ pub fn norm(v: &Vec3) -> f64 {
     (v[0] * v[0] + v[1] * v[1] + v[2] * v[2]).sqrt()
 }
 
+/// Distance between two positions (tests compare tables with the series they interpolate).
+#[cfg(test)]
+pub(crate) fn distance(a: &Vec3, b: &Vec3) -> f64 {
+    norm(&[a[0] - b[0], a[1] - b[1], a[2] - b[2]])
+}
+
 /// `x.floor()` by truncation to an integer: exact for |x| < 2^52 (every such double's floor is an integer
 /// below 2^52, held exactly), the library call otherwise. Portable builds have no floor instruction (SSE4.1),
 /// so `f64::floor` is a function call; this is a conversion and a compare.

@@ -377,10 +377,7 @@ mod tests {
         for i in (5..n - 5).filter(|i| i % 2 == 1) {
             let direct = moon_node_km(tables.moon_first_utc + i as f64 * MOON_STEP_DAYS);
             let v = tables.moon_km[i];
-            let d = ((v[0] - direct[0]).powi(2)
-                + (v[1] - direct[1]).powi(2)
-                + (v[2] - direct[2]).powi(2))
-            .sqrt();
+            let d = crate::astro::frames::distance(&v, &direct);
             worst = worst.max(d);
         }
         assert!(
