@@ -938,6 +938,9 @@ struct Pairing<'a> {
     noise_band_ok: bool,
     /// The station's photometric set-up, prepared once for all its events (None without one).
     noise: Option<&'a crate::engine::noise::NoiseSetup>,
+    /// The sidereal phase the chunk's dark time sweeps ([`dark_phase_arc`]); `None` when its nights have no
+    /// dark time.
+    dark_arc: Option<(f64, f64)>,
 }
 
 /// See [`Pairing::noise_band_ok`].
@@ -1392,6 +1395,31 @@ impl<'a> Planner<'a> {
         self.nights.get(site_index).map_or(&[], Vec::as_slice)
     }
 
+    /// The nights of site `si` (`site`) from `first` to `last`: the run's, when the dates are inside the run
+    /// (the usual case), else computed.
+    fn nights_between(
+        &self,
+        (si, site): (usize, &Site),
+        first: NaiveDate,
+        last: NaiveDate,
+    ) -> Vec<Night> {
+        let in_run = self.opts.first_night <= first && last <= self.opts.last_night;
+        match &self.tables {
+            Some(_) if in_run => {
+                let skip = (first - self.opts.first_night).num_days() as usize;
+                let take = ((last - first).num_days() + 1).max(0) as usize;
+                self.site_nights(si)
+                    .iter()
+                    .skip(skip)
+                    .take(take)
+                    .cloned()
+                    .collect()
+            }
+            Some(tables) => nights_with(site, &night_windows(site, first, last), tables),
+            None => Vec::new(),
+        }
+    }
+
     /// How many (site, telescope) pairs the run plans for: every telescope of every site.
     pub fn station_count(&self) -> usize {
         self.stations.len()
@@ -1407,22 +1435,7 @@ impl<'a> Planner<'a> {
         last: NaiveDate,
     ) -> (SitePlan, Vec<(usize, f64)>) {
         let (si, tel, site) = (self.stations[k].0, self.stations[k].1, &self.stations[k].2);
-        // The run's nights of the site when the dates are inside the run (the usual case), else computed.
-        let in_run = self.opts.first_night <= first && last <= self.opts.last_night;
-        let nights = match &self.tables {
-            Some(_) if in_run => {
-                let skip = (first - self.opts.first_night).num_days() as usize;
-                let take = ((last - first).num_days() + 1).max(0) as usize;
-                self.site_nights(si)
-                    .iter()
-                    .skip(skip)
-                    .take(take)
-                    .cloned()
-                    .collect()
-            }
-            Some(tables) => nights_with(site, &night_windows(site, first, last), tables),
-            None => Vec::new(),
-        };
+        let nights = self.nights_between((si, site), first, last);
         let (Some(tables), false) = (&self.tables, nights.is_empty()) else {
             return (
                 SitePlan {
@@ -1453,6 +1466,7 @@ impl<'a> Planner<'a> {
             .as_ref()
             .and_then(|ph| crate::engine::noise::NoiseSetup::new(ph, site.elevation_m));
         let sin_min_alt = site.min_alt_deg.to_radians().sin();
+        let dark_arc = dark_phase_arc(&nights, range.start);
         let lost_per_target: Vec<Option<f64>> = self
             .targets
             .par_iter()
@@ -1471,6 +1485,7 @@ impl<'a> Planner<'a> {
                     sin_min_alt,
                     noise_band_ok: noise_band_ok(site, target),
                     noise: noise.as_ref(),
+                    dark_arc,
                 };
                 list.clear();
                 events_of_target(&pairing, &self.mids[ti], &nights, &range, list)
@@ -1523,6 +1538,24 @@ struct MidTimes {
     utc: Vec<f64>,
 }
 
+impl MidTimes {
+    /// The first epoch and the mid-times within `range` (widened by 0.001 d each side), for a `period_days`
+    /// period. The epochs are consecutive, so the first one in range is near (start - first mid) / P.
+    fn within(&self, range: &Interval, period_days: f64) -> (i64, &[f64]) {
+        let from = range.start - 0.001;
+        let guess = self
+            .utc
+            .first()
+            .map_or(0.0, |&t0| ((from - t0) / period_days).ceil().max(0.0));
+        let first = partition_point_near(&self.utc, guess as usize, |&t| t < from);
+        let in_range = &self.utc[first..];
+        let to = range.end + 0.001;
+        let count_guess = ((to - from) / period_days).max(0.0) as usize;
+        let in_range = &in_range[..partition_point_near(in_range, count_guess, |&t| t < to)];
+        (self.first_epoch + first as i64, in_range)
+    }
+}
+
 /// The events of one target at one site over the nights, appended to `events`; returns, if its ephemeris is
 /// lost in the range, the timing sigma (minutes) of its first transit in the range that is lost (in daylight or
 /// not, so the figure does not depend on the filters below or on `include_unobservable`). Transits whose block misses the night's dark
@@ -1554,29 +1587,24 @@ fn events_of_target(
     let half = target.half_duration_days();
     let mut lost_sigma = None;
     let lost_limit_days = LOST_SIGMA_FRACTION_OF_PERIOD * eph.period_days;
-    // The epochs are consecutive, so the first one in range is near (start - first mid) / P.
-    let from = range.start - 0.001;
-    let guess = mids
-        .utc
-        .first()
-        .map_or(0.0, |&t0| ((from - t0) / eph.period_days).ceil().max(0.0));
-    let first = partition_point_near(&mids.utc, guess as usize, |&t| t < from);
-    let in_range = &mids.utc[first..];
-    let to = range.end + 0.001;
-    let count_guess = ((to - from) / eph.period_days).max(0.0) as usize;
-    let in_range = &in_range[..partition_point_near(in_range, count_guess, |&t| t < to)];
+    let (first_epoch, in_range) = mids.within(range, eph.period_days);
     // The epochs of `in_range`, in order.
-    let first_epoch = mids.first_epoch + first as i64;
     let epochs = first_epoch..first_epoch + in_range.len() as i64;
     // The timing sigma is the square root of a quadratic in the epoch, so it peaks at an end of the range:
     // when neither end is lost, no transit in between is, and the per-transit check is skipped.
     let may_be_lost = !epochs.is_empty()
         && (eph.sigma_days(epochs.start) > lost_limit_days
             || eph.sigma_days(epochs.end - 1) > lost_limit_days);
-    if !opts.include_unobservable && loose.cos_h0 >= 1.0 {
+    // Whether the catalogue place meets the loosened limit at any hour angle the chunk's dark time sweeps: the
+    // first look below asks the same of each transit's part of one night's dark time, so where this fails,
+    // every transit fails.
+    let meets_in_dark = p
+        .dark_arc
+        .is_some_and(|(lo, hi)| loose.met_between(ha_start + lo, ha_start + hi));
+    if !opts.include_unobservable && (loose.cos_h0 >= 1.0 || !meets_in_dark) {
         // The target never reaches even the loosened limit at this site (a third of the catalogue's
-        // target-site pairs, for a limit of 30 deg): the first look below would reject every transit. Only
-        // the lost ephemeris is still to say.
+        // target-site pairs, for a limit of 30 deg), or only while the chunk's nights are light: the first
+        // look below would reject every transit. Only the lost ephemeris is still to say.
         if may_be_lost {
             lost_sigma = epochs
                 .map(|n| eph.sigma_days(n))
@@ -1650,6 +1678,27 @@ fn events_of_target(
         }
     }
     lost_sigma
+}
+
+/// The sidereal phase swept by the dark time of `nights`: an arc `(lo, hi)`, rad, such that for every dark
+/// instant t, `2 pi GMST_RATE (t - start)` (the hour angle a fixed place gains from `start`, as the first look
+/// of [`events_of_target`] computes it) lies in [lo, hi] modulo 2 pi. Each night's dark interval is one arc; the
+/// arcs of a chunk of nights drift by about 4 minutes of hour angle a night, and `(lo, hi)` spans them all
+/// (with the gaps between them; 2 pi or more when they go round). Widened by 1e-9 rad for the roundings of
+/// either computation. `None` when no night has dark time.
+fn dark_phase_arc(nights: &[Night], start: f64) -> Option<(f64, f64)> {
+    let phase = |t: f64| TAU * GMST_RATE_PER_UT1_DAY * (t - start);
+    let mut arc: Option<(f64, f64)> = None;
+    let mut reference = None;
+    for d in nights.iter().filter_map(|n| n.dark) {
+        let (a, b) = (phase(d.start), phase(d.end));
+        // Each night's arc moved by whole turns next to the first night's.
+        let first = *reference.get_or_insert(a);
+        let turns = ((a - first) / TAU).round() * TAU;
+        let (a, b) = (a - turns, b - turns);
+        arc = Some(arc.map_or((a, b), |(lo, hi): (f64, f64)| (lo.min(a), hi.max(b))));
+    }
+    arc.map(|(lo, hi)| (lo - 1e-9, hi + 1e-9))
 }
 
 /// Give the memory of the lists left empty back (to the allocator, for the lists that grow): otherwise every
@@ -1851,6 +1900,47 @@ mod index_tests {
             let expected = a.total_cmp(&b).then(ta.cmp(&tb)).then(pa.cmp(&pb));
             prop_assert_eq!(order_key(a, ta, pa).cmp(&order_key(b, tb, pb)), expected);
             prop_assert_eq!(key_place(order_key(a, ta, pa)), (ta, pa));
+        }
+
+        /// The chunk-wide test of the first look is safe: whenever the loosened limit is met in some stretch of
+        /// one night's dark time (what the first look asks of a transit), it is met on the chunk's dark arc
+        /// too, for nights of any darkness, any limit and any starting hour angle.
+        #[test]
+        fn dark_arc_meets_whatever_a_stretch_of_dark_time_meets(
+            first_noon in 2_461_000.0f64..2_461_400.0,
+            nights in proptest::collection::vec((0.0f64..0.5, 0.0f64..0.45, 0.0f64..1.0), 1..64),
+            h0 in 0.0f64..std::f64::consts::PI,
+            ha_start in -20.0f64..20.0,
+            pick in (0usize..64, 0.0f64..1.0, 0.0f64..1.0),
+        ) {
+            // Night k's window runs from noon to noon; its dark time, when it has any, starts `dusk` days after
+            // the window and lasts `length` days (a fifth of the nights light throughout).
+            let nights: Vec<Night> = nights
+                .iter()
+                .enumerate()
+                .map(|(k, &(dusk, length, light))| {
+                    let noon = first_noon + k as f64;
+                    let start = noon + 0.02 + dusk;
+                    Night {
+                        night_of: NaiveDate::from_ymd_opt(2027, 1, 1).expect("date"),
+                        window: Interval { start: noon, end: noon + 1.0 },
+                        dark: (light > 0.2).then_some(Interval { start, end: start + length }),
+                    }
+                })
+                .collect();
+            let start = nights[0].window.start;
+            let limit = AltLimit { cos_h0: h0.cos(), h0_rad: h0 };
+            let arc = dark_phase_arc(&nights, start);
+            prop_assert_eq!(arc.is_some(), nights.iter().any(|n| n.dark.is_some()));
+            let (k, a, b) = pick;
+            if let Some(d) = nights[k % nights.len()].dark {
+                let (lo, hi) = arc.expect("dark time");
+                let (ta, tb) = (d.start + a.min(b) * (d.end - d.start), d.start + a.max(b) * (d.end - d.start));
+                let ha_at = |t: f64| ha_start + TAU * GMST_RATE_PER_UT1_DAY * (t - start);
+                if limit.met_between(ha_at(ta), ha_at(tb)) {
+                    prop_assert!(limit.met_between(ha_start + lo, ha_start + hi));
+                }
+            }
         }
 
         /// Stepping from any guess finds what the binary search finds, on sorted lists with repeats.
