@@ -505,7 +505,7 @@ impl Track {
     /// the sidereal time itself (5e-10 deg at 3.5e6 deg since J2000). For altitudes that are printed, not for
     /// the edges of usable runs (which take [`Track::ha_rad`]).
     fn ha_from(&self, (t_ref, ha_ref): (f64, f64), t: f64) -> f64 {
-        ha_ref + TAU * GMST_RATE_PER_UT1_DAY * (t - t_ref)
+        ha_ref + sidereal_turn_rad(t - t_ref)
     }
 
     /// (altitude deg, its sine) at hour angle `ha_rad`.
@@ -602,6 +602,12 @@ fn mean_place_error_deg(first_jd: f64, last_jd: f64, pm_mas_per_yr: f64) -> f64 
         / 3600.0
 }
 
+/// The hour angle a fixed place gains in `dt_days` of UT1, rad (the mean sidereal rate): one expression for
+/// every caller, so that the first look's per-chunk and per-transit tests round alike.
+fn sidereal_turn_rad(dt_days: f64) -> f64 {
+    TAU * GMST_RATE_PER_UT1_DAY * dt_days
+}
+
 /// A target's altitude limit at a site as an hour-angle limit: above `min_alt_deg` when |H| <= H0 with
 /// cos H0 = (sin h - sin phi sin dec) / (cos phi cos dec) (Meeus 1998 eq. 15.1 for any altitude h), the hour
 /// angle H advancing at the sidereal rate. Computed once, it answers for any stretch of time without
@@ -662,7 +668,7 @@ impl AltLimit {
     /// non-empty says, without building the list).
     fn met_within(&self, track: &Track, w: &Interval) -> bool {
         let ha_a = track.ha_rad(w.start);
-        self.met_between(ha_a, ha_a + TAU * GMST_RATE_PER_UT1_DAY * (w.end - w.start))
+        self.met_between(ha_a, ha_a + sidereal_turn_rad(w.end - w.start))
     }
 
     /// Whether the hour angles [ha_a, ha_b] (rad, any multiple of 2 pi) meet the limit.
@@ -1582,7 +1588,7 @@ fn events_of_target(
     // The catalogue place's hour angle over the chunk as a straight line from its start: GMST's quadratic term
     // moves it by < 1e-8 deg over a year, far inside the 36" of safety in the loosened limit.
     let ha_start = mean.ha_rad(range.start);
-    let ha_at = |t: f64| ha_start + TAU * GMST_RATE_PER_UT1_DAY * (t - range.start);
+    let ha_at = |t: f64| ha_start + sidereal_turn_rad(t - range.start);
     let eph = &target.ephemeris;
     let half = target.half_duration_days();
     let mut lost_sigma = None;
@@ -1681,13 +1687,13 @@ fn events_of_target(
 }
 
 /// The sidereal phase swept by the dark time of `nights`: an arc `(lo, hi)`, rad, such that for every dark
-/// instant t, `2 pi GMST_RATE (t - start)` (the hour angle a fixed place gains from `start`, as the first look
-/// of [`events_of_target`] computes it) lies in [lo, hi] modulo 2 pi. Each night's dark interval is one arc; the
-/// arcs of a chunk of nights drift by about 4 minutes of hour angle a night, and `(lo, hi)` spans them all
-/// (with the gaps between them; 2 pi or more when they go round). Widened by 1e-9 rad for the roundings of
-/// either computation. `None` when no night has dark time.
+/// instant t, [`sidereal_turn_rad`]`(t - start)` (the hour angle a fixed place gains from `start`, as the
+/// first look of [`events_of_target`] computes it) lies in [lo, hi] modulo 2 pi. Each night's dark interval is
+/// one arc; the arcs of a chunk of nights drift by about 4 minutes of hour angle a night, and `(lo, hi)` spans
+/// them all (with the gaps between them; 2 pi or more when they go round). Widened by 1e-9 rad for the
+/// roundings of either computation. `None` when no night has dark time.
 fn dark_phase_arc(nights: &[Night], start: f64) -> Option<(f64, f64)> {
-    let phase = |t: f64| TAU * GMST_RATE_PER_UT1_DAY * (t - start);
+    let phase = |t: f64| sidereal_turn_rad(t - start);
     let mut arc: Option<(f64, f64)> = None;
     let mut reference = None;
     for d in nights.iter().filter_map(|n| n.dark) {
@@ -1936,7 +1942,7 @@ mod index_tests {
             if let Some(d) = nights[k % nights.len()].dark {
                 let (lo, hi) = arc.expect("dark time");
                 let (ta, tb) = (d.start + a.min(b) * (d.end - d.start), d.start + a.max(b) * (d.end - d.start));
-                let ha_at = |t: f64| ha_start + TAU * GMST_RATE_PER_UT1_DAY * (t - start);
+                let ha_at = |t: f64| ha_start + sidereal_turn_rad(t - start);
                 if limit.met_between(ha_at(ta), ha_at(tb)) {
                     prop_assert!(limit.met_between(ha_start + lo, ha_start + hi));
                 }
