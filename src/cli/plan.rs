@@ -267,13 +267,14 @@ fn format_events(
     s.reserve(events.len() * per_event);
     match format {
         Format::Json => {
+            let mut buf = [0; dipwatch::outputs::columns::ROW_BUFFER_BYTES];
             for (i, e) in events.iter().enumerate() {
                 if i > 0 {
                     s.extend_from_slice(b",\n");
                 }
                 s.extend_from_slice(b"    ");
                 let row = report::EventRow::with_text(e, inputs, text);
-                dipwatch::outputs::columns::push_event_json_row(&row, &mut s);
+                dipwatch::outputs::columns::push_event_json_row_with(&row, &mut s, &mut buf);
             }
         }
         Format::Ecsv => {
