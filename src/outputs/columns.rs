@@ -837,12 +837,13 @@ pub trait Sink {
     fn put(&mut self, b: u8);
     /// Append `s`.
     fn put_slice(&mut self, s: &[u8]);
+    /// Append the first `n` bytes (at most the word's size) of `text`, little-endian.
+    fn put_prefix<W: TextWord>(&mut self, text: W, n: usize);
     /// Append the 8 bytes of `word`, little-endian.
-    fn put_word(&mut self, word: u64);
-    /// Append the first `n` (at most 16) bytes of `text`, little-endian.
-    fn put_prefix(&mut self, text: u128, n: usize);
-    /// Append the first `n` (at most 8) bytes of `text`, little-endian.
-    fn put_prefix8(&mut self, text: u64, n: usize);
+    #[inline(always)]
+    fn put_word(&mut self, word: u64) {
+        self.put_prefix(word, 8);
+    }
     /// Replace the last byte appended (the comma after a row's last field) by `b`.
     fn set_last(&mut self, b: u8);
 }
@@ -859,22 +860,11 @@ impl Sink for Vec<u8> {
     }
 
     #[inline(always)]
-    fn put_word(&mut self, word: u64) {
-        self.extend_from_slice(&word.to_le_bytes());
-    }
-
-    #[inline(always)]
-    fn put_prefix(&mut self, text: u128, n: usize) {
-        // 16 bytes of constant length (inlined, no `memcpy` call), then the bytes past the text cut off.
-        let end = self.len() + n.min(16);
-        self.extend_from_slice(&text.to_le_bytes());
-        self.truncate(end);
-    }
-
-    #[inline(always)]
-    fn put_prefix8(&mut self, text: u64, n: usize) {
-        let end = self.len() + n.min(8);
-        self.extend_from_slice(&text.to_le_bytes());
+    fn put_prefix<W: TextWord>(&mut self, text: W, n: usize) {
+        // The whole word, of constant length (inlined, no `memcpy` call), then the bytes past the text cut off.
+        let bytes = text.to_le();
+        let end = self.len() + n.min(bytes.as_ref().len());
+        self.extend_from_slice(bytes.as_ref());
         self.truncate(end);
     }
 
@@ -944,33 +934,13 @@ impl Sink for RowCursor<'_> {
     }
 
     #[inline(always)]
-    fn put_word(&mut self, word: u64) {
-        match self.buf.get_mut(self.at..self.at + 8) {
+    fn put_prefix<W: TextWord>(&mut self, text: W, n: usize) {
+        let bytes = text.to_le();
+        let bytes = bytes.as_ref();
+        match self.buf.get_mut(self.at..self.at + bytes.len()) {
             Some(d) => {
-                d.copy_from_slice(&word.to_le_bytes());
-                self.at += 8;
-            }
-            None => self.overflow = true,
-        }
-    }
-
-    #[inline(always)]
-    fn put_prefix(&mut self, text: u128, n: usize) {
-        match self.buf.get_mut(self.at..self.at + 16) {
-            Some(d) => {
-                d.copy_from_slice(&text.to_le_bytes());
-                self.at += n.min(16);
-            }
-            None => self.overflow = true,
-        }
-    }
-
-    #[inline(always)]
-    fn put_prefix8(&mut self, text: u64, n: usize) {
-        match self.buf.get_mut(self.at..self.at + 8) {
-            Some(d) => {
-                d.copy_from_slice(&text.to_le_bytes());
-                self.at += n.min(8);
+                d.copy_from_slice(bytes);
+                self.at += n.min(bytes.len());
             }
             None => self.overflow = true,
         }
@@ -1166,7 +1136,7 @@ pub fn push_fixed<S: Sink>(x: f64, decimals: u32, out: &mut S) {
     // of the catalogue's rows) in a 64-bit word, the rest in a 128-bit one.
     if v < 100_000 && d <= 5 {
         let text = fixed_text::<u64>(v, d, negative);
-        out.put_prefix8(text.bytes, text.len);
+        out.put_prefix(text.bytes, text.len);
     } else {
         let text = fixed_text::<u128>(v, d, negative);
         out.put_prefix(text.bytes, text.len);
@@ -1207,7 +1177,7 @@ fn fixed_text<W: TextWord>(v: u64, d: usize, negative: bool) -> Built<W> {
 }
 
 /// A word that holds text for [`Built`]: `u64` (8 bytes) or `u128` (16).
-trait TextWord:
+pub trait TextWord:
     Copy
     + Default
     + From<u8>
@@ -1215,10 +1185,27 @@ trait TextWord:
     + std::ops::Shl<u32, Output = Self>
     + std::ops::BitOr<Output = Self>
 {
+    /// The array of the word's bytes.
+    type Bytes: AsRef<[u8]>;
+    /// The word's bytes, little-endian (`to_le_bytes`).
+    fn to_le(self) -> Self::Bytes;
 }
 
-impl TextWord for u64 {}
-impl TextWord for u128 {}
+impl TextWord for u64 {
+    type Bytes = [u8; 8];
+    #[inline(always)]
+    fn to_le(self) -> [u8; 8] {
+        self.to_le_bytes()
+    }
+}
+
+impl TextWord for u128 {
+    type Bytes = [u8; 16];
+    #[inline(always)]
+    fn to_le(self) -> [u8; 16] {
+        self.to_le_bytes()
+    }
+}
 
 /// Text in one little-endian word, built back to front (see [`push_fixed`]).
 struct Built<W> {
