@@ -817,8 +817,9 @@ fn push_csv_value_as<const ECSV: bool, S: Sink>(v: &Value<'_>, out: &mut S) {
     }
 }
 
-/// A UTC Julian Date as RFC 3339 text with milliseconds, as [`crate::astro::civil::push_rfc3339_utc`] writes it,
-/// into any [`Sink`].
+/// A UTC Julian Date as RFC 3339 text with milliseconds, as [`rfc3339_utc`] gives it, into any [`Sink`]: the
+/// three words of [`crate::astro::civil::rfc3339_utc_words`], or the general formatter before 1970.
+// Inlined into the row writers (a dozen timestamps a row): 1.2% fewer instructions on the 1000-target job.
 #[inline(always)]
 fn push_time<S: Sink>(jd_utc: f64, out: &mut S) {
     match crate::astro::civil::rfc3339_utc_words(jd_utc) {
@@ -1107,6 +1108,9 @@ pub fn push_csv_text<S: Sink>(s: &str, out: &mut S) {
     }
 }
 
+/// 10 to the power of 0-9: the scales of [`push_fixed`]'s decimals.
+const DECIMAL_SCALES: [f64; 10] = [1.0, 10.0, 100.0, 1e3, 1e4, 1e5, 1e6, 1e7, 1e8, 1e9];
+
 /// Append `x` with exactly `decimals` decimals (0-9) without the general float formatter: scale, round half
 /// away from zero, print the digits. Equal to `format!("{x:.decimals$}")` except that a negative value which
 /// rounds to zero prints as `0.00`, not `-0.00`.
@@ -1114,9 +1118,8 @@ pub fn push_csv_text<S: Sink>(s: &str, out: &mut S) {
 // 1000-target job.
 #[inline(always)]
 pub fn push_fixed<S: Sink>(x: f64, decimals: u32, out: &mut S) {
-    const SCALES: [f64; 10] = [1.0, 10.0, 100.0, 1e3, 1e4, 1e5, 1e6, 1e7, 1e8, 1e9];
     let d = decimals as usize;
-    let y = x * SCALES.get(d).copied().unwrap_or(f64::INFINITY);
+    let y = x * DECIMAL_SCALES.get(d).copied().unwrap_or(f64::INFINITY);
     // Below 1e13 the text (sign, 14 digits at most, the point) fits 16 bytes and is built in a register;
     // everything else takes the wide path.
     if !x.is_finite() || x.abs() >= 1e12 || y.is_nan() || y.abs() >= 1e13 {
@@ -1234,9 +1237,11 @@ impl<W: TextWord> Built<W> {
 /// digits cannot print (infinite, NaN, 1e12 and more), which take the general formatter.
 #[cold]
 fn push_fixed_wide(x: f64, decimals: u32, out: &mut Vec<u8>) {
-    const SCALES: [f64; 10] = [1.0, 10.0, 100.0, 1e3, 1e4, 1e5, 1e6, 1e7, 1e8, 1e9];
     let decimals = decimals as usize;
-    let y = x * SCALES.get(decimals).copied().unwrap_or(f64::INFINITY);
+    let y = x * DECIMAL_SCALES
+        .get(decimals)
+        .copied()
+        .unwrap_or(f64::INFINITY);
     if !x.is_finite() || x.abs() >= 1e12 || y.is_nan() || y.abs() >= 1e17 {
         use std::io::Write;
         let _ = write!(out, "{x:.decimals$}");
@@ -1532,6 +1537,31 @@ mod tests {
                 want.remove(0);
             }
             proptest::prop_assert_eq!(s, want);
+        }
+    }
+
+    /// A timestamp is chrono's RFC 3339 text into either sink, from its three words after 1970 and from the
+    /// general formatter before.
+    #[test]
+    fn timestamps_are_chronos_text_in_both_sinks() {
+        for jd in [
+            2_415_020.0,
+            2_440_587.499_999,
+            2_440_587.5,
+            2_461_400.123_456_7,
+            2_470_000.999_999_9,
+        ] {
+            let mut vec = Vec::new();
+            push_time(jd, &mut vec);
+            let mut buf = [0; ROW_BUFFER_BYTES];
+            let mut cursor = RowCursor::new(&mut buf);
+            push_time(jd, &mut cursor);
+            assert_eq!(into_text(vec), rfc3339_utc(jd), "jd {jd}");
+            assert_eq!(
+                cursor.written(),
+                Some(rfc3339_utc(jd).as_bytes()),
+                "jd {jd}"
+            );
         }
     }
 
