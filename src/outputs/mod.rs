@@ -33,10 +33,11 @@ fn round(x: f64, decimals: i32) -> f64 {
 }
 
 /// `x` rounded down to `decimals` places: for fractions a person acts on (coverage), never shown higher than
-/// they are. The 1e-9 guard only absorbs binary noise (0.29 * 100 = 28.999999999999996).
+/// they are. The 1e-9 guard only absorbs binary noise (0.29 * 100 = 28.999999999999996). The floor by
+/// truncation ([`crate::astro::frames::floor_fast`], the same value): a coverage in every row of a plan.
 pub fn floor_to(x: f64, decimals: i32) -> f64 {
     let k = 10f64.powi(decimals);
-    ((x * k) + 1e-9).floor() / k
+    crate::astro::frames::floor_fast((x * k) + 1e-9) / k
 }
 
 /// A fraction 0-1 as a whole percentage rounded down: `99%` for 0.995, `100%` only for the whole.
